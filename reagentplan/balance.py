@@ -1,0 +1,355 @@
+"""The daily mass balance of the boiler, the sorbent injection and the scrubber.
+
+Every function is a pure, element-wise function of numpy arrays, so one call handles a
+single day, a year, or (futures × days) at once.  Shares are fractions (0-1) inside this
+module; the scenario's percentages are converted once, in `BalanceParams.from_scenario`.
+
+References
+----------
+US EPA, AP-42 *Compilation of Air Pollutant Emission Factors*, 5th ed., Section 1.1
+"Bituminous and Subbituminous Coal Combustion" (1998): fuel sulfur conversion to SO2
+(about 95 % for bituminous coal; the rest is retained in the ash), Table 1.1-3.
+Srivastava, R. K. and Jozewicz, W. (2001), "Flue gas desulfurization: the state of the
+art", J. Air & Waste Manage. Assoc. 51:1676-1688: limestone forced-oxidation chemistry,
+Ca/S stoichiometry, by-product composition.
+ASTM C618-19, *Standard Specification for Coal Fly Ash and Raw or Calcined Natural
+Pozzolan for Use in Concrete*: SO3 and LOI reporting of fly ash.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from . import chemistry as chem
+from .scenario import Scenario, horizon_generation
+from .units import KG_PER_GJ_TO_LB_PER_MMBTU
+
+# --------------------------------------------------------------------------- inputs
+
+
+@dataclass(frozen=True)
+class Drivers:
+    """Daily drivers of the balance; each array broadcasts to (futures, days).
+
+    Attributes
+    ----------
+    generation_mwh : net generation [MWh]
+    heat_input_gj : total heat input, coal and gas [GJ]
+    coal_heat_gj : heat input from coal [GJ]
+    sulfur_pct, ash_pct, chlorine_pct : blended coal, as received [%]
+    hhv_mj_per_kg : blended coal higher heating value, as received [MJ/kg]
+    """
+
+    generation_mwh: np.ndarray
+    heat_input_gj: np.ndarray
+    coal_heat_gj: np.ndarray
+    sulfur_pct: np.ndarray
+    ash_pct: np.ndarray
+    hhv_mj_per_kg: np.ndarray
+    chlorine_pct: np.ndarray
+
+
+@dataclass(frozen=True)
+class BalanceParams:
+    """Plant and scrubber constants as fractions [-] and ratios [mol/mol]."""
+
+    boiler: str
+    so2_conversion: float
+    fly_ash_share: float
+    fly_ash_loi: float
+    removal: float
+    ca_s_ratio: float
+    caco3: float
+    oxidation: float
+    gypsum_moisture: float
+    esp_efficiency: float
+    injection_removal: float
+    injection_ca_s_ratio: float
+    prescrubber_hcl_removal: float
+    gypsum_chloride_ppm: float
+    so2_limit_kg_per_gj: float | None
+    so2_limit_avg_days: int
+
+    @classmethod
+    def from_scenario(cls, scenario: Scenario) -> "BalanceParams":
+        p, s = scenario.plant, scenario.scrubber
+        return cls(
+            boiler=p.boiler,
+            so2_conversion=p.so2_conversion_pct / 100,
+            fly_ash_share=p.fly_ash_share_pct / 100,
+            fly_ash_loi=p.fly_ash_loi_pct / 100,
+            removal=s.removal_pct / 100,
+            ca_s_ratio=s.ca_s_ratio,
+            caco3=s.limestone_caco3_pct / 100,
+            oxidation=s.oxidation_pct / 100,
+            gypsum_moisture=s.gypsum_moisture_pct / 100,
+            esp_efficiency=s.esp_efficiency_pct / 100,
+            injection_removal=s.injection_removal_pct / 100 if p.boiler == "pc" else 0.0,
+            injection_ca_s_ratio=s.injection_ca_s_ratio,
+            prescrubber_hcl_removal=s.prescrubber_hcl_removal_pct / 100,
+            gypsum_chloride_ppm=s.gypsum_chloride_ppm,
+            so2_limit_kg_per_gj=p.so2_limit_kg_per_gj,
+            so2_limit_avg_days=p.so2_limit_avg_days,
+        )
+
+
+def scenario_drivers(scenario: Scenario) -> Drivers:
+    """The deterministic drivers of a scenario, shape (1, days).
+
+    Heat input per unit is generation [MWh] × net heat rate [GJ/MWh]; the gas share of
+    each unit carries no sulfur or ash.  Coal quality is the blend of the day: shares are
+    of as-received tonnes, so every property (including HHV per kg) mixes by mass.
+    """
+    gen = horizon_generation(scenario)  # (days × units) [MWh]
+    hr = np.array([u.heat_rate_gj_per_mwh for u in scenario.units])
+    coal_frac = 1 - np.array([u.gas_heat_share_pct for u in scenario.units]) / 100
+    g = gen.to_numpy(dtype=float)
+    heat = g @ hr
+    coal_heat = g @ (hr * coal_frac)
+    shares = scenario.blend_matrix().to_numpy(dtype=float)  # (days × sources) [-]
+
+    def blend(attr: str) -> np.ndarray:
+        return shares @ np.array([getattr(s, attr) for s in scenario.coal_sources], dtype=float)
+
+    return Drivers(
+        generation_mwh=g.sum(axis=1)[None, :],
+        heat_input_gj=heat[None, :],
+        coal_heat_gj=coal_heat[None, :],
+        sulfur_pct=blend("sulfur_pct")[None, :],
+        ash_pct=blend("ash_pct")[None, :],
+        hhv_mj_per_kg=blend("hhv_mj_per_kg")[None, :],
+        chlorine_pct=blend("chlorine_pct")[None, :],
+    )
+
+
+# --------------------------------------------------------------------------- steps
+
+
+def coal_burned_t(coal_heat_gj, hhv_mj_per_kg):
+    """Coal burned [t] = coal heat input [GJ] / HHV as received [MJ/kg = GJ/t]."""
+    return coal_heat_gj / hhv_mj_per_kg
+
+
+def so2_formed_t(coal_t, sulfur_pct, conversion):
+    """SO2 leaving the boiler [t] from coal [t] of sulfur [%] at a conversion [-].
+
+    References
+    ----------
+    AP-42 Section 1.1.3.2: most fuel sulfur is oxidised to SO2 (about 95 % for
+    bituminous coal); the rest stays in the ash.
+    """
+    return coal_t * sulfur_pct / 100 * conversion * chem.SO2 / chem.S
+
+
+def hcl_formed_t(coal_t, chlorine_pct):
+    """HCl in the flue gas [t], all coal chlorine [%] taken to leave as HCl.
+
+    References
+    ----------
+    AP-42 Section 1.1.3.6: nearly all chlorine in coal is emitted as HCl.
+    """
+    return coal_t * chlorine_pct / 100 * chem.HCL / chem.CL
+
+
+def limestone_for_so2_t(so2_removed_t, ca_s_ratio, caco3):
+    """Limestone fed [t, dry] for SO2 removed [t] at Ca/S [mol/mol] and CaCO3 content [-]."""
+    return so2_removed_t / chem.SO2 * ca_s_ratio * chem.CACO3 / caco3
+
+
+def limestone_for_hcl_t(hcl_t, caco3):
+    """Limestone [t, dry] neutralising HCl [t]: CaCO3 + 2 HCl -> CaCl2 + H2O + CO2."""
+    return hcl_t / chem.HCL / 2 * chem.CACO3 / caco3
+
+
+def spent_sorbent_t(so2_captured_t, ca_s_ratio, limestone_t, caco3):
+    """Dry solids left by limestone that captured SO2 in a furnace, duct or bed [t].
+
+    The captured SO2 leaves as CaSO4; the excess calcium calcines to CaO; the limestone's
+    non-CaCO3 part stays as inerts.
+
+    Returns
+    -------
+    (caso4_t, cao_t, inerts_t)
+    """
+    mol = so2_captured_t / chem.SO2
+    return mol * chem.CASO4, mol * (ca_s_ratio - 1) * chem.CAO, limestone_t * (1 - caco3)
+
+
+def gypsum_solids_t(so2_removed_t, oxidation, ca_s_ratio, limestone_t, caco3, fly_ash_slip_t):
+    """Dry solids of the scrubber's dewatered cake [t], by component.
+
+    Gypsum CaSO4·2H2O from the oxidised share, CaSO3·½H2O from the rest, the unreacted
+    excess CaCO3 (Ca/S − 1), the limestone's inerts and the fly ash that passed the
+    precipitator.  Chlorides leave with the purge water, not the washed cake.
+
+    Returns
+    -------
+    (gypsum_t, sulfite_t, caco3_t, inerts_t, fly_ash_t)
+    """
+    mol = so2_removed_t / chem.SO2
+    return (mol * oxidation * chem.GYPSUM, mol * (1 - oxidation) * chem.HEMIHYDRATE_SULFITE,
+            mol * (ca_s_ratio - 1) * chem.CACO3, limestone_t * (1 - caco3), fly_ash_slip_t)
+
+
+def wet_cake_t(dry_t, moisture):
+    """Wet gypsum cake [t] from dry solids [t] at free moisture [-]."""
+    return dry_t / (1 - moisture)
+
+
+def fly_ash_with_carbon_t(noncarbon_t, loi):
+    """Fly ash as collected [t]: mineral and sorbent solids [t] plus unburned carbon.
+
+    LOI [-] is the carbon's share of the ash, so total = non-carbon / (1 − LOI).
+    """
+    return noncarbon_t / (1 - loi)
+
+
+def trailing_sum(x, days: int):
+    """Sum over the last ``days`` entries along the last axis (fewer at the start)."""
+    c = np.cumsum(x, axis=-1)
+    out = c.copy()
+    out[..., days:] = c[..., days:] - c[..., :-days]
+    return out
+
+
+def _ratio(num, den):
+    den = np.asarray(den, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
+
+
+# --------------------------------------------------------------------------- balance
+
+
+def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
+    """The whole daily balance, element-wise over (futures, days).
+
+    Returns a dict of arrays named as the columns of ``balance.csv``: masses [t], heat
+    [GJ], rates [kg/GJ, lb/MMBtu, kg/MWh], contents [%] and the sulfur accounting
+    ``s_in_t``, ``s_emitted_t``, ``s_gypsum_t``, ``s_fly_ash_t``, ``s_bottom_ash_t`` [t S]
+    that must close.
+    """
+    coal = coal_burned_t(d.coal_heat_gj, d.hhv_mj_per_kg)
+    s_in = coal * d.sulfur_pct / 100
+    so2_formed = so2_formed_t(coal, d.sulfur_pct, p.so2_conversion)
+    s_retained = s_in * (1 - p.so2_conversion)
+    ash = coal * d.ash_pct / 100
+    zero = np.zeros_like(coal)
+
+    if p.boiler == "cfb":
+        captured = so2_formed * p.removal
+        lime_bed = limestone_for_so2_t(captured, p.ca_s_ratio, p.caco3)
+        sorbent = sum(spent_sorbent_t(captured, p.ca_s_ratio, lime_bed, p.caco3))
+        fly_noncarbon = (ash + sorbent) * p.fly_ash_share
+        bottom = (ash + sorbent) * (1 - p.fly_ash_share)
+        s_captured = captured * chem.S / chem.SO2
+        s_fly = s_retained * p.fly_ash_share + s_captured * p.fly_ash_share
+        s_bottom = s_retained * (1 - p.fly_ash_share) + s_captured * (1 - p.fly_ash_share)
+        so2_removed, so2_emitted = captured, so2_formed - captured
+        lime_scrub, lime_inj, lime_hcl = lime_bed, zero, zero
+        scrub_removed = zero
+    else:
+        inj_removed = so2_formed * p.injection_removal
+        lime_inj = limestone_for_so2_t(inj_removed, p.injection_ca_s_ratio, p.caco3)
+        inj_solids = sum(spent_sorbent_t(inj_removed, p.injection_ca_s_ratio, lime_inj, p.caco3))
+        fly_noncarbon = ash * p.fly_ash_share + inj_solids
+        bottom = ash * (1 - p.fly_ash_share)
+        s_fly = s_retained * p.fly_ash_share + inj_removed * chem.S / chem.SO2
+        s_bottom = s_retained * (1 - p.fly_ash_share)
+        to_scrubber = so2_formed - inj_removed
+        scrub_removed = to_scrubber * p.removal
+        so2_removed = inj_removed + scrub_removed
+        so2_emitted = to_scrubber - scrub_removed
+        lime_scrub = limestone_for_so2_t(scrub_removed, p.ca_s_ratio, p.caco3)
+        hcl = hcl_formed_t(coal, d.chlorine_pct) * (1 - p.prescrubber_hcl_removal)
+        lime_hcl = limestone_for_hcl_t(hcl, p.caco3)
+
+    fly_total = fly_ash_with_carbon_t(fly_noncarbon, p.fly_ash_loi)
+    fly_collected = fly_total * p.esp_efficiency if p.boiler == "pc" else fly_total
+    fly_slip = fly_total - fly_collected
+    so3_pct = 100 * _ratio(s_fly / chem.S * chem.SO3, fly_total)
+    s_fly_collected = s_fly * (fly_collected / np.where(fly_total > 0, fly_total, 1.0))
+
+    if p.boiler == "cfb":
+        gyp_parts = (zero,) * 5
+    else:
+        gyp_parts = gypsum_solids_t(scrub_removed, p.oxidation, p.ca_s_ratio,
+                                    lime_scrub + lime_hcl, p.caco3, fly_slip)
+    gyp_dry = sum(gyp_parts)
+    gyp_wet = wet_cake_t(gyp_dry, p.gypsum_moisture) if p.boiler == "pc" else zero
+    purity = 100 * _ratio(gyp_parts[0], gyp_dry)
+    s_gypsum = scrub_removed * chem.S / chem.SO2 + (s_fly - s_fly_collected)
+
+    heat = d.heat_input_gj
+    emitted_kg = so2_emitted * 1000
+    rate = _ratio(emitted_kg, heat)
+    rolling = _ratio(trailing_sum(emitted_kg, p.so2_limit_avg_days),
+                     trailing_sum(np.broadcast_to(heat, emitted_kg.shape), p.so2_limit_avg_days))
+    limit = np.nan if p.so2_limit_kg_per_gj is None else p.so2_limit_kg_per_gj
+    chloride = np.where(gyp_dry > 0, p.gypsum_chloride_ppm, np.nan)
+    moisture = np.where(gyp_dry > 0, 100 * p.gypsum_moisture, np.nan)
+
+    b = np.broadcast_arrays
+    out = {
+        "generation_mwh": d.generation_mwh,
+        "coal_t": coal,
+        "heat_input_gj": heat,
+        "gas_heat_gj": heat - d.coal_heat_gj,
+        "sulfur_pct": d.sulfur_pct,
+        "so2_formed_t": so2_formed,
+        "so2_removed_t": so2_removed,
+        "so2_emitted_t": so2_emitted,
+        "so2_kg_per_gj": rate,
+        "limestone_t": lime_scrub + lime_inj + lime_hcl,
+        "gypsum_wet_t": gyp_wet,
+        "gypsum_purity_pct": purity,
+        "fly_ash_t": fly_collected,
+        "bottom_ash_t": bottom,
+        "limestone_scrubber_t": lime_scrub,
+        "limestone_hcl_t": lime_hcl,
+        "limestone_injection_t": lime_inj,
+        "gypsum_dry_t": gyp_dry,
+        "gypsum_moisture_pct": moisture,
+        "gypsum_chloride_ppm": chloride,
+        "fly_ash_loi_pct": np.where(fly_total > 0, 100 * p.fly_ash_loi, np.nan),
+        "fly_ash_so3_pct": so3_pct,
+        "so2_lb_per_mmbtu": rate * KG_PER_GJ_TO_LB_PER_MMBTU,
+        "so2_kg_per_mwh": _ratio(emitted_kg, d.generation_mwh),
+        "so2_rolling_kg_per_gj": rolling,
+        "so2_limit_kg_per_gj": np.full(np.shape(coal), limit),
+        "s_in_t": s_in,
+        "s_emitted_t": so2_emitted * chem.S / chem.SO2,
+        "s_gypsum_t": s_gypsum,
+        "s_fly_ash_t": s_fly_collected,
+        "s_bottom_ash_t": s_bottom,
+    }
+    shape = np.broadcast_shapes(*(np.shape(v) for v in out.values()))
+    return {k: np.broadcast_to(v, shape) for k, v in zip(out, b(*out.values()))}
+
+
+#: Columns of ``balance.csv``: the contract's first, then the additions.
+BALANCE_COLUMNS = (
+    "date", "coal_t", "heat_input_gj", "so2_formed_t", "so2_removed_t", "so2_emitted_t",
+    "so2_kg_per_gj", "limestone_t", "gypsum_wet_t", "gypsum_purity_pct", "fly_ash_t",
+    "bottom_ash_t",
+    "generation_mwh", "gas_heat_gj", "sulfur_pct", "limestone_scrubber_t", "limestone_hcl_t",
+    "limestone_injection_t", "gypsum_dry_t", "gypsum_moisture_pct", "gypsum_chloride_ppm",
+    "fly_ash_loi_pct", "fly_ash_so3_pct", "so2_lb_per_mmbtu", "so2_kg_per_mwh",
+    "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj", "so2_over_limit",
+)
+
+
+def balance_frame(scenario: Scenario) -> pd.DataFrame:
+    """The deterministic daily balance of a scenario, one row per planned day.
+
+    Columns as `BALANCE_COLUMNS`; ``so2_over_limit`` is true where the rolling average
+    [kg/GJ] is above the permit limit.
+    """
+    res = mass_balance(scenario_drivers(scenario), BalanceParams.from_scenario(scenario))
+    frame = pd.DataFrame({k: v[0] for k, v in res.items()})
+    frame.insert(0, "date", scenario.dates)
+    frame["so2_over_limit"] = frame["so2_rolling_kg_per_gj"] > frame["so2_limit_kg_per_gj"]
+    return frame[list(BALANCE_COLUMNS)]

@@ -1,0 +1,117 @@
+"""The ``reagentplan`` command.  Handlers only parse arguments, call the library and
+print; bad input exits with code 2 and a message naming sheet, row and column.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import CAUTION, __version__
+from .errors import ScenarioError
+
+EXIT_OK, EXIT_BREACH, EXIT_BAD_INPUT = 0, 1, 2
+
+
+def _cmd_template(args) -> int:
+    from .template import write_template
+
+    path = write_template(args.path)
+    print(f"Wrote the blank scenario workbook to {path}")
+    return EXIT_OK
+
+
+def _cmd_check(args) -> int:
+    from .scenario import load_scenario
+    from .summary import describe_scenario
+
+    scenario = load_scenario(args.workbook)
+    print(f"{args.workbook}: the workbook is sound.")
+    print(describe_scenario(scenario))
+    return EXIT_OK
+
+
+def _cmd_balance(args) -> int:
+    from .balance import balance_frame
+    from .report import staged_output, write_csv
+    from .scenario import load_scenario
+    from .summary import describe_balance
+
+    scenario = load_scenario(args.workbook)
+    frame = balance_frame(scenario)
+    with staged_output(args.out) as tmp:
+        write_csv(frame, tmp / "balance.csv")
+    print(describe_balance(scenario, frame))
+    print(f"\nWrote {Path(args.out) / 'balance.csv'}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
+def _cmd_demo(args) -> int:
+    from demo.build_demo import build_demo_workbook
+
+    from .balance import balance_frame
+    from .report import staged_output, write_csv
+    from .scenario import load_scenario
+    from .summary import describe_balance
+
+    out = Path(args.out)
+    with staged_output(out) as tmp:
+        build_demo_workbook(tmp / "demo_station.xlsx")
+        scenario = load_scenario(tmp / "demo_station.xlsx")
+        frame = balance_frame(scenario)
+        write_csv(frame, tmp / "balance.csv")
+    print(describe_balance(scenario, frame))
+    print(f"\nWrote {out / 'demo_station.xlsx'} and {out / 'balance.csv'}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="reagentplan",
+        description="Scrubber limestone and byproduct planning for coal-fired stations.",
+        epilog=CAUTION,
+    )
+    parser.add_argument("--version", action="version", version=f"reagentplan {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    p = sub.add_parser("demo", help="build the demo station's workbook and run it end to end")
+    p.add_argument("--out", default="reagentplan-demo", help="output folder (default: %(default)s)")
+    p.set_defaults(func=_cmd_demo)
+
+    p = sub.add_parser("template", help="write the blank, annotated scenario workbook")
+    p.add_argument("path", help="where to write the .xlsx")
+    p.set_defaults(func=_cmd_template)
+
+    p = sub.add_parser("check", help="validate a scenario workbook")
+    p.add_argument("workbook")
+    p.set_defaults(func=_cmd_check)
+
+    p = sub.add_parser("balance", help="the deterministic daily mass balance (balance.csv)")
+    p.add_argument("workbook")
+    p.add_argument("--out", required=True, help="output folder")
+    p.set_defaults(func=_cmd_balance)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except ScenarioError as exc:
+        print(exc.report(), file=sys.stderr)
+        print("Nothing was written. Fix the cells named above and run again.", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        print(f"Could not read or write a file: {exc}. Nothing was written.", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("Interrupted; nothing was written.", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

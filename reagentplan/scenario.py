@@ -1,0 +1,813 @@
+"""The typed scenario, and the one place where input is validated.
+
+`load_scenario` reads a workbook, checks every cell against `reagentplan.schema`,
+converts US customary columns to metric (`reagentplan.units`), checks what the sheets
+say about each other, and returns a `Scenario`.  Every problem found is collected and
+raised together as one `ScenarioError` naming sheet, Excel row and column.  Past this
+boundary the rest of the library trusts the types.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import difflib
+import math
+import os
+from dataclasses import dataclass, fields
+from typing import Any, BinaryIO
+
+import numpy as np
+import pandas as pd
+
+from . import schema
+from .errors import Problem, ScenarioError
+from .schema import Field, Sheet
+from .units import BY_US_NAME, VARIANTS
+from .workbook import RawSheet, read_raw
+
+DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
+MONTH_NAMES = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
+SHARE_TOLERANCE_PCT = 0.01
+
+
+# --------------------------------------------------------------------------- types
+
+
+@dataclass(frozen=True)
+class Plant:
+    name: str
+    start_date: dt.date
+    horizon_days: int
+    currency: str
+    boiler: str
+    fly_ash_share_pct: float
+    so2_conversion_pct: float
+    fly_ash_loi_pct: float
+    so2_limit_kg_per_gj: float | None
+    so2_limit_avg_days: int
+    shortage_penalty_per_t: float
+    overflow_penalty_per_t: float
+
+    @property
+    def dates(self) -> pd.DatetimeIndex:
+        """The planned days, start to end inclusive."""
+        return pd.date_range(self.start_date, periods=self.horizon_days, freq="D")
+
+    @property
+    def end_date(self) -> dt.date:
+        return self.start_date + dt.timedelta(days=self.horizon_days - 1)
+
+
+@dataclass(frozen=True)
+class Scrubber:
+    removal_pct: float
+    ca_s_ratio: float
+    limestone_caco3_pct: float
+    oxidation_pct: float
+    gypsum_moisture_pct: float
+    esp_efficiency_pct: float
+    injection_removal_pct: float
+    injection_ca_s_ratio: float
+    prescrubber_hcl_removal_pct: float
+    gypsum_chloride_ppm: float
+
+
+@dataclass(frozen=True)
+class Unit:
+    unit: str
+    capacity_mw: float
+    heat_rate_gj_per_mwh: float
+    gas_heat_share_pct: float
+
+
+@dataclass(frozen=True)
+class CoalSource:
+    source: str
+    sulfur_pct: float
+    ash_pct: float
+    moisture_pct: float | None
+    hhv_mj_per_kg: float
+    chlorine_pct: float
+    sulfur_sd_pct: float
+
+
+@dataclass(frozen=True)
+class Store:
+    store: str
+    capacity_t: float
+    safety_t: float
+    initial_t: float
+
+
+@dataclass(frozen=True)
+class SupplierLane:
+    supplier: str
+    mode: str
+    load_t: float
+    max_loads_per_day: int
+    lead_days: int
+    weekdays: frozenset[int]
+    price_per_t: float
+    freight_per_load: float
+    min_t_per_month: float | None
+    max_t_per_month: float | None
+    caco3_pct: float | None
+
+    @property
+    def lane(self) -> str:
+        return f"{self.supplier} {self.mode}"
+
+    @property
+    def delivered_cost_per_t(self) -> float:
+        """Price plus freight spread over a full load [money/t]."""
+        return self.price_per_t + self.freight_per_load / self.load_t
+
+
+@dataclass(frozen=True)
+class BuyerLane:
+    buyer: str
+    material: str
+    mode: str
+    load_t: float
+    max_loads_per_day: int
+    weekdays: frozenset[int]
+    price_per_t: float
+    min_t_per_month: float | None
+    max_t_per_month: float | None
+    min_purity_pct: float | None
+    max_moisture_pct: float | None
+    max_chloride_ppm: float | None
+    max_loi_pct: float | None
+    max_so3_pct: float | None
+    months: frozenset[int]
+
+    @property
+    def lane(self) -> str:
+        return f"{self.buyer} {self.material} {self.mode}"
+
+
+@dataclass(frozen=True)
+class DisposalSite:
+    site: str
+    material: str
+    cost_per_t: float
+    max_t_per_day: float | None
+    airspace_t: float | None
+
+
+@dataclass(frozen=True)
+class FirmOrder:
+    date: dt.date
+    material: str
+    party: str
+    mode: str | None
+    loads: int
+    tonnes: float
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """Everything the planning stages need, in metric units (t, MWh, GJ, MJ/kg, %).
+
+    Table data that is indexed by date is held as DataFrames:
+    ``generation`` (date, unit, mwh), ``coal_blend`` (date, source, share_pct),
+    ``generation_history`` and ``coal_quality_history`` (or ``None``).
+    """
+
+    plant: Plant
+    scrubber: Scrubber
+    units: tuple[Unit, ...]
+    generation: pd.DataFrame
+    coal_sources: tuple[CoalSource, ...]
+    coal_blend: pd.DataFrame
+    storage: dict[str, Store]
+    suppliers: tuple[SupplierLane, ...]
+    buyers: tuple[BuyerLane, ...]
+    disposal: tuple[DisposalSite, ...]
+    firm_orders: tuple[FirmOrder, ...] = ()
+    generation_history: pd.DataFrame | None = None
+    coal_quality_history: pd.DataFrame | None = None
+    source_name: str = ""
+
+    @property
+    def dates(self) -> pd.DatetimeIndex:
+        return self.plant.dates
+
+    def source(self, name: str) -> CoalSource:
+        return next(s for s in self.coal_sources if s.source == name)
+
+    def generation_matrix(self) -> pd.DataFrame:
+        """Generation [MWh] as a (date × unit) table over the horizon; NaN where not given."""
+        table = self.generation.pivot(index="date", columns="unit", values="mwh")
+        return table.reindex(index=self.dates, columns=[u.unit for u in self.units])
+
+    def blend_matrix(self) -> pd.DataFrame:
+        """Blend share [fraction] per (date × source) over the horizon, held forward."""
+        table = self.coal_blend.pivot(index="date", columns="source", values="share_pct")
+        table = table.fillna(0.0) / 100.0
+        names = [s.source for s in self.coal_sources]
+        table = table.reindex(columns=names, fill_value=0.0)
+        full = table.reindex(table.index.union(self.dates)).ffill()
+        return full.reindex(self.dates)
+
+
+# --------------------------------------------------------------------------- cells
+
+
+class _CellError(Exception):
+    def __init__(self, found: str, expected: str | None = None):
+        self.found, self.expected = found, expected
+
+
+def _describe(value: Any) -> str:
+    if isinstance(value, str):
+        return f"'{value}'"
+    if isinstance(value, (dt.datetime, dt.date)):
+        return f"the date {value:%Y-%m-%d}"
+    return f"{value!r}"
+
+
+def _parse_number(value: Any) -> float:
+    if isinstance(value, bool):
+        raise _CellError(f"found {value}")
+    if isinstance(value, (int, float)):
+        x = float(value)
+    elif isinstance(value, str):
+        text = value.strip().replace(",", "")
+        try:
+            x = float(text)
+        except ValueError:
+            raise _CellError(f"found {_describe(value)}") from None
+    elif isinstance(value, (dt.date, dt.datetime)):
+        raise _CellError(f"found {_describe(value)}")
+    else:
+        raise _CellError(f"found {_describe(value)}")
+    if not math.isfinite(x):
+        raise _CellError(f"found {_describe(value)}")
+    return x
+
+
+def _parse_date(value: Any) -> dt.date:
+    if isinstance(value, dt.datetime):
+        if value.time() != dt.time(0):
+            raise _CellError(f"found {value:%Y-%m-%d %H:%M} (a time of day)", "a whole day, no time")
+        return value.date()
+    if isinstance(value, dt.date):
+        return value
+    if isinstance(value, str):
+        try:
+            return dt.date.fromisoformat(value.strip())
+        except ValueError:
+            raise _CellError(f"found {_describe(value)}") from None
+    raise _CellError(f"found {_describe(value)}")
+
+
+def _parse_names(value: Any, names: tuple[str, ...], what: str) -> frozenset[int]:
+    """Parse ``Mon-Fri``, ``Mon,Wed,Fri``, ``Nov-Mar`` (wrapping) into indices."""
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return frozenset(range(len(names)))
+    if not isinstance(value, str):
+        raise _CellError(f"found {_describe(value)}")
+    chosen: set[int] = set()
+    n = len(names)
+    for part in value.replace(";", ",").split(","):
+        part = part.strip().lower()
+        if not part:
+            continue
+        ends = [p.strip()[:3] for p in part.split("-")]
+        if len(ends) > 2 or any(e not in names for e in ends):
+            raise _CellError(f"found {_describe(value)} ('{part}' is not a {what} or range)")
+        a = names.index(ends[0])
+        b = names.index(ends[-1])
+        k = a
+        while True:
+            chosen.add(k)
+            if k == b:
+                break
+            k = (k + 1) % n
+    if not chosen:
+        raise _CellError(f"found {_describe(value)}")
+    return frozenset(chosen)
+
+
+def _parse_cell(f: Field, value: Any) -> Any:
+    """Parse one non-empty cell; raise `_CellError` with what was found."""
+    if f.kind == "text":
+        if isinstance(value, float) and value.is_integer():
+            value = int(value)
+        if isinstance(value, (dt.date, dt.datetime, bool)):
+            raise _CellError(f"found {_describe(value)}")
+        return str(value).strip()
+    if f.kind == "code":
+        text = str(value).strip().lower().replace(" ", "_")
+        if text not in f.choices:
+            raise _CellError(f"found {_describe(value)}")
+        return text
+    if f.kind == "date":
+        return _parse_date(value)
+    if f.kind == "weekdays":
+        return _parse_names(value, DAY_NAMES, "weekday")
+    if f.kind == "months":
+        return _parse_names(value, MONTH_NAMES, "month")
+    x = _parse_number(value)
+    if f.kind == "integer":
+        if not float(x).is_integer():
+            raise _CellError(f"found {_describe(value)}")
+        x = int(x)
+    if (f.lo is not None and x < f.lo) or (f.hi is not None and x > f.hi):
+        raise _CellError(f"found {_describe(value)}")
+    return x
+
+
+def _empty(value: Any) -> bool:
+    return value is None or (isinstance(value, str) and not value.strip())
+
+
+# --------------------------------------------------------------------------- sheets
+
+
+class _Collector:
+    """Gathers problems; `fail` raises them all at once."""
+
+    def __init__(self) -> None:
+        self.problems: list[Problem] = []
+
+    def add(self, sheet: str | None, row: int | None, column: str | None, found: str,
+            expected: str) -> None:
+        self.problems.append(Problem(sheet, row, column, found, expected))
+
+    def fail(self) -> None:
+        if self.problems:
+            raise ScenarioError(self.problems)
+
+
+def _did_you_mean(name: str, options: list[str]) -> str:
+    close = difflib.get_close_matches(name, options, n=1, cutoff=0.6)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _resolve_columns(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, tuple[int, float]]:
+    """Map each canonical field to (column index, factor to metric); check the header."""
+    known = {f.name for f in sheet.fields}
+    accepted = sorted(known | {VARIANTS[n].us for n in known if n in VARIANTS})
+    found: dict[str, tuple[int, float]] = {}
+    written_as: dict[str, str] = {}
+    for j, name in enumerate(raw.header):
+        if name is None:
+            if any(r[1][j] is not None for r in raw.rows if j < len(r[1])):
+                out.add(sheet.name, 1, f"column {j + 1}", "a column with values but no header",
+                        "a header naming the column, one of " + ", ".join(accepted))
+            continue
+        if name in schema.NOTE_COLUMNS:
+            continue
+        if name in known:
+            canonical, factor = name, 1.0
+        elif name in BY_US_NAME and BY_US_NAME[name].metric in known:
+            canonical, factor = BY_US_NAME[name].metric, BY_US_NAME[name].factor
+        else:
+            out.add(sheet.name, 1, str(raw.header_as_written[j]),
+                    f"unknown column{_did_you_mean(name, accepted)}",
+                    "one of " + ", ".join(accepted) + " (or a 'note' column)")
+            continue
+        if canonical in found:
+            other = written_as[canonical]
+            what = ("both unit variants" if other != name else "the same column twice")
+            out.add(sheet.name, 1, name, f"{what} of one column ('{other}' and '{name}')",
+                    "only one of them")
+            continue
+        found[canonical] = (j, factor)
+        written_as[canonical] = name
+    for f in sheet.fields:
+        if f.required and f.name not in found:
+            alt = f" or '{VARIANTS[f.name].us}'" if f.name in VARIANTS else ""
+            out.add(sheet.name, 1, f.name, "the column is missing",
+                    f"a column '{f.name}'{alt}: {f.note}")
+    return found
+
+
+def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector) -> list[dict[str, Any]]:
+    """Parse a table sheet into records (with ``_row``, the Excel row)."""
+    cols = _resolve_columns(raw, sheet, out)
+    records: list[dict[str, Any]] = []
+    seen: dict[tuple, int] = {}
+    for excel_row, values in raw.rows:
+        rec: dict[str, Any] = {"_row": excel_row}
+        ok = True
+        for f in sheet.fields:
+            if f.name not in cols:
+                rec[f.name] = f.default if f.kind not in ("weekdays", "months") else _parse_cell(f, None)
+                continue
+            j, factor = cols[f.name]
+            value = values[j] if j < len(values) else None
+            header = raw.header[j] or f.name
+            if _empty(value):
+                if f.required:
+                    out.add(sheet.name, excel_row, header, "the cell is empty", f.expected())
+                    ok = False
+                rec[f.name] = (f.default if f.kind not in ("weekdays", "months")
+                               else _parse_cell(f, None))
+                continue
+            try:
+                if factor != 1.0:
+                    x = _parse_number(value) * factor
+                    rec[f.name] = _parse_cell(f, x)
+                else:
+                    rec[f.name] = _parse_cell(f, value)
+            except _CellError as e:
+                found = e.found
+                expected = e.expected or f.expected()
+                if factor != 1.0 and f.kind == "number":
+                    expected += " (after conversion to metric)"
+                out.add(sheet.name, excel_row, header, found, expected)
+                ok = False
+        if not ok:
+            continue
+        if sheet.key:
+            key = tuple(rec.get(k) for k in sheet.key)
+            if key in seen:
+                out.add(sheet.name, excel_row, ", ".join(sheet.key),
+                        f"a duplicate of row {seen[key]} ({', '.join(map(_show, key))})",
+                        "one row per " + " and ".join(sheet.key))
+                continue
+            seen[key] = excel_row
+        records.append(rec)
+    return records
+
+
+def _show(v: Any) -> str:
+    if isinstance(v, dt.date):
+        return f"{v:%Y-%m-%d}"
+    return "(empty)" if v is None else str(v)
+
+
+def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, Any]:
+    header = raw.header
+    if "key" not in header or "value" not in header:
+        out.add(sheet.name, 1, "key" if "key" not in header else "value", "the column is missing",
+                "columns 'key' and 'value' (and optionally 'note')")
+        return {}
+    for j, h in enumerate(header):
+        if h is not None and h not in ("key", "value") and h not in schema.NOTE_COLUMNS:
+            out.add(sheet.name, 1, str(raw.header_as_written[j]), "unknown column",
+                    "only key, value and note")
+    jk, jv = header.index("key"), header.index("value")
+    known = [f.name for f in sheet.fields]
+    accepted = sorted(set(known) | {VARIANTS[n].us for n in known if n in VARIANTS})
+    values: dict[str, Any] = {}
+    rows: dict[str, int] = {}
+    bad: set[str] = set()
+    for excel_row, row in raw.rows:
+        key = _normalise_key(row[jk] if jk < len(row) else None)
+        value = row[jv] if jv < len(row) else None
+        if key is None:
+            out.add(sheet.name, excel_row, "key", "a value with no key", "a key, one of " + ", ".join(known))
+            continue
+        factor = 1.0
+        if key in BY_US_NAME and BY_US_NAME[key].metric in known:
+            canonical, factor = BY_US_NAME[key].metric, BY_US_NAME[key].factor
+        elif key in known:
+            canonical = key
+        else:
+            out.add(sheet.name, excel_row, "key", f"unknown key '{key}'{_did_you_mean(key, accepted)}",
+                    "one of " + ", ".join(accepted))
+            continue
+        if canonical in rows:
+            out.add(sheet.name, excel_row, "key",
+                    f"'{key}' is given again (first in row {rows[canonical]})",
+                    "each key once (and only one unit variant of it)")
+            continue
+        rows[canonical] = excel_row
+        f = sheet.field(canonical)
+        if _empty(value):
+            continue
+        try:
+            values[canonical] = _parse_cell(f, _parse_number(value) * factor if factor != 1.0 else value)
+        except _CellError as e:
+            bad.add(canonical)
+            out.add(sheet.name, excel_row, f"value ({key})", e.found, e.expected or f.expected())
+    for f in sheet.fields:
+        if f.name not in values:
+            if f.required and f.name not in bad:
+                where = rows.get(f.name)
+                out.add(sheet.name, where, f"value ({f.name})",
+                        "no value" if where else f"the key '{f.name}' is missing",
+                        f.expected() + f": {f.note}")
+            values.setdefault(f.name, f.default)
+    return values
+
+
+def _normalise_key(value: Any) -> str | None:
+    if _empty(value):
+        return None
+    return str(value).strip().lower()
+
+
+# --------------------------------------------------------------------------- load
+
+
+def load_scenario(source: str | os.PathLike | BinaryIO | bytes) -> Scenario:
+    """Read and validate a scenario workbook.
+
+    Parameters
+    ----------
+    source : path, binary file or bytes of an .xlsx workbook.
+
+    Returns
+    -------
+    Scenario
+        All quantities metric: tonnes [t], energy [MWh, GJ], heating value [MJ/kg],
+        shares and contents in percent [%].
+
+    Raises
+    ------
+    ScenarioError
+        Listing every problem with its sheet, Excel row and column.
+    """
+    raw = read_raw(source)
+    name = os.fspath(source) if isinstance(source, (str, os.PathLike)) else "upload"
+    return _build(raw, os.path.basename(name))
+
+
+def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
+    out = _Collector()
+    by_name = {k.strip().lower(): v for k, v in raw.items()}
+    names = [s.name for s in schema.SHEETS]
+    for title in raw:
+        key = title.strip().lower()
+        if key in schema.SHEETS_BY_NAME or key in schema.NOTE_SHEETS or key.startswith("notes"):
+            continue
+        out.add(title, None, None, f"unknown sheet{_did_you_mean(key, names)}",
+                "one of " + ", ".join(names) + " (or a 'notes' sheet for free notes)")
+    for s in schema.SHEETS:
+        if s.required and s.name not in by_name:
+            out.add(s.name, None, None, "the sheet is missing", f"a sheet '{s.name}' ({s.note or 'see the template'})")
+    out.fail()
+
+    def table(sheet: Sheet) -> list[dict[str, Any]]:
+        if sheet.name not in by_name:
+            return []
+        return _read_table(by_name[sheet.name], sheet, out)
+
+    plant_kv = _read_keyvalue(by_name["plant"], schema.PLANT, out)
+    scrub_kv = _read_keyvalue(by_name["scrubber"], schema.SCRUBBER, out)
+    recs = {s.name: table(s) for s in schema.SHEETS if not s.keyvalue}
+    has_gen_history = "generation_history" in by_name
+    has_quality_history = "coal_quality_history" in by_name
+    out.fail()
+
+    plant = _make(Plant, plant_kv)
+    if plant.fly_ash_share_pct is None:
+        plant = _replace(plant, fly_ash_share_pct=80.0 if plant.boiler == "pc" else 60.0)
+    scrubber = _make(Scrubber, scrub_kv)
+    units = tuple(_make(Unit, r) for r in recs["units"])
+    sources = tuple(_make(CoalSource, r) for r in recs["coal_sources"])
+    stores = {r["store"]: _make(Store, r) for r in recs["storage"]}
+    suppliers = tuple(_make(SupplierLane, r) for r in recs["suppliers"])
+    buyers = tuple(_make(BuyerLane, r) for r in recs["buyers"])
+    disposal = tuple(_make(DisposalSite, r) for r in recs["disposal"])
+
+    _check_plant(plant, scrubber, out)
+    for sheet_name, what in (("units", units), ("coal_sources", sources), ("suppliers", suppliers)):
+        if not what:
+            out.add(sheet_name, None, None, "the sheet has no rows", "at least one row")
+    _check_storage(plant, recs["storage"], out)
+    _check_monthly(recs["suppliers"], "suppliers", out)
+    _check_monthly(recs["buyers"], "buyers", out)
+    _check_quality_limits(recs["buyers"], out)
+
+    unit_names = {u.unit: u for u in units}
+    generation = _check_dated(recs["generation"], "generation", "unit", unit_names, plant, out,
+                              inside_horizon=True)
+    for r in recs["generation"]:
+        u = unit_names.get(r["unit"])
+        if u is not None and r["mwh"] > u.capacity_mw * 24 * 1.0001:
+            out.add("generation", r["_row"], "mwh",
+                    f"found {r['mwh']:g} MWh for {u.unit}",
+                    f"at most {u.capacity_mw * 24:g} MWh (capacity {u.capacity_mw:g} MW x 24 h)")
+    history = None
+    if has_gen_history:
+        history = _check_dated(recs["generation_history"], "generation_history", "unit", unit_names,
+                               plant, out, inside_horizon=False)
+    if not has_gen_history and not out.problems:
+        _check_generation_coverage(generation, units, plant, out)
+
+    source_names = {s.source: s for s in sources}
+    blend = _check_blend(recs["coal_blend"], source_names, plant, out)
+    quality = None
+    if has_quality_history:
+        quality = _check_dated(recs["coal_quality_history"], "coal_quality_history", "source",
+                               source_names, plant, out, inside_horizon=False, check_order=True)
+    firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
+    out.fail()
+    return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
+                    disposal, firm, history, quality, source_name)
+
+
+def _make(cls, record: dict[str, Any]):
+    return cls(**{f.name: record.get(f.name) for f in fields(cls)})
+
+
+def _replace(obj, **changes):
+    import dataclasses
+
+    return dataclasses.replace(obj, **changes)
+
+
+def _check_plant(plant: Plant, scrubber: Scrubber, out: _Collector) -> None:
+    if plant.boiler == "cfb" and scrubber.injection_removal_pct > 0:
+        out.add("scrubber", None, "value (injection_removal_pct)",
+                f"found {scrubber.injection_removal_pct:g} with boiler = cfb",
+                "0 for a fluidised bed (its sorbent goes into the bed: use removal_pct)")
+
+
+def _check_storage(plant: Plant, records: list[dict[str, Any]], out: _Collector) -> None:
+    have = {r["store"] for r in records}
+    needed = [s for s in schema.STORES if not (s == "gypsum" and plant.boiler == "cfb")]
+    for s in needed:
+        if s not in have:
+            out.add("storage", None, "store", f"no row for the store '{s}'",
+                    "one row for each of " + ", ".join(needed))
+    for r in records:
+        if r["safety_t"] > r["capacity_t"]:
+            out.add("storage", r["_row"], "safety_t",
+                    f"safety stock {r['safety_t']:g} t is above capacity {r['capacity_t']:g} t",
+                    "a safety stock no larger than the capacity")
+        if r["initial_t"] > r["capacity_t"]:
+            out.add("storage", r["_row"], "initial_t",
+                    f"initial level {r['initial_t']:g} t is above capacity {r['capacity_t']:g} t",
+                    "an initial level no larger than the capacity")
+
+
+def _check_monthly(records: list[dict[str, Any]], sheet: str, out: _Collector) -> None:
+    for r in records:
+        lo, hi = r.get("min_t_per_month"), r.get("max_t_per_month")
+        if lo is not None and hi is not None and lo > hi:
+            out.add(sheet, r["_row"], "min_t_per_month",
+                    f"the monthly minimum {lo:g} t is above the maximum {hi:g} t",
+                    "a minimum no larger than the maximum")
+
+
+def _check_quality_limits(records: list[dict[str, Any]], out: _Collector) -> None:
+    gypsum_only = ("min_purity_pct", "max_moisture_pct", "max_chloride_ppm")
+    ash_only = ("max_loi_pct", "max_so3_pct")
+    for r in records:
+        wrong = ash_only if r["material"] == "gypsum" else gypsum_only if r["material"] == "fly_ash" else ()
+        for col in wrong:
+            if r.get(col) is not None:
+                out.add("buyers", r["_row"], col, f"a limit for {r['material']}",
+                        f"this column empty for {r['material']} (it applies to "
+                        f"{'fly ash' if col in ash_only else 'gypsum'})")
+
+
+def _check_dated(records: list[dict[str, Any]], sheet: str, ref_col: str, known: dict,
+                 plant: Plant, out: _Collector, inside_horizon: bool,
+                 check_order: bool = True) -> pd.DataFrame:
+    ref_sheet = "units" if ref_col == "unit" else "coal_sources"
+    previous: dt.date | None = None
+    for r in records:
+        d = r["date"]
+        if r[ref_col] not in known:
+            out.add(sheet, r["_row"], ref_col, f"unknown {ref_col} '{r[ref_col]}'"
+                    f"{_did_you_mean(r[ref_col], list(known))}",
+                    f"a {ref_col} listed in the '{ref_sheet}' sheet: " + ", ".join(known))
+        if inside_horizon and not plant.start_date <= d <= plant.end_date:
+            out.add(sheet, r["_row"], "date", f"the date {d:%Y-%m-%d} is outside the horizon",
+                    f"a date from {plant.start_date:%Y-%m-%d} to {plant.end_date:%Y-%m-%d}"
+                    " (plant start_date and horizon_days)")
+        if not inside_horizon and d >= plant.start_date:
+            out.add(sheet, r["_row"], "date", f"the date {d:%Y-%m-%d} is not in the past",
+                    f"history before the start date {plant.start_date:%Y-%m-%d}")
+        if check_order and previous is not None and d < previous:
+            out.add(sheet, r["_row"], "date",
+                    f"the date {d:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
+                    "rows in date order")
+        previous = d
+    cols = [f.name for f in schema.SHEETS_BY_NAME[sheet].fields]
+    frame = pd.DataFrame([{c: r[c] for c in cols} for r in records], columns=cols)
+    frame["date"] = pd.to_datetime(frame["date"])
+    for c in cols:
+        if c not in ("date", ref_col):
+            frame[c] = frame[c].astype(float)
+    return frame
+
+
+def _check_generation_coverage(generation: pd.DataFrame, units: tuple[Unit, ...], plant: Plant,
+                               out: _Collector) -> None:
+    dates = plant.dates
+    for u in units:
+        have = pd.DatetimeIndex(generation.loc[generation["unit"] == u.unit, "date"])
+        missing = dates.difference(have)
+        if len(missing):
+            out.add("generation", None, "date",
+                    f"{u.unit} has no generation on {len(missing)} of {len(dates)} planned days "
+                    f"(first {missing[0]:%Y-%m-%d})",
+                    "a row for every unit and day of the horizon, or a 'generation_history' "
+                    "sheet to forecast the days not given")
+
+
+def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
+                 out: _Collector) -> pd.DataFrame:
+    previous = None
+    totals: dict[dt.date, list] = {}
+    for r in records:
+        if r["source"] not in sources:
+            out.add("coal_blend", r["_row"], "source", f"unknown source '{r['source']}'"
+                    f"{_did_you_mean(r['source'], list(sources))}",
+                    "a source listed in the 'coal_sources' sheet: " + ", ".join(sources))
+        if r["date"] > plant.end_date:
+            out.add("coal_blend", r["_row"], "date",
+                    f"the date {r['date']:%Y-%m-%d} is after the horizon's last day "
+                    f"{plant.end_date:%Y-%m-%d}", "a date inside the horizon")
+        if previous is not None and r["date"] < previous:
+            out.add("coal_blend", r["_row"], "date",
+                    f"the date {r['date']:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
+                    "rows in date order")
+        previous = r["date"]
+        totals.setdefault(r["date"], []).append(r)
+    if not records:
+        out.add("coal_blend", None, None, "the sheet has no rows",
+                "at least one date with shares summing to 100")
+    elif min(totals) > plant.start_date:
+        out.add("coal_blend", records[0]["_row"], "date",
+                f"the first blend starts {min(totals):%Y-%m-%d}, after the start date "
+                f"{plant.start_date:%Y-%m-%d}", "a blend in force on the first planned day")
+    for d, rows in totals.items():
+        total = sum(r["share_pct"] for r in rows)
+        if abs(total - 100.0) > SHARE_TOLERANCE_PCT:
+            out.add("coal_blend", rows[0]["_row"], "share_pct",
+                    f"the shares of {d:%Y-%m-%d} sum to {total:g} % (rows "
+                    f"{', '.join(str(r['_row']) for r in rows)})", "shares of one date summing to 100")
+    frame = pd.DataFrame([{k: r[k] for k in ("date", "source", "share_pct")} for r in records],
+                         columns=["date", "source", "share_pct"])
+    frame["date"] = pd.to_datetime(frame["date"])
+    frame["share_pct"] = frame["share_pct"].astype(float)
+    # keep only the blend in force at the start and later ones
+    if len(frame):
+        first = frame.loc[frame["date"] <= pd.Timestamp(plant.start_date), "date"].max()
+        if pd.notna(first):
+            frame = frame[frame["date"] >= first].reset_index(drop=True)
+    return frame
+
+
+def _check_firm(records: list[dict[str, Any]], plant: Plant, suppliers, buyers, disposal,
+                out: _Collector) -> tuple[FirmOrder, ...]:
+    orders = []
+    for r in records:
+        if not plant.start_date <= r["date"] <= plant.end_date:
+            out.add("firm_orders", r["_row"], "date", f"the date {r['date']:%Y-%m-%d} is outside the horizon",
+                    f"a date from {plant.start_date:%Y-%m-%d} to {plant.end_date:%Y-%m-%d}")
+            continue
+        if r["material"] == "limestone":
+            lanes = [s for s in suppliers if s.supplier == r["party"]]
+            sheet, names = "suppliers", sorted({s.supplier for s in suppliers})
+        else:
+            lanes = [b for b in buyers if b.buyer == r["party"] and b.material == r["material"]]
+            lanes += [d for d in disposal if d.site == r["party"] and d.material == r["material"]]
+            sheet = "buyers' or 'disposal"
+            names = sorted({b.buyer for b in buyers if b.material == r["material"]}
+                           | {d.site for d in disposal if d.material == r["material"]})
+        if r["mode"] is not None:
+            lanes = [x for x in lanes if getattr(x, "mode", r["mode"]) == r["mode"]]
+        if not lanes:
+            out.add("firm_orders", r["_row"], "party",
+                    f"no {r['material']} lane for '{r['party']}'"
+                    + (f" by {r['mode']}" if r["mode"] else "") + _did_you_mean(r["party"], names),
+                    f"a party of the '{sheet}' sheet for {r['material']}: " + ", ".join(names))
+            continue
+        if len(lanes) > 1:
+            out.add("firm_orders", r["_row"], "mode", f"'{r['party']}' has several lanes",
+                    "the mode of the lane (" + ", ".join(sorted({getattr(x, 'mode', '') for x in lanes})) + ")")
+            continue
+        lane = lanes[0]
+        load = getattr(lane, "load_t", None)
+        tonnes = r["tonnes"] if r["tonnes"] is not None else (r["loads"] * load if load else None)
+        if tonnes is None:
+            out.add("firm_orders", r["_row"], "tonnes", "the cell is empty", "the tonnes booked")
+            continue
+        orders.append(FirmOrder(r["date"], r["material"], r["party"], getattr(lane, "mode", None),
+                                r["loads"], float(tonnes)))
+    return tuple(orders)
+
+
+def horizon_generation(scenario: Scenario) -> pd.DataFrame:
+    """Generation [MWh] per (date × unit) for every horizon day.
+
+    Days the ``generation`` sheet does not give are filled from ``generation_history``
+    with the unit's mean for the same weekday over the last eight weeks of history (a
+    stated stop-gap; the forecast stage replaces it with a fitted model).
+    """
+    table = scenario.generation_matrix()
+    if not table.isna().any().any():
+        return table
+    hist = scenario.generation_history
+    if hist is None or hist.empty:
+        return table.fillna(0.0)
+    recent = hist[hist["date"] >= hist["date"].max() - pd.Timedelta(days=55)]
+    profile = recent.assign(wd=recent["date"].dt.weekday).groupby(["unit", "wd"])["mwh"].mean()
+    for unit in table.columns:
+        gaps = table[unit].isna()
+        if gaps.any():
+            wd = table.index[gaps].weekday
+            vals = [profile.get((unit, w), np.nan) for w in wd]
+            table.loc[gaps, unit] = vals
+    return table.fillna(0.0)

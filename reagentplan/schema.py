@@ -1,0 +1,349 @@
+"""The scenario workbook's sheets and columns: one declarative table.
+
+The loader (`reagentplan.workbook`) validates against it and the template writer draws
+its headers, notes and drop-downs from it, so the two can never disagree.  Column names
+are the canonical metric ones of the workbook contract; US customary variants come from
+`reagentplan.units.VARIANTS`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+STORES = ("limestone", "gypsum", "fly_ash", "bottom_ash")
+BYPRODUCTS = ("gypsum", "fly_ash", "bottom_ash")
+SUPPLIER_MODES = ("rail", "truck")
+BUYER_MODES = ("rail", "truck", "barge")
+BOILERS = ("pc", "cfb")
+
+#: Names of sheets and columns that hold free notes; the loader ignores them.
+NOTE_COLUMNS = ("note", "notes", "comment")
+NOTE_SHEETS = ("notes", "readme")
+
+
+@dataclass(frozen=True)
+class Field:
+    """One column of a table sheet, or one key of a key/value sheet.
+
+    Attributes
+    ----------
+    name : str
+        Canonical (metric) name.
+    kind : str
+        ``text``, ``number``, ``integer``, ``date``, ``code``, ``weekdays`` or ``months``.
+    required : bool
+        The column (key) must be present and every value filled.
+    default : Any
+        Value used when an optional cell is empty (``None`` = no value, e.g. no limit).
+    lo, hi : float | None
+        Allowed closed range of a number.
+    choices : tuple[str, ...]
+        Allowed codes of a ``code`` field.
+    unit : str
+        Unit shown in the template's notes.
+    note : str
+        One-line meaning shown in the template.
+    example : Any
+        Value of the template's example row.
+    """
+
+    name: str
+    kind: str = "number"
+    required: bool = True
+    default: Any = None
+    lo: float | None = None
+    hi: float | None = None
+    choices: tuple[str, ...] = ()
+    unit: str = ""
+    note: str = ""
+    example: Any = None
+
+    def expected(self) -> str:
+        """Plain-words description of an acceptable value, for error messages."""
+        if self.kind == "code":
+            return "one of " + ", ".join(self.choices)
+        if self.kind == "date":
+            return "a date (an Excel date or YYYY-MM-DD text)"
+        if self.kind == "text":
+            return "a name (text)"
+        if self.kind == "weekdays":
+            return "weekdays like Mon-Fri or Mon,Wed,Fri (empty = every day)"
+        if self.kind == "months":
+            return "months like Mar-Nov or Jan,Feb (empty = every month)"
+        what = "a whole number" if self.kind == "integer" else "a number"
+        if self.lo is not None and self.hi is not None:
+            return f"{what} from {_fmt(self.lo)} to {_fmt(self.hi)}"
+        if self.lo is not None:
+            return f"{what} of at least {_fmt(self.lo)}"
+        if self.hi is not None:
+            return f"{what} of at most {_fmt(self.hi)}"
+        return what
+
+
+def _fmt(x: float) -> str:
+    return f"{x:g}"
+
+
+@dataclass(frozen=True)
+class Sheet:
+    """A sheet of the workbook: key/value (``plant``, ``scrubber``) or a table."""
+
+    name: str
+    fields: tuple[Field, ...]
+    keyvalue: bool = False
+    required: bool = True
+    key: tuple[str, ...] = ()  # columns that identify a row (duplicates are errors)
+    note: str = ""
+
+    def field(self, name: str) -> Field:
+        for f in self.fields:
+            if f.name == name:
+                return f
+        raise KeyError(name)
+
+
+def pct(name: str, note: str, default: Any = None, required: bool = False, example: Any = None,
+        lo: float = 0.0, hi: float = 100.0) -> Field:
+    return Field(name, "number", required, default, lo, hi, unit="%", note=note, example=example)
+
+
+PLANT = Sheet(
+    "plant",
+    keyvalue=True,
+    note="One value per key; empty values take the default shown in the note.",
+    fields=(
+        Field("name", "text", True, unit="", note="station name", example="My Station"),
+        Field("start_date", "date", True, note="first planned day"),
+        Field("horizon_days", "integer", False, 90, 1, 1096, unit="d", note="days planned"),
+        Field("currency", "text", False, "USD", note="label for money columns"),
+        Field("boiler", "code", False, "pc", choices=BOILERS,
+              note="pc = pulverised coal with wet limestone scrubber; cfb = fluidised bed, limestone in the bed"),
+        pct("fly_ash_share_pct", "share of coal ash leaving as fly ash (default 80 pc, 60 cfb)"),
+        pct("so2_conversion_pct", "fuel sulfur leaving the boiler as SO2", 95.0),
+        Field("fly_ash_loi_pct", "number", False, 3.0, 0, 99, unit="%",
+              note="unburned carbon in the fly ash as collected (loss on ignition)"),
+        Field("so2_limit_kg_per_gj", "number", False, None, 0, 50, unit="kg/GJ",
+              note="permit SO2 limit on heat input; empty = none"),
+        Field("so2_limit_avg_days", "integer", False, 30, 1, 366, unit="d",
+              note="rolling averaging period of the limit"),
+        Field("shortage_penalty_per_t", "number", False, 1000.0, 0, None, unit="money/t",
+              note="cost of a tonne below safety stock"),
+        Field("overflow_penalty_per_t", "number", False, 1000.0, 0, None, unit="money/t",
+              note="cost of a tonne above capacity"),
+    ),
+)
+
+SCRUBBER = Sheet(
+    "scrubber",
+    keyvalue=True,
+    note="Wet limestone forced-oxidation scrubber (for boiler = cfb: the bed).",
+    fields=(
+        Field("removal_pct", "number", False, 97.0, 0, 100, unit="%",
+              note="SO2 removal across the scrubber (cfb: in-bed capture)"),
+        Field("ca_s_ratio", "number", False, 1.03, 1, 5, unit="mol/mol",
+              note="mol CaCO3 fed per mol SO2 removed (cfb bed: 2-3)"),
+        pct("limestone_caco3_pct", "CaCO3 in the limestone as fed, dry basis", 94.0, lo=50.0),
+        pct("oxidation_pct", "sulfite oxidised to sulfate", 99.0),
+        Field("gypsum_moisture_pct", "number", False, 10.0, 0, 60, unit="%",
+              note="free moisture of the dewatered cake"),
+        pct("esp_efficiency_pct", "fly ash captured ahead of the scrubber", 99.5),
+        pct("injection_removal_pct", "SO2 removed upstream by injected sorbent", 0.0),
+        Field("injection_ca_s_ratio", "number", False, 2.5, 1, 10, unit="mol/mol",
+              note="mol Ca injected per mol SO2 removed upstream"),
+        pct("prescrubber_hcl_removal_pct", "HCl removed before the scrubber", 0.0),
+        Field("gypsum_chloride_ppm", "number", False, 50.0, 0, 1e6, unit="ppm",
+              note="chloride in the washed cake, as measured"),
+    ),
+)
+
+_weekdays = Field("weekdays", "weekdays", False, None, note="days it can run; empty = every day",
+                  example="Mon-Fri")
+_months = Field("months", "months", False, None, note="months it takes material; empty = all",
+                example="Mar-Nov")
+
+
+def _limit(name: str, unit: str, note: str, hi: float | None = None) -> Field:
+    return Field(name, "number", False, None, 0, hi, unit=unit, note=note + "; empty = no limit")
+
+
+UNITS = Sheet(
+    "units",
+    key=("unit",),
+    fields=(
+        Field("unit", "text", note="generating unit name", example="Unit 1"),
+        Field("capacity_mw", "number", True, None, 1, 5000, unit="MW", note="net capacity",
+              example=600),
+        Field("heat_rate_gj_per_mwh", "number", True, None, 5, 20, unit="GJ/MWh",
+              note="net heat rate (HHV basis)", example=10.2),
+        pct("gas_heat_share_pct", "share of heat input from natural gas", 0.0, example=0),
+    ),
+)
+
+GENERATION = Sheet(
+    "generation",
+    key=("date", "unit"),
+    fields=(
+        Field("date", "date", note="day", example="2027-01-01"),
+        Field("unit", "text", note="unit name from the units sheet", example="Unit 1"),
+        Field("mwh", "number", True, None, 0, None, unit="MWh", note="net generation of the day",
+              example=10800),
+    ),
+)
+
+COAL_SOURCES = Sheet(
+    "coal_sources",
+    key=("source",),
+    fields=(
+        Field("source", "text", note="coal source name", example="Seam A"),
+        pct("sulfur_pct", "sulfur, as received", required=True, example=2.5),
+        pct("ash_pct", "ash, as received", required=True, example=10),
+        pct("moisture_pct", "total moisture, as received", None, example=8),
+        Field("hhv_mj_per_kg", "number", True, None, 5, 40, unit="MJ/kg",
+              note="higher heating value, as received", example=26.0),
+        pct("chlorine_pct", "chlorine, as received", 0.0, hi=5.0, example=0.1),
+        Field("sulfur_sd_pct", "number", False, 0.0, 0, 10, unit="% S",
+              note="standard deviation of sulfur between deliveries", example=0.2),
+    ),
+)
+
+COAL_BLEND = Sheet(
+    "coal_blend",
+    key=("date", "source"),
+    fields=(
+        Field("date", "date", note="blend holds from this date to the next", example="2027-01-01"),
+        Field("source", "text", note="source name from coal_sources", example="Seam A"),
+        pct("share_pct", "share of as-received tonnes; a date's shares sum to 100", required=True,
+            example=100),
+    ),
+)
+
+STORAGE = Sheet(
+    "storage",
+    key=("store",),
+    fields=(
+        Field("store", "code", choices=STORES, note="store", example="limestone"),
+        Field("capacity_t", "number", True, None, 0, None, unit="t", note="usable capacity",
+              example=40000),
+        Field("safety_t", "number", True, None, 0, None, unit="t", note="safety stock",
+              example=8000),
+        Field("initial_t", "number", True, None, 0, None, unit="t",
+              note="level at the start of the first day", example=20000),
+    ),
+)
+
+SUPPLIERS = Sheet(
+    "suppliers",
+    key=("supplier", "mode"),
+    fields=(
+        Field("supplier", "text", note="quarry or supplier", example="North Quarry"),
+        Field("mode", "code", choices=SUPPLIER_MODES, note="rail (a unit train is one load) or truck",
+              example="rail"),
+        Field("load_t", "number", True, None, 0.001, None, unit="t", note="tonnes per load",
+              example=9500),
+        Field("max_loads_per_day", "integer", True, None, 0, 10000, unit="loads/d",
+              note="loads that can arrive in one day", example=1),
+        Field("lead_days", "integer", True, None, 0, 365, unit="d",
+              note="days from order to arrival", example=12),
+        _weekdays,
+        Field("price_per_t", "number", True, None, 0, None, unit="money/t",
+              note="limestone price at the quarry", example=14.5),
+        Field("freight_per_load", "number", False, 0.0, 0, None, unit="money/load",
+              note="freight per load", example=95000),
+        Field("min_t_per_month", "number", False, None, 0, None, unit="t/month",
+              note="contract minimum per month; empty = none", example=0),
+        Field("max_t_per_month", "number", False, None, 0, None, unit="t/month",
+              note="contract maximum per month; empty = none", example=40000),
+        Field("caco3_pct", "number", False, None, 50, 100, unit="%",
+              note="CaCO3 of this limestone; empty = the scrubber sheet's value", example=94),
+    ),
+)
+
+BUYERS = Sheet(
+    "buyers",
+    key=("buyer", "material", "mode"),
+    fields=(
+        Field("buyer", "text", note="buyer", example="Board Plant"),
+        Field("material", "code", choices=BYPRODUCTS, note="material bought", example="gypsum"),
+        Field("mode", "code", choices=BUYER_MODES, note="how it leaves", example="truck"),
+        Field("load_t", "number", True, None, 0.001, None, unit="t", note="tonnes per load",
+              example=25),
+        Field("max_loads_per_day", "integer", True, None, 0, 10000, unit="loads/d",
+              note="loads that can leave in one day", example=30),
+        _weekdays,
+        Field("price_per_t", "number", True, None, None, None, unit="money/t",
+              note="net to the plant; negative = the plant pays", example=3.0),
+        Field("min_t_per_month", "number", False, None, 0, None, unit="t/month",
+              note="contract minimum per month; empty = none", example=10000),
+        Field("max_t_per_month", "number", False, None, 0, None, unit="t/month",
+              note="contract maximum per month; empty = none", example=25000),
+        _limit("min_purity_pct", "%", "minimum CaSO4.2H2O in the dry gypsum", 100),
+        _limit("max_moisture_pct", "%", "maximum free moisture of the gypsum", 100),
+        _limit("max_chloride_ppm", "ppm", "maximum chloride in the gypsum"),
+        _limit("max_loi_pct", "%", "maximum loss on ignition of the fly ash", 100),
+        _limit("max_so3_pct", "%", "maximum SO3 of the fly ash", 100),
+        _months,
+    ),
+)
+
+DISPOSAL = Sheet(
+    "disposal",
+    key=("site", "material"),
+    fields=(
+        Field("site", "text", note="landfill or disposal site", example="Ash Landfill"),
+        Field("material", "code", choices=BYPRODUCTS, note="material it takes", example="fly_ash"),
+        Field("cost_per_t", "number", True, None, 0, None, unit="money/t",
+              note="haul and disposal cost", example=15),
+        Field("max_t_per_day", "number", False, None, 0, None, unit="t/d",
+              note="daily limit; empty = none", example=3000),
+        Field("airspace_t", "number", False, None, 0, None, unit="t",
+              note="remaining airspace for this material; empty = unlimited", example=2000000),
+    ),
+)
+
+FIRM_ORDERS = Sheet(
+    "firm_orders",
+    required=False,
+    key=("date", "material", "party", "mode"),
+    fields=(
+        Field("date", "date", note="arrival or departure at the plant", example="2027-01-06"),
+        Field("material", "code", choices=STORES, note="material", example="limestone"),
+        Field("party", "text", note="supplier (limestone) or buyer / site (byproducts)",
+              example="North Quarry"),
+        Field("mode", "code", False, None, choices=SUPPLIER_MODES + ("barge",),
+              note="lane mode; needed only when the party has several", example="rail"),
+        Field("loads", "integer", True, None, 1, 10000, unit="loads", note="loads booked",
+              example=1),
+        Field("tonnes", "number", False, None, 0, None, unit="t",
+              note="tonnes booked; empty = loads x load size", example=9500),
+    ),
+)
+
+GENERATION_HISTORY = Sheet(
+    "generation_history",
+    required=False,
+    key=("date", "unit"),
+    fields=GENERATION.fields,
+    note="past days of generation; the forecast is made from them",
+)
+
+COAL_QUALITY_HISTORY = Sheet(
+    "coal_quality_history",
+    required=False,
+    key=(),
+    fields=(
+        Field("date", "date", note="sample date", example="2026-06-01"),
+        Field("source", "text", note="source name from coal_sources", example="Seam A"),
+        pct("sulfur_pct", "sulfur, as received", required=True, example=2.6),
+        pct("ash_pct", "ash, as received", None, example=10.2),
+        Field("hhv_mj_per_kg", "number", False, None, 5, 40, unit="MJ/kg",
+              note="higher heating value, as received", example=25.8),
+    ),
+    note="lab results",
+)
+
+SHEETS: tuple[Sheet, ...] = (
+    PLANT, SCRUBBER, UNITS, GENERATION, COAL_SOURCES, COAL_BLEND, STORAGE, SUPPLIERS, BUYERS,
+    DISPOSAL, FIRM_ORDERS, GENERATION_HISTORY, COAL_QUALITY_HISTORY,
+)
+SHEETS_BY_NAME: dict[str, Sheet] = {s.name: s for s in SHEETS}

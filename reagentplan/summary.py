@@ -1,0 +1,68 @@
+"""Short plain-text summaries printed by the command line."""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from .scenario import Scenario
+
+
+def describe_scenario(s: Scenario) -> str:
+    """One paragraph: what the workbook holds."""
+    p = s.plant
+    lines = [
+        f"Station {p.name}: {len(s.units)} unit(s), boiler {p.boiler}, "
+        f"{p.horizon_days} days from {p.start_date:%Y-%m-%d} to {p.end_date:%Y-%m-%d}.",
+        f"Coal sources: {', '.join(c.source for c in s.coal_sources)}; "
+        f"{s.coal_blend['date'].nunique()} blend date(s).",
+        f"Limestone lanes: {', '.join(x.lane for x in s.suppliers)}.",
+        f"Byproduct lanes: {', '.join(x.lane for x in s.buyers) or 'none'}; "
+        f"disposal: {', '.join(f'{d.site} ({d.material})' for d in s.disposal) or 'none'}.",
+    ]
+    if s.firm_orders:
+        lines.append(f"Firm orders: {len(s.firm_orders)}.")
+    if s.generation_history is not None:
+        lines.append(f"Generation history: {len(s.generation_history)} rows.")
+    return "\n".join(lines)
+
+
+def balance_totals(frame: pd.DataFrame) -> dict[str, float]:
+    """Horizon totals and averages of a balance frame [t, MWh, kg/GJ]."""
+    heat = frame["heat_input_gj"].sum()
+    return {
+        "days": float(len(frame)),
+        "generation_mwh": frame["generation_mwh"].sum(),
+        "coal_t": frame["coal_t"].sum(),
+        "limestone_t": frame["limestone_t"].sum(),
+        "gypsum_wet_t": frame["gypsum_wet_t"].sum(),
+        "fly_ash_t": frame["fly_ash_t"].sum(),
+        "bottom_ash_t": frame["bottom_ash_t"].sum(),
+        "so2_emitted_t": frame["so2_emitted_t"].sum(),
+        "so2_kg_per_gj": frame["so2_emitted_t"].sum() * 1000 / heat if heat > 0 else float("nan"),
+        "days_over_limit": float(frame["so2_over_limit"].sum()),
+        "max_rolling_kg_per_gj": frame["so2_rolling_kg_per_gj"].max(),
+    }
+
+
+def describe_balance(s: Scenario, frame: pd.DataFrame) -> str:
+    """A small table of the balance's totals, for the terminal."""
+    t = balance_totals(frame)
+    n = t["days"]
+    rows = [
+        ("generation", t["generation_mwh"], "MWh"),
+        ("coal burned", t["coal_t"], "t"),
+        ("limestone used", t["limestone_t"], "t"),
+        ("gypsum made (wet)", t["gypsum_wet_t"], "t"),
+        ("fly ash collected", t["fly_ash_t"], "t"),
+        ("bottom ash", t["bottom_ash_t"], "t"),
+        ("SO2 emitted", t["so2_emitted_t"], "t"),
+    ]
+    out = [f"Mass balance for {s.plant.name}, {int(n)} days:",
+           f"  {'':22} {'total':>14} {'per day':>10}"]
+    out += [f"  {name:22} {v:>14,.0f} {v / n:>10,.1f} {unit}" for name, v, unit in rows]
+    out.append(f"  SO2 rate {t['so2_kg_per_gj']:.4f} kg/GJ over the horizon; highest rolling "
+               f"{s.plant.so2_limit_avg_days}-day average {t['max_rolling_kg_per_gj']:.4f} kg/GJ")
+    if s.plant.so2_limit_kg_per_gj is not None:
+        out.append(f"  permit limit {s.plant.so2_limit_kg_per_gj:g} kg/GJ: "
+                   f"{int(t['days_over_limit'])} day(s) over the limit")
+    return "\n".join(out)
