@@ -141,7 +141,7 @@ def so2_formed_t(coal_t, sulfur_pct, conversion):
     AP-42 Section 1.1.3.2: most fuel sulfur is oxidised to SO2 (about 95 % for
     bituminous coal); the rest stays in the ash.
     """
-    return coal_t * sulfur_pct / 100 * conversion * chem.SO2 / chem.S
+    return coal_t * sulfur_pct * (conversion * chem.SO2 / chem.S / 100)
 
 
 def hcl_formed_t(coal_t, chlorine_pct):
@@ -151,17 +151,17 @@ def hcl_formed_t(coal_t, chlorine_pct):
     ----------
     AP-42 Section 1.1.3.6: nearly all chlorine in coal is emitted as HCl.
     """
-    return coal_t * chlorine_pct / 100 * chem.HCL / chem.CL
+    return coal_t * chlorine_pct * (chem.HCL / chem.CL / 100)
 
 
 def limestone_for_so2_t(so2_removed_t, ca_s_ratio, caco3):
     """Limestone fed [t, dry] for SO2 removed [t] at Ca/S [mol/mol] and CaCO3 content [-]."""
-    return so2_removed_t / chem.SO2 * ca_s_ratio * chem.CACO3 / caco3
+    return so2_removed_t * (ca_s_ratio * chem.CACO3 / caco3 / chem.SO2)
 
 
 def limestone_for_hcl_t(hcl_t, caco3):
     """Limestone [t, dry] neutralising HCl [t]: CaCO3 + 2 HCl -> CaCl2 + H2O + CO2."""
-    return hcl_t / chem.HCL / 2 * chem.CACO3 / caco3
+    return hcl_t * (chem.CACO3 / caco3 / chem.HCL / 2)
 
 
 def spent_sorbent_t(so2_captured_t, ca_s_ratio, limestone_t, caco3):
@@ -174,8 +174,8 @@ def spent_sorbent_t(so2_captured_t, ca_s_ratio, limestone_t, caco3):
     -------
     (caso4_t, cao_t, inerts_t)
     """
-    mol = so2_captured_t / chem.SO2
-    return mol * chem.CASO4, mol * (ca_s_ratio - 1) * chem.CAO, limestone_t * (1 - caco3)
+    return (so2_captured_t * (chem.CASO4 / chem.SO2),
+            so2_captured_t * ((ca_s_ratio - 1) * chem.CAO / chem.SO2), limestone_t * (1 - caco3))
 
 
 def gypsum_solids_t(so2_removed_t, oxidation, ca_s_ratio, limestone_t, caco3, fly_ash_slip_t):
@@ -189,9 +189,9 @@ def gypsum_solids_t(so2_removed_t, oxidation, ca_s_ratio, limestone_t, caco3, fl
     -------
     (gypsum_t, sulfite_t, caco3_t, inerts_t, fly_ash_t)
     """
-    mol = so2_removed_t / chem.SO2
-    return (mol * oxidation * chem.GYPSUM, mol * (1 - oxidation) * chem.HEMIHYDRATE_SULFITE,
-            mol * (ca_s_ratio - 1) * chem.CACO3, limestone_t * (1 - caco3), fly_ash_slip_t)
+    per = so2_removed_t / chem.SO2  # [Mmol]
+    return (per * (oxidation * chem.GYPSUM), per * ((1 - oxidation) * chem.HEMIHYDRATE_SULFITE),
+            per * ((ca_s_ratio - 1) * chem.CACO3), limestone_t * (1 - caco3), fly_ash_slip_t)
 
 
 def wet_cake_t(dry_t, moisture):
@@ -216,9 +216,11 @@ def trailing_sum(x, days: int):
 
 
 def _ratio(num, den):
-    den = np.asarray(den, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
+    """num / den, NaN where den <= 0."""
+    num, den = np.broadcast_arrays(np.asarray(num, dtype=float), np.asarray(den, dtype=float))
+    out = np.full(num.shape, np.nan)
+    np.divide(num, den, out=out, where=den > 0)
+    return out
 
 
 # --------------------------------------------------------------------------- balance
@@ -233,10 +235,10 @@ def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
     that must close.
     """
     coal = coal_burned_t(d.coal_heat_gj, d.hhv_mj_per_kg)
-    s_in = coal * d.sulfur_pct / 100
+    s_in = coal * d.sulfur_pct * 0.01
     so2_formed = so2_formed_t(coal, d.sulfur_pct, p.so2_conversion)
     s_retained = s_in * (1 - p.so2_conversion)
-    ash = coal * d.ash_pct / 100
+    ash = coal * d.ash_pct * 0.01
     zero = np.zeros_like(coal)
 
     if p.boiler == "cfb":

@@ -456,6 +456,7 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, An
     values: dict[str, Any] = {}
     rows: dict[str, int] = {}
     bad: set[str] = set()
+    written: dict[str, str] = {}
     for excel_row, row in raw.rows:
         key = _normalise_key(row[jk] if jk < len(row) else None)
         value = row[jv] if jv < len(row) else None
@@ -472,11 +473,13 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, An
                     "one of " + ", ".join(accepted))
             continue
         if canonical in rows:
-            out.add(sheet.name, excel_row, "key",
-                    f"'{key}' is given again (first in row {rows[canonical]})",
-                    "each key once (and only one unit variant of it)")
+            first, r0 = written.get(canonical), rows[canonical]
+            found = (f"both unit variants of one key ('{first}' in row {r0} and '{key}')"
+                     if first != key else f"'{key}' is given again (first in row {r0})")
+            out.add(sheet.name, excel_row, "key", found, "each key once, in one unit only")
             continue
         rows[canonical] = excel_row
+        written[canonical] = key
         f = sheet.field(canonical)
         if _empty(value):
             continue

@@ -1,0 +1,110 @@
+"""The command line as a user meets it: exit codes, messages, files written or not."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pandas as pd
+import pytest
+from openpyxl import load_workbook
+
+from helpers import START, minimal_sheets, set_value, write_workbook
+from reagentplan.cli import main
+
+
+def run(*args: str) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "reagentplan.cli", *args],
+                          capture_output=True, text=True, timeout=300)
+
+
+def test_check_sound_workbook(minimal_path, capsys):
+    assert main(["check", str(minimal_path)]) == 0
+    assert "sound" in capsys.readouterr().out
+
+
+def test_bad_input_exit_2_no_traceback_no_output(tmp_path):
+    s = minimal_sheets()
+    set_value(s, "scrubber", "removal_pct", None, 120)
+    path = write_workbook(s, tmp_path / "bad.xlsx")
+    out = tmp_path / "out"
+    r = run("balance", str(path), "--out", str(out))
+    assert r.returncode == 2
+    assert "Traceback" not in r.stderr
+    assert "sheet 'scrubber', row 2, column 'value (removal_pct)': found 120" in r.stderr
+    assert not out.exists()
+    assert not any(p.name.startswith(".out") for p in tmp_path.iterdir())
+
+
+def test_not_a_workbook_exit_2(tmp_path):
+    p = tmp_path / "x.xlsx"
+    p.write_text("hello")
+    r = run("check", str(p))
+    assert r.returncode == 2 and "not an .xlsx workbook" in r.stderr and "Traceback" not in r.stderr
+
+
+def test_failed_run_keeps_previous_output(tmp_path, minimal_path):
+    out = tmp_path / "out"
+    assert main(["balance", str(minimal_path), "--out", str(out)]) == 0
+    before = (out / "balance.csv").read_bytes()
+    bad = minimal_sheets()
+    set_value(bad, "units", 0, "capacity_mw", "big")
+    assert main(["balance", str(write_workbook(bad, tmp_path / "bad.xlsx")), "--out", str(out)]) == 2
+    assert (out / "balance.csv").read_bytes() == before
+
+
+def test_template_filled_in_matches_hand_calculation(tmp_path):
+    """The blank template, filled as a user would, balances to the hand-worked example
+    of test_balance.test_hand_worked_example (1,000 t/day of 2 % S coal): limestone
+    63.045 t/day and wet gypsum 116.09 t/day."""
+    tpl = tmp_path / "blank.xlsx"
+    assert main(["template", str(tpl)]) == 0
+    wb = load_workbook(tpl)
+    src = minimal_sheets(days=5)
+    for name in ("plant", "scrubber"):
+        ws = wb[name]
+        given = {r[0]: r[1] for r in src[name][1:]}
+        for row in ws.iter_rows(min_row=2):
+            if row[0].value in given:
+                row[1].value = given[row[0].value]
+    for name in ("units", "generation", "coal_sources", "coal_blend", "storage", "suppliers",
+                 "buyers", "disposal"):
+        ws = wb[name]
+        header = [c.value for c in ws[1]]
+        for r in src[name][1:]:
+            rec = dict(zip(src[name][0], r))
+            ws.append([rec.get(h) for h in header])
+    for name in ("firm_orders", "generation_history", "coal_quality_history"):
+        del wb[name]  # optional sheets left out
+    filled = tmp_path / "filled.xlsx"
+    wb.save(filled)
+    out = tmp_path / "out"
+    assert main(["balance", str(filled), "--out", str(out)]) == 0
+    bal = pd.read_csv(out / "balance.csv", parse_dates=["date"])
+    assert len(bal) == 5 and bal["date"].iloc[0].date() == START
+    assert bal["limestone_t"].iloc[0] == pytest.approx(63.045, rel=5e-4)
+    assert bal["gypsum_wet_t"].iloc[0] == pytest.approx(116.09, rel=5e-4)
+    assert bal["so2_emitted_t"].iloc[0] == pytest.approx(1.1389, rel=5e-4)
+
+
+def test_template_has_notes_dropdowns_and_example_rows(tmp_path):
+    path = tmp_path / "t.xlsx"
+    main(["template", str(path)])
+    wb = load_workbook(path)
+    for name in ("plant", "units", "generation", "coal_sources", "coal_blend", "scrubber",
+                 "storage", "suppliers", "buyers", "disposal", "notes"):
+        assert name in wb.sheetnames
+    sup = wb["suppliers"]
+    assert [c.value for c in sup[1]][:3] == ["supplier", "mode", "load_t"]
+    assert sup["A2"].value.startswith("#")
+    assert sup["A1"].comment is not None
+    formulas = [dv.formula1 for dv in sup.data_validations.dataValidation]
+    assert '"rail,truck"' in formulas
+
+
+def test_demo_runs(tmp_path, capsys):
+    out = tmp_path / "demo"
+    assert main(["demo", "--out", str(out)]) == 0
+    assert (out / "balance.csv").exists() and (out / "demo_station.xlsx").exists()
+    text = capsys.readouterr().out
+    assert "limestone used" in text and "Caution" in text
