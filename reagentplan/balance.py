@@ -54,7 +54,11 @@ class Drivers:
 
 @dataclass(frozen=True)
 class BalanceParams:
-    """Plant and scrubber constants as fractions [-] and ratios [mol/mol]."""
+    """Plant and scrubber constants as fractions [-] and ratios [mol/mol].
+
+    Each may be a scalar or an array broadcastable to (futures, days) (a value changed
+    for some days); ``boiler`` and ``so2_limit_avg_days`` are always scalars.
+    """
 
     boiler: str
     so2_conversion: float
@@ -75,22 +79,33 @@ class BalanceParams:
 
     @classmethod
     def from_scenario(cls, scenario: Scenario) -> "BalanceParams":
-        p, s = scenario.plant, scenario.scrubber
+        """Constants of a scenario; keys changed by `period_settings` become (1, days)
+        arrays, the rest stay scalars."""
+        p = scenario.plant
+        periods = scenario.period_settings
+        changed = set() if periods is None else set(periods["key"])
+
+        def value(key: str, scale: float = 0.01):
+            if key in changed:
+                return scenario.daily_setting(key)[None, :] * scale
+            src = scenario.scrubber if hasattr(scenario.scrubber, key) else p
+            return getattr(src, key) * scale
+
         return cls(
             boiler=p.boiler,
-            so2_conversion=p.so2_conversion_pct / 100,
+            so2_conversion=value("so2_conversion_pct"),
             fly_ash_share=p.fly_ash_share_pct / 100,
-            fly_ash_loi=p.fly_ash_loi_pct / 100,
-            removal=s.removal_pct / 100,
-            ca_s_ratio=s.ca_s_ratio,
-            caco3=s.limestone_caco3_pct / 100,
-            oxidation=s.oxidation_pct / 100,
-            gypsum_moisture=s.gypsum_moisture_pct / 100,
-            esp_efficiency=s.esp_efficiency_pct / 100,
-            injection_removal=s.injection_removal_pct / 100 if p.boiler == "pc" else 0.0,
-            injection_ca_s_ratio=s.injection_ca_s_ratio,
-            prescrubber_hcl_removal=s.prescrubber_hcl_removal_pct / 100,
-            gypsum_chloride_ppm=s.gypsum_chloride_ppm,
+            fly_ash_loi=value("fly_ash_loi_pct"),
+            removal=value("removal_pct"),
+            ca_s_ratio=value("ca_s_ratio", 1.0),
+            caco3=value("limestone_caco3_pct"),
+            oxidation=value("oxidation_pct"),
+            gypsum_moisture=value("gypsum_moisture_pct"),
+            esp_efficiency=value("esp_efficiency_pct"),
+            injection_removal=value("injection_removal_pct") if p.boiler == "pc" else 0.0,
+            injection_ca_s_ratio=scenario.scrubber.injection_ca_s_ratio,
+            prescrubber_hcl_removal=value("prescrubber_hcl_removal_pct"),
+            gypsum_chloride_ppm=value("gypsum_chloride_ppm", 1.0),
             so2_limit_kg_per_gj=p.so2_limit_kg_per_gj,
             so2_limit_avg_days=p.so2_limit_avg_days,
         )

@@ -112,10 +112,13 @@ class SupplierLane:
     min_t_per_month: float | None
     max_t_per_month: float | None
     caco3_pct: float | None
+    months: frozenset[int] = frozenset(range(12))
 
     @property
     def lane(self) -> str:
-        return f"{self.supplier} {self.mode}"
+        if len(self.months) == 12:
+            return f"{self.supplier} {self.mode}"
+        return f"{self.supplier} {self.mode} ({names_label(self.months, MONTH_NAMES)})"
 
     @property
     def delivered_cost_per_t(self) -> float:
@@ -156,6 +159,14 @@ class DisposalSite:
 
 
 @dataclass(frozen=True)
+class LaneClosure:
+    party: str
+    mode: str | None
+    first_date: dt.date
+    last_date: dt.date
+
+
+@dataclass(frozen=True)
 class FirmOrder:
     date: dt.date
     material: str
@@ -188,6 +199,8 @@ class Scenario:
     generation_history: pd.DataFrame | None = None
     coal_quality_history: pd.DataFrame | None = None
     source_name: str = ""
+    lane_closures: tuple[LaneClosure, ...] = ()
+    period_settings: pd.DataFrame | None = None  # first_date, last_date, key, value
 
     @property
     def dates(self) -> pd.DatetimeIndex:
@@ -195,6 +208,31 @@ class Scenario:
 
     def source(self, name: str) -> CoalSource:
         return next(s for s in self.coal_sources if s.source == name)
+
+    def daily_setting(self, key: str) -> np.ndarray:
+        """A plant or scrubber value per horizon day [its unit], with `period_settings`."""
+        base = getattr(self.scrubber, key) if hasattr(self.scrubber, key) else getattr(self.plant, key)
+        values = np.full(self.plant.horizon_days, float(base))
+        if self.period_settings is not None:
+            for r in self.period_settings.itertuples():
+                if r.key == key:
+                    mask = (self.dates >= r.first_date) & (self.dates <= r.last_date)
+                    values[mask] = r.value
+        return values
+
+    def lane_open(self, lane: "SupplierLane | BuyerLane | DisposalSite") -> np.ndarray:
+        """Days [bool per horizon day] on which a lane can move material: its weekdays
+        and months, less its `lane_closures`."""
+        dates = self.dates
+        weekdays = getattr(lane, "weekdays", frozenset(range(7)))
+        months = getattr(lane, "months", frozenset(range(12)))
+        is_open = np.isin(dates.day_of_week, sorted(weekdays)) & np.isin(dates.month - 1, sorted(months))
+        party = getattr(lane, "supplier", None) or getattr(lane, "buyer", None) or lane.site
+        mode = getattr(lane, "mode", None)
+        for c in self.lane_closures:
+            if c.party == party and (c.mode is None or c.mode == mode):
+                is_open &= ~((dates >= pd.Timestamp(c.first_date)) & (dates <= pd.Timestamp(c.last_date)))
+        return is_open
 
     def generation_matrix(self) -> pd.DataFrame:
         """Generation [MWh] as a (date × unit) table over the horizon; NaN where not given."""
@@ -290,6 +328,23 @@ def _parse_names(value: Any, names: tuple[str, ...], what: str) -> frozenset[int
     return frozenset(chosen)
 
 
+def names_label(chosen: frozenset[int], names: tuple[str, ...]) -> str:
+    """``Mar-Nov`` style label of a set of weekday or month indices."""
+    idx = sorted(chosen)
+    runs, start = [], None
+    for k in idx + [None]:
+        if start is None:
+            start = prev = k
+        elif k is not None and k == prev + 1:
+            prev = k
+        else:
+            runs.append((start, prev))
+            start = prev = k
+    parts = [names[a].title() if a == b else f"{names[a].title()}-{names[b].title()}" for a, b in runs
+             if a is not None]
+    return ",".join(parts)
+
+
 def _parse_cell(f: Field, value: Any) -> Any:
     """Parse one non-empty cell; raise `_CellError` with what was found."""
     if f.kind == "text":
@@ -301,7 +356,7 @@ def _parse_cell(f: Field, value: Any) -> Any:
     if f.kind == "code":
         text = str(value).strip().lower().replace(" ", "_")
         if text not in f.choices:
-            raise _CellError(f"found {_describe(value)}")
+            raise _CellError(f"found {_describe(value)}{_did_you_mean(text, list(f.choices))}")
         return text
     if f.kind == "date":
         return _parse_date(value)
@@ -601,9 +656,11 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
         quality = _check_dated(recs["coal_quality_history"], "coal_quality_history", "source",
                                source_names, plant, out, inside_horizon=False, check_order=True)
     firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
+    closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
+    periods = _check_periods(recs["period_settings"], plant, out)
     out.fail()
     return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
-                    disposal, firm, history, quality, source_name)
+                    disposal, firm, history, quality, source_name, closures, periods)
 
 
 def _make(cls, record: dict[str, Any]):
@@ -771,6 +828,7 @@ def _check_firm(records: list[dict[str, Any]], plant: Plant, suppliers, buyers, 
                            | {d.site for d in disposal if d.material == r["material"]})
         if r["mode"] is not None:
             lanes = [x for x in lanes if getattr(x, "mode", r["mode"]) == r["mode"]]
+        lanes = [x for x in lanes if r["date"].month - 1 in getattr(x, "months", range(12))]
         if not lanes:
             out.add("firm_orders", r["_row"], "party",
                     f"no {r['material']} lane for '{r['party']}'"
@@ -792,6 +850,64 @@ def _check_firm(records: list[dict[str, Any]], plant: Plant, suppliers, buyers, 
     return tuple(orders)
 
 
+def _check_closures(records, suppliers, buyers, disposal, out: _Collector) -> tuple[LaneClosure, ...]:
+    parties: dict[str, set] = {}
+    for x in suppliers:
+        parties.setdefault(x.supplier, set()).add(x.mode)
+    for x in buyers:
+        parties.setdefault(x.buyer, set()).add(x.mode)
+    for x in disposal:
+        parties.setdefault(x.site, set()).add(None)
+    closures = []
+    for r in records:
+        if r["party"] not in parties:
+            out.add("lane_closures", r["_row"], "party", f"unknown party '{r['party']}'"
+                    f"{_did_you_mean(r['party'], list(parties))}",
+                    "a supplier, buyer or disposal site: " + ", ".join(parties))
+            continue
+        if r["mode"] is not None and r["mode"] not in parties[r["party"]]:
+            out.add("lane_closures", r["_row"], "mode", f"'{r['party']}' has no {r['mode']} lane",
+                    "one of its modes: " + ", ".join(sorted(m for m in parties[r["party"]] if m)))
+            continue
+        if r["last_date"] < r["first_date"]:
+            out.add("lane_closures", r["_row"], "last_date",
+                    f"the last day {r['last_date']:%Y-%m-%d} is before the first {r['first_date']:%Y-%m-%d}",
+                    "a last day on or after the first day")
+            continue
+        closures.append(LaneClosure(r["party"], r["mode"], r["first_date"], r["last_date"]))
+    return tuple(closures)
+
+
+def _check_periods(records, plant: Plant, out: _Collector) -> pd.DataFrame | None:
+    if not records:
+        return None
+    spans: dict[str, list] = {}
+    for r in records:
+        f = (schema.SCRUBBER.field(r["key"]) if r["key"] in {x.name for x in schema.SCRUBBER.fields}
+             else schema.PLANT.field(r["key"]))
+        try:
+            _parse_cell(f, r["value"])
+        except _CellError as e:
+            out.add("period_settings", r["_row"], "value", f"{e.found} for {r['key']}", f.expected())
+        if r["last_date"] < r["first_date"]:
+            out.add("period_settings", r["_row"], "last_date",
+                    f"the last day {r['last_date']:%Y-%m-%d} is before the first {r['first_date']:%Y-%m-%d}",
+                    "a last day on or after the first day")
+        if r["last_date"] < plant.start_date or r["first_date"] > plant.end_date:
+            out.add("period_settings", r["_row"], "first_date", "the span is outside the horizon",
+                    f"days from {plant.start_date:%Y-%m-%d} to {plant.end_date:%Y-%m-%d}")
+        for other in spans.get(r["key"], []):
+            if r["first_date"] <= other["last_date"] and other["first_date"] <= r["last_date"]:
+                out.add("period_settings", r["_row"], "first_date",
+                        f"the span overlaps row {other['_row']} for {r['key']}",
+                        "spans of one key that do not overlap")
+        spans.setdefault(r["key"], []).append(r)
+    frame = pd.DataFrame([{k: r[k] for k in ("first_date", "last_date", "key", "value")} for r in records])
+    frame["first_date"] = pd.to_datetime(frame["first_date"])
+    frame["last_date"] = pd.to_datetime(frame["last_date"])
+    return frame
+
+
 def horizon_generation(scenario: Scenario) -> pd.DataFrame:
     """Generation [MWh] per (date × unit) for every horizon day.
 
@@ -810,7 +926,7 @@ def horizon_generation(scenario: Scenario) -> pd.DataFrame:
     for unit in table.columns:
         gaps = table[unit].isna()
         if gaps.any():
-            wd = table.index[gaps].weekday
+            wd = table.index[gaps].day_of_week
             vals = [profile.get((unit, w), np.nan) for w in wd]
             table.loc[gaps, unit] = vals
     return table.fillna(0.0)

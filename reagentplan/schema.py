@@ -234,7 +234,7 @@ STORAGE = Sheet(
 
 SUPPLIERS = Sheet(
     "suppliers",
-    key=("supplier", "mode"),
+    key=("supplier", "mode", "months"),
     fields=(
         Field("supplier", "text", note="quarry or supplier", example="North Quarry"),
         Field("mode", "code", choices=SUPPLIER_MODES, note="rail (a unit train is one load) or truck",
@@ -256,6 +256,9 @@ SUPPLIERS = Sheet(
               note="contract maximum per month; empty = none", example=40000),
         Field("caco3_pct", "number", False, None, 50, 100, unit="%",
               note="CaCO3 of this limestone; empty = the scrubber sheet's value", example=94),
+        Field("months", "months", False, None,
+              note="months this row's terms apply (e.g. a seasonal freight rate); empty = all",
+              example=""),
     ),
 )
 
@@ -342,8 +345,45 @@ COAL_QUALITY_HISTORY = Sheet(
     note="lab results",
 )
 
+LANE_CLOSURES = Sheet(
+    "lane_closures",
+    required=False,
+    key=("party", "mode", "first_date"),
+    fields=(
+        Field("party", "text", note="supplier, buyer or disposal site", example="North Quarry"),
+        Field("mode", "code", False, None, choices=SUPPLIER_MODES + ("barge",),
+              note="lane mode; empty = every lane of the party", example="rail"),
+        Field("first_date", "date", note="first day closed", example="2027-07-01"),
+        Field("last_date", "date", note="last day closed", example="2027-07-14"),
+    ),
+    note="days a lane cannot run: track work, quarry shutdown, buyer's plant outage",
+)
+
+#: Keys of `plant` and `scrubber` that `period_settings` may change for a span of days.
+PERIOD_KEYS = (
+    "so2_conversion_pct", "fly_ash_loi_pct", "removal_pct", "ca_s_ratio", "limestone_caco3_pct",
+    "oxidation_pct", "gypsum_moisture_pct", "esp_efficiency_pct", "injection_removal_pct",
+    "prescrubber_hcl_removal_pct", "gypsum_chloride_ppm",
+)
+
+PERIOD_SETTINGS = Sheet(
+    "period_settings",
+    required=False,
+    key=("key", "first_date"),
+    fields=(
+        Field("first_date", "date", note="first day of the changed value", example="2027-05-03"),
+        Field("last_date", "date", note="last day of the changed value", example="2027-05-09"),
+        Field("key", "code", choices=PERIOD_KEYS,
+              note="a plant or scrubber key whose value changes for these days",
+              example="oxidation_pct"),
+        Field("value", "number", note="the value for these days, in the key's unit", example=92),
+    ),
+    note="planned changes for a span of days: oxidation blower outage, burner tuning, ...",
+)
+
 SHEETS: tuple[Sheet, ...] = (
     PLANT, SCRUBBER, UNITS, GENERATION, COAL_SOURCES, COAL_BLEND, STORAGE, SUPPLIERS, BUYERS,
-    DISPOSAL, FIRM_ORDERS, GENERATION_HISTORY, COAL_QUALITY_HISTORY,
+    DISPOSAL, FIRM_ORDERS, LANE_CLOSURES, PERIOD_SETTINGS, GENERATION_HISTORY,
+    COAL_QUALITY_HISTORY,
 )
 SHEETS_BY_NAME: dict[str, Sheet] = {s.name: s for s in SHEETS}

@@ -193,3 +193,16 @@ def test_balance_from_workbook_blend_and_gas(tmp_path):
         "date", "coal_t", "heat_input_gj", "so2_formed_t", "so2_removed_t", "so2_emitted_t",
         "so2_kg_per_gj", "limestone_t", "gypsum_wet_t", "gypsum_purity_pct", "fly_ash_t",
         "bottom_ash_t"]
+
+
+def test_period_settings_change_purity_for_their_days(tmp_path):
+    """An oxidation blower outage (oxidation 90 % for three days) lowers gypsum purity
+    on those days only: sulfite replaces gypsum in the cake."""
+    s = minimal_sheets(days=6)
+    start = s["coal_blend"][1][0]
+    s["period_settings"] = [["first_date", "last_date", "key", "value"],
+                            [start + dt.timedelta(days=2), start + dt.timedelta(days=4), "oxidation_pct", 90]]
+    frame = balance_frame(load_scenario(write_workbook(s, tmp_path / "p.xlsx")))
+    purity = frame["gypsum_purity_pct"].to_numpy()
+    assert purity[0] == pytest.approx(94.73, abs=0.02)
+    assert (purity[2:5] < 90).all() and purity[5] == pytest.approx(purity[0])

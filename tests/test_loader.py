@@ -237,3 +237,47 @@ def test_us_customary_columns_are_converted(sheets, tmp_path):
         row[1] = "capacity_st" if i == 0 else row[1] / 0.90718474
     scn = load_scenario(write_workbook(sheets, tmp_path / "us.xlsx"))
     assert scn.storage["limestone"].capacity_t == pytest.approx(5000)
+
+
+def test_lane_closures_and_months_shape_the_calendar(sheets):
+    sheets["lane_closures"] = [["party", "mode", "first_date", "last_date"],
+                               ["Quarry Q", "rail", START + dt.timedelta(days=1), START + dt.timedelta(days=2)]]
+    scn = load_scenario(workbook_bytes(sheets))
+    open_days = scn.lane_open(scn.suppliers[0])
+    # START is a Monday: Mon open, Tue-Wed closed, Thu-Fri open, weekend shut (Mon-Fri lane)
+    assert open_days[:7].tolist() == [True, False, False, True, True, False, False]
+    assert scn.lane_open(scn.buyers[1])[:6].all()
+
+
+def test_lane_closure_unknown_party_and_reversed_dates(sheets):
+    sheets["lane_closures"] = [["party", "first_date", "last_date"],
+                               ["Quary Q", START, START],
+                               ["Board Co", START + dt.timedelta(days=3), START]]
+    assert "did you mean 'Quarry Q'" in one(sheets, "sheet 'lane_closures'", "row 2", "column 'party'")
+    assert "before the first" in one(sheets, "sheet 'lane_closures'", "row 3", "column 'last_date'")
+
+
+def test_seasonal_supplier_rows(sheets):
+    row = sheets["suppliers"][1]
+    sheets["suppliers"][0].append("months")
+    sheets["suppliers"][1] = row + ["Apr-Sep"]
+    sheets["suppliers"].append(list(row[:7]) + [3000, None, 30000, "Oct-Mar"])
+    scn = load_scenario(workbook_bytes(sheets))
+    assert [s.lane for s in scn.suppliers] == ["Quarry Q rail (Apr-Sep)", "Quarry Q rail (Jan-Mar,Oct-Dec)"]
+    assert scn.lane_open(scn.suppliers[1])[0] and not scn.lane_open(scn.suppliers[0])[0]
+
+
+def test_period_settings_validated(sheets):
+    sheets["period_settings"] = [["first_date", "last_date", "key", "value"],
+                                 [START, START + dt.timedelta(days=2), "oxidation_pct", 120]]
+    assert "from 0 to 100" in one(sheets, "sheet 'period_settings'", "row 2", "column 'value'")
+    sheets["period_settings"][1][2] = "oxidation_pc"
+    m = one(sheets, "sheet 'period_settings'", "row 2", "column 'key'")
+    assert "did you mean 'oxidation_pct'" in m
+
+
+def test_period_settings_overlap(sheets):
+    sheets["period_settings"] = [["first_date", "last_date", "key", "value"],
+                                 [START, START + dt.timedelta(days=2), "oxidation_pct", 90],
+                                 [START + dt.timedelta(days=2), START + dt.timedelta(days=4), "oxidation_pct", 80]]
+    assert "overlaps row 2" in one(sheets, "sheet 'period_settings'", "row 3")
