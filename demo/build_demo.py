@@ -147,18 +147,36 @@ STORAGE: dict[str, tuple[float, float, float]] = {
 SUPPLIER_COLUMNS = (
     "supplier", "mode", "load_t", "max_loads_per_day", "lead_days", "weekdays",
     "price_per_t", "freight_per_load", "min_t_per_month", "max_t_per_month",
-    "caco3_pct",
+    "caco3_pct", "months",
 )
 SUPPLIERS: tuple[tuple[Any, ...], ...] = (
-    # main contract quarry: unit trains of ~96 cars x 100 t
+    # main contract quarry: unit trains of ~96 cars x 100 t; the railway's winter
+    # freight tariff (Dec-Feb) is dearer than the rest of the year
     ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 38400.0,
-     9600, 28800, 96.0),
+     9600, 28800, 96.0, "Mar-Nov"),
+    ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 47500.0,
+     9600, 28800, 96.0, "Dec-Feb"),
     # local quarry, pneumatic/end-dump trucks, quick but dear
     ("Oxlip Hill Stone", "truck", 25, 40, 2, "Mon-Fri", 21.00, 210.0,
-     None, 12000, 97.0),
+     None, 12000, 97.0, ""),
     # distant spot quarry: cheap stone, long haul, a lower grade
     ("Brindlecombe Quarry", "rail", 9000, 1, 14, "Tue,Thu", 12.75, 52000.0,
-     None, 18000, 95.0),
+     None, 18000, 95.0, ""),
+)
+
+# (party, mode, first day offset from the start, days closed): the main line's summer
+# track renewal, and the wallboard plant's own maintenance shutdown
+LANE_CLOSURES: tuple[tuple[str, str | None, int, int], ...] = (
+    ("Greyfell Quarry", "rail", 192, 14),
+    ("Larkspan Wallboard", "truck", 213, 7),
+)
+
+# (key, first day offset, days, value): an oxidation-air blower overhaul lowers
+# oxidation (gypsum purity dips below the wallboard limit) and burner tuning after
+# the spring outage raises fly-ash LOI above the ready-mix limit
+PERIOD_SETTINGS: tuple[tuple[str, int, int, float], ...] = (
+    ("oxidation_pct", 62, 6, 93.0),
+    ("fly_ash_loi_pct", 124, 10, 6.8),
 )
 RAIL_SUPPLIER = SUPPLIERS[0][0]
 RAIL_TRAIN_T = SUPPLIERS[0][2]
@@ -580,6 +598,17 @@ def build_demo_workbook(
         wb, "firm_orders",
         ("date", "material", "party", "mode", "loads", "tonnes"),
         _firm_order_rows(start, horizon_days),
+    )
+
+    _write_table(
+        wb, "lane_closures", ("party", "mode", "first_date", "last_date"),
+        [(party, mode, start + timedelta(days=a), min(end, start + timedelta(days=a + n - 1)))
+         for party, mode, a, n in LANE_CLOSURES if a < horizon_days],
+    )
+    _write_table(
+        wb, "period_settings", ("first_date", "last_date", "key", "value"),
+        [(start + timedelta(days=a), min(end, start + timedelta(days=a + n - 1)), key, value)
+         for key, a, n, value in PERIOD_SETTINGS if a < horizon_days],
     )
 
     _write_table(wb, "generation_history", ("date", "unit", "mwh"), hist_rows)
