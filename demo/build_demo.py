@@ -139,7 +139,7 @@ SCRUBBER_ROWS: tuple[tuple[str, Any, str], ...] = (
 # store: (capacity_t, safety_t, initial_t)
 STORAGE: dict[str, tuple[float, float, float]] = {
     "limestone": (45000.0, 9000.0, 24000.0),
-    "gypsum": (22000.0, 1000.0, 9000.0),
+    "gypsum": (18000.0, 1000.0, 9000.0),
     "fly_ash": (7000.0, 0.0, 2500.0),
     "bottom_ash": (3000.0, 0.0, 900.0),
 }
@@ -154,7 +154,7 @@ SUPPLIERS: tuple[tuple[Any, ...], ...] = (
     # freight tariff (Dec-Feb) is dearer than the rest of the year
     ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 38400.0,
      9600, 28800, 96.0, "Mar-Nov"),
-    ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 47500.0,
+    ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 67200.0,
      9600, 28800, 96.0, "Dec-Feb"),
     # local quarry, pneumatic/end-dump trucks, quick but dear
     ("Oxlip Hill Stone", "truck", 25, 40, 2, "Mon-Fri", 21.00, 210.0,
@@ -168,6 +168,7 @@ SUPPLIERS: tuple[tuple[Any, ...], ...] = (
 # track renewal, and the wallboard plant's own maintenance shutdown
 LANE_CLOSURES: tuple[tuple[str, str | None, int, int], ...] = (
     ("Greyfell Quarry", "rail", 192, 14),
+    ("Brindlecombe Quarry", "rail", 192, 14),  # the same main line
     ("Larkspan Wallboard", "truck", 213, 7),
 )
 
@@ -187,7 +188,7 @@ BUYER_COLUMNS = (
     "max_moisture_pct", "max_chloride_ppm", "max_loi_pct", "max_so3_pct", "months",
 )
 BUYERS: tuple[tuple[Any, ...], ...] = (
-    ("Larkspan Wallboard", "gypsum", "truck", 30, 30, "Mon-Fri", 4.50,
+    ("Larkspan Wallboard", "gypsum", "truck", 30, 45, "Mon-Fri", 4.50,
      12000, 22000, 94.0, 11.0, 100, None, None, ""),
     ("Fieldmend Agri-Gypsum", "gypsum", "truck", 25, 12, "Mon-Sat", 1.50,
      None, 6000, 85.0, 15.0, None, None, None, "Feb-Jun"),
@@ -201,7 +202,7 @@ BUYERS: tuple[tuple[Any, ...], ...] = (
 LANDFILL = "Velmora Bend on-site landfill"
 # material: (cost_per_t, max_t_per_day, airspace_t)
 DISPOSAL: dict[str, tuple[float, float, float]] = {
-    "gypsum": (14.00, 2500.0, 1_800_000.0),
+    "gypsum": (14.00, 800.0, 1_800_000.0),
     "fly_ash": (16.50, 2000.0, 1_200_000.0),
     "bottom_ash": (12.00, 600.0, 400_000.0),
 }

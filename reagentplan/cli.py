@@ -48,6 +48,25 @@ def _cmd_balance(args) -> int:
     return EXIT_OK
 
 
+def _cmd_plan(args) -> int:
+    from .pipeline import run_plan
+    from .report import staged_output
+    from .scenario import load_scenario
+    from .schedule import write_plan_files
+    from .summary import describe_plan
+
+    scenario = load_scenario(args.workbook)
+    run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
+                   time_limit=args.time_limit, firm_days=args.firm_days,
+                   risk_level=args.risk_level / 100, progress=True)
+    with staged_output(args.out) as tmp:
+        write_plan_files(run.plan, tmp)
+    print(describe_plan(run.plan))
+    print(f"\nWrote balance.csv, movements.csv, inventory.csv and summary.json to {args.out}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_BREACH if run.plan.breaches else EXIT_OK
+
+
 def _cmd_demo(args) -> int:
     from demo.build_demo import build_demo_workbook
 
@@ -93,6 +112,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("workbook")
     p.add_argument("--out", required=True, help="output folder")
     p.set_defaults(func=_cmd_balance)
+    p = sub.add_parser("plan", help="optimised deliveries, store levels and haul-outs")
+    p.add_argument("workbook")
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--futures", type=int, default=500,
+                   help="sampled futures to guard the plan against (0 = none; default %(default)s)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the futures (default %(default)s)")
+    p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
+    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
+                   help="MIP solver (default %(default)s, the fastest here by measurement)")
+    p.add_argument("--firm-days", type=int, default=56,
+                   help="days planned one by one; weekly outlook after (default %(default)s)")
+    p.add_argument("--risk-level", type=float, default=5.0,
+                   help="accepted chance [%%] of dropping below safety or above capacity on a day "
+                        "(default %(default)s)")
+    p.set_defaults(func=_cmd_plan)
     return parser
 
 

@@ -36,7 +36,7 @@ def staged_output(out_dir: str | os.PathLike) -> Iterator[Path]:
         shutil.rmtree(tmp, ignore_errors=True)
 
 
-def write_csv(frame: pd.DataFrame, path: Path, float_format: str = "%.6g") -> Path:
+def write_csv(frame: pd.DataFrame, path: Path, float_format: str = "%.10g") -> Path:
     """Write a frame as CSV with ISO dates and no index."""
     frame.to_csv(path, index=False, float_format=float_format, date_format="%Y-%m-%d")
     return path

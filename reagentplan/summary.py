@@ -66,3 +66,29 @@ def describe_balance(s: Scenario, frame: pd.DataFrame) -> str:
         out.append(f"  permit limit {s.plant.so2_limit_kg_per_gj:g} kg/GJ: "
                    f"{int(t['days_over_limit'])} day(s) over the limit")
     return "\n".join(out)
+
+
+def describe_plan(result) -> str:
+    """The plan against the baseline, the bookings and the breaches, for the terminal."""
+    s = result.summary()
+    cur = s["currency"]
+    mv = result.movements
+    lines = [f"Plan for {result.scenario.plant.name}: solver {s['solver']} ({s['status']}, gap "
+             f"{(s['gap'] or 0) * 100:.2f} %, {s['solve_seconds']:.1f} s)",
+             f"  total cost {s['total_cost']:>14,.0f} {cur}   (reorder-point baseline "
+             f"{s['baseline_total_cost']:,.0f} {cur}; both include the end-stock value)"]
+    inbound = mv[mv["direction"] == "in"]
+    for lane, g in inbound.groupby("lane"):
+        lines.append(f"  {lane:40} {int(g['loads'].sum()):>5} loads {g['tonnes'].sum():>12,.0f} t")
+    out = mv[mv["direction"] == "out"]
+    for (material, kind), g in out.groupby(["material", "kind"]):
+        word = "sold" if kind == "sale" else "landfilled"
+        lines.append(f"  {material:12} {word:11} {g['tonnes'].sum():>14,.0f} t")
+    if s["breaches"]:
+        lines.append(f"  {len(s['breaches'])} limit(s) broken:")
+        for b in s["breaches"][:8]:
+            lines.append(f"    - {b['store']}: {b['kind']} {b['first_date']} to {b['last_date']}, "
+                         f"{b['tonnes']:,.0f} t; cause: {b['cause']}")
+    else:
+        lines.append("  no limit broken in the planned (median) case")
+    return "\n".join(lines)

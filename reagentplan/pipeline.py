@@ -1,0 +1,41 @@
+"""The stages chained: scenario -> futures -> plan (and later risk and workbook).
+
+The command line and the dashboard call these functions; they hold no computation of
+their own.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .balance import balance_frame
+from .scenario import Scenario
+from .schedule import PlanResult, make_plan
+
+#: Which sampled flow guards which store.
+STORE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
+               "bottom_ash": "bottom_ash_t"}
+
+
+@dataclass
+class PlanRun:
+    plan: PlanResult
+    futures: object | None  # reagentplan.forecast.Futures, or None without futures
+
+
+def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
+             time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
+             progress: bool = False) -> PlanRun:
+    """Sample ``futures`` futures (none when 0), then plan against them."""
+    balance = balance_frame(scenario)
+    fut = None
+    flows = None
+    if futures > 0:
+        from .forecast import sample_futures
+
+        fut = sample_futures(scenario, futures, seed=seed, progress=progress)
+        flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
+                 if store in scenario.storage and q in fut.flows}
+    plan = make_plan(scenario, balance, flows=flows, risk_level=risk_level, firm_days=firm_days,
+                     solver=solver, time_limit=time_limit)
+    return PlanRun(plan, fut)

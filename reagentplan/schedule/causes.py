@@ -1,0 +1,114 @@
+"""Plain-words causes of a plan's breaches, for the coordinator.
+
+For each breach the lanes that could have prevented it are examined in the days before
+it, and the first binding rule is named: lead time, loads per day, weekday calendar or
+closure, contract maximum, quality limits shutting out buyers, landfill limit.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ..scenario import Scenario
+from .evaluate import DailyPlan, Evaluation
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, horizon_months
+
+
+def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluation) -> list[dict]:
+    """The breaches of an evaluation with their ``cause`` filled in (and private keys dropped)."""
+    dates = scenario.dates
+    month_index, _, _ = horizon_months(dates)
+    out = []
+    for b in ev.breaches:
+        a, z = b["_first"], b["_last"]
+        if b["kind"] == "contract minimum not reached":
+            lane = next(l for l in lanes if b["store"].startswith(l.name))
+            b["cause"] = _contract_min_cause(lane, a, z, month_index)
+        elif b["store"] == "limestone":
+            b["cause"] = _limestone_cause(scenario, lanes, plan, a, month_index)
+        else:
+            b["cause"] = _byproduct_cause(scenario, lanes, plan, b["store"], a, z, month_index)
+        out.append({k: v for k, v in b.items() if not k.startswith("_")})
+    return out
+
+
+def _limestone_cause(scenario, lanes, plan, day, month_index) -> str:
+    supply = [l for l in lanes if l.kind == SUPPLY]
+    earliest = min(l.lead_days for l in supply)
+    if day < earliest:
+        when = (f"before {scenario.dates[earliest]:%Y-%m-%d}" if earliest < len(scenario.dates)
+                else "within the horizon")
+        return (f"lead time: no new order can arrive {when} (shortest lead {earliest} days); "
+                "only firm orders and the initial stock count")
+    window = range(max(earliest, day - 14), day + 1)
+    reasons = []
+    for lane in supply:
+        open_days = [d for d in window if lane.open[d]]
+        if not open_days:
+            why = {lane.why_closed[d] for d in window if lane.why_closed[d]}
+            reasons.append(f"{lane.name} shut ({', '.join(sorted(why))})")
+            continue
+        k = month_index[day]
+        total = plan.quantity[lane.name][month_index == k].sum() * lane.load_t
+        if not np.isnan(lane.month_max_t[k]) and total + lane.load_t > lane.month_max_t[k] + 1e-6:
+            reasons.append(f"{lane.name} at its contract maximum for {scenario.dates[day]:%b %Y}")
+            continue
+        if all(plan.quantity[lane.name][d] >= lane.max_per_day for d in open_days):
+            reasons.append(f"{lane.name} at its loads per day")
+            continue
+    if reasons:
+        return "; ".join(reasons)
+    return "cost: the plan found the breach cheaper than the deliveries that would prevent it"
+
+
+def _byproduct_cause(scenario, lanes, plan, store, a, z, month_index) -> str:
+    outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
+    if not outs:
+        return f"no buyer or disposal site takes {store}"
+    window = range(max(0, a - 7), z + 1)
+    breach_days = range(a, z + 1)
+    reasons = []
+    for lane in outs:
+        why = [lane.why_closed[d] for d in window if lane.why_closed[d]]
+        shut = [lane.why_closed[d] for d in breach_days if lane.why_closed[d]]
+        if lane.kind == SALE and shut and len(shut) >= len(breach_days) / 2:
+            kinds = sorted(set(shut))
+            quality = [w for w in kinds if "limit" in w]
+            if quality:
+                reasons.append(f"quality limits shutting out {lane.party} ({quality[0]})")
+            else:
+                reasons.append(f"{lane.party} not taking material ({', '.join(kinds)})")
+            continue
+        if lane.kind == SALE:
+            k = month_index[a]
+            total = plan.quantity[lane.name][month_index == k].sum() * lane.load_t
+            if not np.isnan(lane.month_max_t[k]) and total + lane.load_t > lane.month_max_t[k] + 1e-6:
+                reasons.append(f"{lane.party}'s contract maximum reached")
+                continue
+        open_days = [d for d in window if lane.open[d]]
+        if lane.kind == LANDFILL:
+            if open_days and all(plan.quantity[lane.name][d] >= lane.max_per_day - 1e-6 for d in open_days):
+                reasons.append(f"landfill limit at {lane.party}")
+                continue
+            if plan.quantity[lane.name].sum() >= lane.airspace_t - 1e-6:
+                reasons.append(f"landfill airspace used up at {lane.party}")
+                continue
+        elif open_days and all(plan.quantity[lane.name][d] >= lane.max_per_day for d in open_days):
+            reasons.append(f"{lane.party} at its loads per day")
+            continue
+        if not open_days and why:
+            reasons.append(f"{lane.name} shut ({', '.join(sorted(set(why)))})")
+    if reasons:
+        return "; ".join(reasons)
+    return "cost: the plan found the breach cheaper than the haul-outs that would prevent it"
+
+
+def _contract_min_cause(lane: Lane, a: int, z: int, month_index) -> str:
+    days = range(a, z + 1)
+    shut = [lane.why_closed[d] for d in days if lane.why_closed[d]]
+    if len(shut) == len(days):
+        return f"{lane.name} shut all month ({', '.join(sorted(set(shut)))})"
+    if any("limit" in w for w in shut):
+        return f"quality limits shutting out {lane.party} on {sum('limit' in w for w in shut)} day(s)"
+    return "not enough material, or the minimum cost more than its penalty"

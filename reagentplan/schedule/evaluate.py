@@ -1,0 +1,147 @@
+"""Replaying a daily plan against the daily balance: store levels, costs and breaches.
+
+Both the optimiser's plan and the reorder-point baseline are priced here, in the same
+way, so their costs compare like for like.  Costs are in the scenario's currency;
+positive is money the plant spends.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ..scenario import Scenario
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+
+#: A tonne of limestone demand that cannot be met (the store is empty) costs this many
+#: times the shortage penalty: the scrubber cannot run.  Common practice, no source.
+EMPTY_PENALTY_FACTOR = 5.0
+#: Money per tonne short of a monthly contract minimum (take-or-pay style).
+CONTRACT_PENALTY_PER_T = 25.0
+
+PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
+
+
+@dataclass
+class DailyPlan:
+    """Quantities per lane and day: loads (supply, sale) or tonnes (landfill).
+
+    ``booked`` marks, per lane, the loads that were firm orders already placed.
+    """
+
+    quantity: dict[str, np.ndarray]
+    booked: dict[str, np.ndarray] = field(default_factory=dict)
+
+    def tonnes(self, lane: Lane) -> np.ndarray:
+        q = self.quantity[lane.name]
+        return q * lane.load_t if lane.load_t else q.astype(float)
+
+
+@dataclass
+class Evaluation:
+    levels: dict[str, np.ndarray]          # end-of-day level per store [t]
+    unmet: np.ndarray                      # limestone demand not met (store empty) [t]
+    costs: dict[str, float]
+    total_cost: float
+    breaches: list[dict]
+    month_totals: dict[str, np.ndarray]    # lane -> tonnes per horizon month
+
+
+def store_levels(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
+                 plan: DailyPlan) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """End-of-day level per store [t]: yesterday + arrivals − use (limestone), or
+    + production − departures (byproducts).  Limestone stops at zero and the demand it
+    cannot meet is returned as ``unmet`` [t]."""
+    n = len(balance)
+    inflow = {s: np.zeros(n) for s in scenario.storage}
+    outflow = {s: np.zeros(n) for s in scenario.storage}
+    for lane in lanes:
+        if lane.material not in scenario.storage:
+            continue
+        t = plan.tonnes(lane)
+        (inflow if lane.kind == SUPPLY else outflow)[lane.material] += t
+    levels, unmet = {}, np.zeros(n)
+    for store, st in scenario.storage.items():
+        if store == "limestone":
+            use = balance["limestone_t"].to_numpy(float)
+            level = np.empty(n)
+            x = st.initial_t
+            for d in range(n):
+                x = x + inflow[store][d] - use[d]
+                if x < 0:
+                    unmet[d] = -x
+                    x = 0.0
+                level[d] = x
+        else:
+            prod = balance[PRODUCTION[store]].to_numpy(float)
+            level = st.initial_t + np.cumsum(prod - outflow[store])
+        levels[store] = level
+    return levels, unmet
+
+
+def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan: DailyPlan) -> Evaluation:
+    """Levels, costs (with the end-of-horizon stock value) and breaches of a daily plan."""
+    p = scenario.plant
+    levels, unmet = store_levels(scenario, balance, lanes, plan)
+    month_index, months, _ = horizon_months(scenario.dates)
+    costs = dict.fromkeys(["limestone_purchase", "freight", "byproduct_sales", "landfill",
+                           "shortage_penalty", "overflow_penalty", "empty_penalty",
+                           "contract_penalty", "end_stock_value"], 0.0)
+    month_totals: dict[str, np.ndarray] = {}
+    breaches: list[dict] = []
+    for lane in lanes:
+        t = plan.tonnes(lane)
+        q = plan.quantity[lane.name]
+        if lane.kind == SUPPLY:
+            costs["limestone_purchase"] += float(lane.cost_per_t * t.sum())
+            costs["freight"] += float(lane.cost_per_load * q.sum())
+        elif lane.kind == SALE:
+            costs["byproduct_sales"] += float(lane.cost_per_t * t.sum())
+        else:
+            costs["landfill"] += float(lane.cost_per_t * t.sum())
+        totals = np.bincount(month_index, weights=t, minlength=len(months))
+        month_totals[lane.name] = totals
+        short = np.nan_to_num(lane.month_min_t - totals, nan=0.0).clip(min=0)
+        costs["contract_penalty"] += float(CONTRACT_PENALTY_PER_T * short.sum())
+        for k in np.flatnonzero(short > 1e-6):
+            days = np.flatnonzero(month_index == k)
+            breaches.append(_breach(f"{lane.name} (contract minimum)", scenario.dates, days[0], days[-1],
+                                    short[k], "contract minimum not reached"))
+    for store, level in levels.items():
+        st = scenario.storage[store]
+        below = np.clip(st.safety_t - level, 0, None)
+        above = np.clip(level - st.capacity_t, 0, None)
+        costs["shortage_penalty"] += float(p.shortage_penalty_per_t * below.sum())
+        costs["overflow_penalty"] += float(p.overflow_penalty_per_t * above.sum())
+        for a, b in _runs(below > 1e-6):
+            breaches.append(_breach(store, scenario.dates, a, b, below[a:b + 1].max(), "below safety stock"))
+        for a, b in _runs(above > 1e-6):
+            breaches.append(_breach(store, scenario.dates, a, b, above[a:b + 1].max(), "above capacity"))
+    costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
+    for a, b in _runs(unmet > 1e-6):
+        breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
+    end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    for store in ("gypsum", "fly_ash", "bottom_ash"):
+        if store in levels:
+            end_value += cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
+    costs["end_stock_value"] = float(end_value)
+    return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals)
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """(first, last) index of each run of True."""
+    idx = np.flatnonzero(mask)
+    if not len(idx):
+        return []
+    splits = np.flatnonzero(np.diff(idx) > 1)
+    starts = np.r_[idx[0], idx[splits + 1]]
+    ends = np.r_[idx[splits], idx[-1]]
+    return list(zip(starts.tolist(), ends.tolist()))
+
+
+def _breach(store: str, dates: pd.DatetimeIndex, a: int, b: int, tonnes: float, kind: str) -> dict:
+    return {"store": store, "kind": kind, "first_date": f"{dates[a]:%Y-%m-%d}",
+            "last_date": f"{dates[b]:%Y-%m-%d}", "tonnes": round(float(tonnes), 1), "cause": "",
+            "_first": a, "_last": b}

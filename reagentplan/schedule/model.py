@@ -1,0 +1,356 @@
+"""The optimisation model: one MathOpt formulation, solved by CP-SAT, HiGHS or SCIP.
+
+Decisions per period (a day in the firm window, a week after it, cut at month ends so
+that monthly contracts stay exact):
+
+- whole loads per supplier lane (arrivals) and per buyer lane (departures), within the
+  lane's open days (calendar, closures, lead time, quality eligibility) × loads per day;
+- landfill tonnes per site and material, within the daily limit and remaining airspace.
+
+Stores balance period by period.  Safety stock, capacity and contract minimums are soft
+with the workbook's penalties, so a plan always comes back.  A second, guarded level
+(`guard`: the extra cumulative demand or production of a high quantile of the sampled
+futures over the deterministic balance) is held above safety and below capacity with the
+same penalties: this is how the plan keeps the chance of breaking a limit under the
+user's level.  Stock left at the end is credited (limestone, at its cheapest delivered
+cost) or charged (byproducts, at their cheapest landfill cost).
+
+References
+----------
+OR-Tools MathOpt, https://developers.google.com/optimization/math_opt (model API).
+Silver, E. A., Pyke, D. F. and Thomas, D. J. (2016), *Inventory and Production
+Management in Supply Chains*, 4th ed., CRC Press: inventory balance, safety stock
+against a demand quantile.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import time
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from ortools.math_opt.python import mathopt
+
+from ..scenario import Scenario
+from .evaluate import EMPTY_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, PRODUCTION, DailyPlan
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+
+SOLVERS = {"highs": mathopt.SolverType.HIGHS, "cp-sat": mathopt.SolverType.CP_SAT,
+           "scip": mathopt.SolverType.GSCIP}
+
+
+def build_periods(dates: pd.DatetimeIndex, firm_days: int) -> list[tuple[int, int]]:
+    """(first, last) day index of each period: daily for ``firm_days``, then weekly
+    buckets cut at month boundaries."""
+    n = len(dates)
+    periods = [(d, d) for d in range(min(firm_days, n))]
+    d = len(periods)
+    while d < n:
+        end = min(d + 6, n - 1)
+        month_end = np.flatnonzero(dates.month[d:end + 1] != dates.month[d])
+        if len(month_end):
+            end = d + month_end[0] - 1
+        periods.append((d, end))
+        d = end + 1
+    return periods
+
+
+@dataclass
+class SolveOutcome:
+    plan: DailyPlan
+    solver: str
+    status: str
+    objective: float
+    bound: float
+    gap: float
+    solve_seconds: float
+
+
+def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
+               firm: dict[str, tuple[np.ndarray, np.ndarray]], guard: dict[str, np.ndarray],
+               *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
+               gap: float = 1e-5, hint: DailyPlan | None = None) -> SolveOutcome:
+    """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
+    on its days with a daily model whose weekly totals are those of the first solve
+    (arrivals exactly, departures at most), so the daily levels that the outputs show
+    are planned, not guessed."""
+    n = len(scenario.dates)
+    t0 = time.perf_counter()
+    periods = build_periods(scenario.dates, firm_days)
+    first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
+                           hint)
+    plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
+    if len(periods) < n:
+        daily = [(d, d) for d in range(n)]
+        totals = {lane.name: [(a, b, first["qty"][lane.name][k]) for k, (a, b) in enumerate(periods)
+                              if b > a] for lane in lanes}
+        left = max(time_limit - (time.perf_counter() - t0), 5.0)
+        try:
+            second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
+                                    plan, totals)
+            plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
+        except RuntimeError:
+            pass  # keep the even spread of the weekly totals
+    return SolveOutcome(plan, solver, first["status"], first["objective"], first["bound"],
+                        first["gap"], time.perf_counter() - t0)
+
+
+def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
+                   hint: DailyPlan | None, totals: dict | None = None) -> dict:
+    """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
+    dates = scenario.dates
+    n = len(dates)
+    P = len(periods)
+    pid = np.empty(n, dtype=int)
+    for k, (a, b) in enumerate(periods):
+        pid[a:b + 1] = k
+    days_in = np.array([b - a + 1 for a, b in periods], dtype=float)
+    month_index, months, _ = horizon_months(dates)
+    period_month = np.array([month_index[a] for a, _ in periods])
+    pen = scenario.plant
+    m = mathopt.Model(name="reagentplan")
+
+    def per_period(x: np.ndarray) -> np.ndarray:
+        return np.bincount(pid, weights=x, minlength=P)
+
+    # ---- lane variables
+    x: dict[str, list] = {}
+    firm_t: dict[str, np.ndarray] = {}
+    cost_terms = []
+    for lane in lanes:
+        f_loads, f_t = firm.get(lane.name, (np.zeros(n, int), np.zeros(n)))
+        firm_t[lane.name] = per_period(f_t)
+        if lane.load_t:
+            daily_cap = np.where(lane.open, np.maximum(lane.max_per_day - f_loads, 0), 0)
+            ub = per_period(daily_cap.astype(float))
+            x[lane.name] = [m.add_integer_variable(lb=0, ub=float(ub[k]), name=f"n[{lane.name},{k}]")
+                            if ub[k] > 0 else None for k in range(P)]
+            unit_cost = lane.cost_per_t * lane.load_t + lane.cost_per_load
+        else:
+            made = balance[PRODUCTION[lane.material]].to_numpy(float).sum()
+            made += scenario.storage[lane.material].initial_t if lane.material in scenario.storage else 0.0
+            cap = np.where(lane.open, min(lane.max_per_day, made), 0.0)  # finite for CP-SAT
+            cap = np.minimum(cap, lane.airspace_t)
+            ub = per_period(cap)
+            x[lane.name] = [m.add_variable(lb=0, ub=float(ub[k]), name=f"t[{lane.name},{k}]")
+                            if ub[k] > 0 else None for k in range(P)]
+            unit_cost = lane.cost_per_t
+        cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
+
+    def tonnes(lane: Lane, k: int):
+        v = x[lane.name][k]
+        base = firm_t[lane.name][k]
+        if v is None:
+            return base
+        return base + (lane.load_t * v if lane.load_t else v)
+
+    # ---- weekly totals of a first solve (second, daily solve only)
+    if totals:
+        for lane in lanes:
+            for a, b, q in totals[lane.name]:
+                terms = [v for v in x[lane.name][a:b + 1] if v is not None]
+                if not terms:
+                    continue
+                if lane.kind == SUPPLY:
+                    m.add_linear_constraint(sum(terms, 0.0) == float(q))
+                else:
+                    m.add_linear_constraint(sum(terms, 0.0) <= float(q) + 1e-6)
+
+    # ---- monthly contracts and airspace
+    for lane in lanes:
+        for j in range(len(months)):
+            ks = np.flatnonzero(period_month == j)
+            total = sum((tonnes(lane, k) for k in ks), 0.0)
+            hi, lo = lane.month_max_t[j], lane.month_min_t[j]
+            if not np.isnan(hi) and not isinstance(total, float):
+                booked = float(sum(firm_t[lane.name][k] for k in ks))
+                m.add_linear_constraint(total <= max(hi, booked))  # firm orders are kept as given
+            if not np.isnan(lo) and lo > 0:
+                short = m.add_variable(lb=0, ub=lo, name=f"cshort[{lane.name},{j}]")
+                m.add_linear_constraint(total + short >= lo)
+                cost_terms.append(CONTRACT_PENALTY_PER_T * short)
+        if lane.kind == LANDFILL and np.isfinite(lane.airspace_t):
+            m.add_linear_constraint(sum((v for v in x[lane.name] if v is not None), 0.0) <= lane.airspace_t)
+
+    # ---- stores
+    end_value = []
+    for store, st in scenario.storage.items():
+        if store == "limestone":
+            flow = -per_period(balance["limestone_t"].to_numpy(float))
+            ins = [l for l in lanes if l.kind == SUPPLY]
+            outs = []
+        else:
+            flow = per_period(balance[PRODUCTION[store]].to_numpy(float))
+            ins = []
+            outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
+        if solver == "cp-sat":
+            # CP-SAT scales the model to integers: an equality with a fractional constant
+            # has no solution there, so it plans whole tonnes (rounded cumulatively, so the
+            # horizon total stays within half a tonne)
+            flow = np.diff(np.round(np.cumsum(flow)), prepend=0.0)
+        g = guard.get(store)
+        g_end = np.zeros(P) if g is None else np.array([g[b] for _, b in periods])
+        # finite bounds everywhere (CP-SAT needs them; they also tighten the others)
+        if store == "limestone":
+            # a plan never holds more than capacity plus two days of the most that can
+            # arrive (beyond it, buying less is always cheaper); firm orders may force more
+            day_in = sum(l.max_per_day * l.load_t for l in ins)
+            most = max(st.capacity_t, st.initial_t) + sum(firm_t[l.name].sum() for l in ins) + 2 * day_in
+        else:
+            most = st.initial_t + float(flow.sum())
+        most = max(most, st.capacity_t, st.safety_t) + float(g_end.max(initial=0.0))
+        demand_total = float(-flow.sum()) if store == "limestone" else 0.0
+        prev = round(st.initial_t) if solver == "cp-sat" else st.initial_t
+        margin = 3.0 if solver == "cp-sat" else 0.0  # room for the rounding to whole tonnes
+        safety, capacity = st.safety_t + margin, st.capacity_t - margin
+        for k in range(P):
+            level = m.add_variable(lb=0, ub=most, name=f"I[{store},{k}]")
+            moved = sum((tonnes(l, k) for l in ins), 0.0) - sum((tonnes(l, k) for l in outs), 0.0)
+            if store == "limestone":
+                unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
+                m.add_linear_constraint(level == prev + moved + float(flow[k]) + unmet)
+                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * unmet)
+            else:
+                m.add_linear_constraint(level == prev + moved + float(flow[k]))
+            w = days_in[k]
+            if st.safety_t > 0 or store == "limestone":
+                short = m.add_variable(lb=0, ub=st.safety_t + 1.0, name=f"short[{store},{k}]")
+                m.add_linear_constraint(short + level >= safety)
+                cost_terms.append(pen.shortage_penalty_per_t * w * short)
+            over = m.add_variable(lb=0, ub=most, name=f"over[{store},{k}]")
+            m.add_linear_constraint(level - over <= capacity)
+            cost_terms.append(pen.overflow_penalty_per_t * w * over)
+            if g is not None and g_end[k] > 0:
+                gs = m.add_variable(lb=0, ub=most, name=f"guard[{store},{k}]")
+                if store == "limestone":
+                    m.add_linear_constraint(gs + level >= safety + float(g_end[k]))
+                    cost_terms.append(pen.shortage_penalty_per_t * w * gs)
+                else:
+                    m.add_linear_constraint(level - gs <= capacity - float(g_end[k]))
+                    cost_terms.append(pen.overflow_penalty_per_t * w * gs)
+            prev = level
+        value = (-cheapest_delivered_cost(scenario) if store == "limestone"
+                 else cheapest_disposal_cost(scenario, store))
+        end_value.append(value * prev)
+    # firm orders are constants of the plan: their cost is part of the objective
+    booked = 0.0
+    for lane in lanes:
+        if lane.name in firm:
+            f_loads, f_t = firm[lane.name]
+            booked += lane.cost_per_t * f_t.sum() + lane.cost_per_load * f_loads.sum()
+    m.minimize(sum(cost_terms, 0.0) + sum(end_value, 0.0) + float(booked))
+
+    # ---- solve
+    params = mathopt.SolveParameters(time_limit=dt.timedelta(seconds=time_limit),
+                                     relative_gap_tolerance=gap, threads=2 if solver != "highs" else None)
+    if solver == "cp-sat":
+        params.cp_sat.mip_max_bound = 1e9
+    model_params = None
+    if hint is not None:
+        values = {}
+        for lane in lanes:
+            q = hint.quantity[lane.name] - (firm.get(lane.name, (np.zeros(n, int), None))[0]
+                                            if lane.load_t else 0)
+            agg = per_period(np.asarray(q, float))
+            for k, v in enumerate(x[lane.name]):
+                if v is not None:
+                    values[v] = float(min(max(agg[k], 0), v.upper_bound))
+        model_params = mathopt.ModelSolveParameters(solution_hints=[mathopt.SolutionHint(variable_values=values)])
+    try:
+        result = mathopt.solve(m, SOLVERS[solver], params=params, model_params=model_params)
+    except Exception:  # a solver that refuses hints
+        result = mathopt.solve(m, SOLVERS[solver], params=params)
+    if not result.has_primal_feasible_solution():
+        raise RuntimeError(f"{solver} found no plan in {time_limit:g} s ({result.termination.reason.name})")
+    obj = result.objective_value()
+    bound = result.termination.objective_bounds.dual_bound
+    gap_ = abs(obj - bound) / max(abs(obj), 1.0) if np.isfinite(bound) else float("nan")
+    values = result.variable_values()
+    qty = {}
+    for lane in lanes:
+        per = np.array([0.0 if v is None else values[v] for v in x[lane.name]])
+        if lane.load_t:
+            per = np.rint(per).astype(int)
+        qty[lane.name] = per
+    return {"qty": qty, "status": result.termination.reason.name.lower(), "objective": obj,
+            "bound": bound, "gap": gap_}
+
+
+def spread_to_days(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
+                   firm: dict[str, tuple[np.ndarray, np.ndarray]], periods: list[tuple[int, int]],
+                   qty: dict[str, np.ndarray]) -> DailyPlan:
+    """Turn per-period quantities into days: a daily period is its day; a weekly
+    bucket's loads go to its open days, evenly spaced, within loads per day."""
+    n = len(scenario.dates)
+    out, booked = {}, {}
+    for lane in lanes:
+        f_loads = firm.get(lane.name, (np.zeros(n, int), None))[0]
+        daily = np.zeros(n, dtype=int if lane.load_t else float)
+        for k, (a, b) in enumerate(periods):
+            q = qty[lane.name][k]
+            if q <= 0:
+                continue
+            if a == b:
+                daily[a] += q
+                continue
+            open_days = [d for d in range(a, b + 1) if lane.open[d]]
+            if lane.load_t:
+                cap = {d: max(lane.max_per_day - f_loads[d], 0) for d in open_days}
+                left = int(q)
+                while left > 0 and any(cap.values()):
+                    k_days = [d for d in open_days if cap[d] > 0]
+                    step = max(len(k_days) / left, 1.0)
+                    picks = [k_days[int(i * step + step / 2) if int(i * step + step / 2) < len(k_days) else -1]
+                             for i in range(min(left, len(k_days)))]
+                    for d in picks:
+                        if left and cap[d] > 0:
+                            daily[d] += 1
+                            cap[d] -= 1
+                            left -= 1
+            else:
+                each = q / max(len(open_days), 1)
+                for d in open_days:
+                    daily[d] += min(each, lane.max_per_day)
+        out[lane.name] = daily + (f_loads if lane.load_t else 0)
+        if lane.load_t:
+            booked[lane.name] = f_loads.copy()
+    for store in ("gypsum", "fly_ash", "bottom_ash"):
+        if store in scenario.storage:
+            _never_ship_more_than_stock(scenario, balance, store, lanes, periods, out, booked)
+    return DailyPlan(out, booked)
+
+
+def _never_ship_more_than_stock(scenario, balance, store, lanes, periods, qty, booked) -> None:
+    """Within a weekly bucket, move departures that would ship more than is in the store
+    to the next open day of the same bucket (or drop them at the bucket's end)."""
+    n = len(balance)
+    prod = balance[PRODUCTION[store]].to_numpy(float)
+    outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
+    end_of = np.empty(n, dtype=int)
+    for a, b in periods:
+        end_of[a:b + 1] = b
+    level = scenario.storage[store].initial_t
+    for d in range(n):
+        level += prod[d]
+        for lane in sorted(outs, key=lambda l: -l.cost_per_t):  # cut the dearest way out first
+            t = qty[lane.name][d] * (lane.load_t or 1.0)
+            level -= t
+        for lane in sorted(outs, key=lambda l: -l.cost_per_t):
+            if level >= -0.01:
+                break
+            fixed = booked.get(lane.name, np.zeros(n, int))[d] if lane.load_t else 0
+            while level < -0.01 and qty[lane.name][d] > fixed:
+                if lane.load_t:
+                    qty[lane.name][d] -= 1
+                    level += lane.load_t
+                    move = 1
+                else:
+                    move = min(qty[lane.name][d], -level)
+                    qty[lane.name][d] -= move
+                    level += move
+                later = [e for e in range(d + 1, end_of[d] + 1)
+                         if lane.open[e] and qty[lane.name][e] + move <= lane.max_per_day + 1e-9]
+                if later:
+                    qty[lane.name][later[0]] += move

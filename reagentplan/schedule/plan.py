@@ -1,0 +1,168 @@
+"""Planning a scenario end to end: lanes, baseline, optimised plan, their evaluation and
+the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .. import CAUTION
+from ..balance import balance_frame
+from ..scenario import Scenario
+from .baseline import baseline_plan
+from .causes import explain
+from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads
+from .model import SolveOutcome, solve_plan
+
+DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
+
+
+def guard_margins(balance: pd.DataFrame, flows: dict[str, np.ndarray] | None,
+                  risk_level: float) -> dict[str, np.ndarray]:
+    """Extra cumulative tonnes [t] per store and day that the plan holds against.
+
+    For each store, the (1 − risk_level) quantile over the futures of the cumulative
+    demand (limestone) or production (byproducts) minus the deterministic cumulative
+    amount, never below zero.  If the plan's level stays above safety (below capacity)
+    by this margin on a day, the chance of breaking the limit that day, with the
+    movements held fixed, is at most ``risk_level``.
+    """
+    if not flows:
+        return {}
+    out = {}
+    for store, column in DEMAND_COLUMN.items():
+        if store not in flows:
+            continue
+        cum = np.cumsum(np.asarray(flows[store], dtype=float), axis=1)
+        q = np.quantile(cum, 1 - risk_level, axis=0)
+        out[store] = np.clip(q - np.cumsum(balance[column].to_numpy(float)), 0, None)
+    return out
+
+
+@dataclass
+class PlanResult:
+    scenario: Scenario
+    balance: pd.DataFrame
+    lanes: list[Lane]
+    plan: DailyPlan
+    evaluation: Evaluation
+    baseline: DailyPlan
+    baseline_evaluation: Evaluation
+    outcome: SolveOutcome
+    breaches: list[dict]
+    firm_days: int
+
+    @property
+    def movements(self) -> pd.DataFrame:
+        return movements_frame(self.scenario, self.lanes, self.plan, self.firm_days)
+
+    @property
+    def inventory(self) -> pd.DataFrame:
+        return inventory_frame(self.scenario, self.evaluation)
+
+    def summary(self) -> dict:
+        o = self.outcome
+        return {
+            "solver": o.solver, "status": o.status, "objective": round(o.objective, 2),
+            "bound": round(o.bound, 2) if np.isfinite(o.bound) else None,
+            "gap": round(o.gap, 6) if np.isfinite(o.gap) else None,
+            "solve_seconds": round(o.solve_seconds, 3),
+            "total_cost": round(self.evaluation.total_cost, 2),
+            "baseline_total_cost": round(self.baseline_evaluation.total_cost, 2),
+            "costs": {k: round(v, 2) for k, v in self.evaluation.costs.items()},
+            "baseline_costs": {k: round(v, 2) for k, v in self.baseline_evaluation.costs.items()},
+            "currency": self.scenario.plant.currency,
+            "firm_days": self.firm_days,
+            "breaches": self.breaches,
+            "baseline_breaches": len(self.baseline_evaluation.breaches),
+            "caution": CAUTION,
+        }
+
+
+def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
+              flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
+              firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
+              gap: float = 1e-5) -> PlanResult:
+    """Plan a scenario.
+
+    Parameters
+    ----------
+    balance : the deterministic daily balance (computed when not given).
+    flows : sampled futures per store, arrays (futures × days) [t/d] of limestone demand
+        or byproduct production; they set the guard margins (`guard_margins`).
+    risk_level : accepted chance of breaking safety stock or capacity on a day [-].
+    firm_days : days planned one by one; weekly buckets after [d].
+    """
+    if balance is None:
+        balance = balance_frame(scenario)
+    lanes = build_lanes(scenario, balance)
+    firm = firm_loads(scenario, lanes)
+    base = baseline_plan(scenario, balance, lanes, firm)
+    base_ev = evaluate(scenario, balance, lanes, base)
+    guard = guard_margins(balance, flows, risk_level)
+    outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
+                         time_limit=time_limit, gap=gap, hint=base)
+    ev = evaluate(scenario, balance, lanes, outcome.plan)
+    base_ev.breaches = explain(scenario, lanes, base, base_ev)
+    breaches = explain(scenario, lanes, outcome.plan, ev)
+    return PlanResult(scenario, balance, lanes, outcome.plan, ev, base, base_ev, outcome, breaches,
+                      firm_days)
+
+
+def movements_frame(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, firm_days: int) -> pd.DataFrame:
+    """One row per lane and day with something moving (DESIGN §6 ``movements.csv``)."""
+    dates = scenario.dates
+    rows = []
+    for lane in lanes:
+        q = plan.quantity[lane.name]
+        booked = plan.booked.get(lane.name)
+        for d in np.flatnonzero(q > 1e-9):
+            tonnes = float(q[d] * lane.load_t) if lane.load_t else float(q[d])
+            cost = tonnes * lane.cost_per_t + (float(q[d]) * lane.cost_per_load if lane.load_t else 0.0)
+            order_by = dates[d] - pd.Timedelta(days=lane.lead_days) if lane.kind == SUPPLY else pd.NaT
+            rows.append({
+                "date": dates[d], "material": lane.material,
+                "direction": "in" if lane.kind == SUPPLY else "out", "party": lane.party,
+                "lane": lane.name, "loads": int(q[d]) if lane.load_t else np.nan,
+                "tonnes": tonnes, "cost": round(cost, 2), "order_by": order_by,
+                "firm": bool(d < firm_days),
+                "booked": bool(booked is not None and booked[d] > 0),
+                "kind": lane.kind,
+            })
+    cols = ["date", "material", "direction", "party", "lane", "loads", "tonnes", "cost", "order_by",
+            "firm", "booked", "kind"]
+    frame = pd.DataFrame(rows, columns=cols)
+    frame["loads"] = frame["loads"].astype("Int64")
+    return frame.sort_values(["date", "direction", "material", "lane"]).reset_index(drop=True)
+
+
+def inventory_frame(scenario: Scenario, ev: Evaluation) -> pd.DataFrame:
+    """End-of-day level per store with safety and capacity (``inventory.csv``)."""
+    parts = []
+    for store, level in ev.levels.items():
+        st = scenario.storage[store]
+        parts.append(pd.DataFrame({"date": scenario.dates, "store": store, "level_t": level,
+                                   "safety_t": st.safety_t, "capacity_t": st.capacity_t}))
+    return pd.concat(parts, ignore_index=True)
+
+
+def write_plan_files(result: PlanResult, folder: Path) -> list[Path]:
+    """Write balance.csv, movements.csv, inventory.csv and summary.json into ``folder``."""
+    from ..report import write_csv
+
+    paths = [write_csv(result.balance, folder / "balance.csv"),
+             write_csv(result.movements, folder / "movements.csv"),
+             write_csv(result.inventory, folder / "inventory.csv", float_format="%.3f")]
+    path = folder / "summary.json"
+    path.write_text(json.dumps(result.summary(), indent=2))
+    paths.append(path)
+    return paths
+
+
+__all__ = ["make_plan", "PlanResult", "guard_margins", "movements_frame", "inventory_frame",
+           "write_plan_files", "LANDFILL", "SALE"]

@@ -1,0 +1,147 @@
+"""The scheduler: hand-worked optimum, every rule checked independently, impossible
+cases, and never worse than the reorder-point baseline."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from helpers import minimal_sheets, workbook_bytes, write_workbook
+from plancheck import check_plan
+from reagentplan.cli import main
+from reagentplan.scenario import load_scenario
+from reagentplan.schedule import make_plan
+from reagentplan.schedule.model import build_periods
+
+
+def tiny(initial=700.0, safety=150.0, capacity=1200.0, lead=3):
+    """Ten days from Monday 2030-03-25; limestone use 63.045 t/day (the hand-worked
+    balance of test_balance); one quarry whose March and April rows differ in freight."""
+    s = minimal_sheets(days=10)
+    start = dt.date(2030, 3, 25)
+    s["plant"][2][1] = start
+    s["generation"] = [s["generation"][0]] + [[start + dt.timedelta(days=i), "U1", 2500] for i in range(10)]
+    s["coal_blend"][1][0] = start
+    s["storage"][1] = ["limestone", capacity, safety, initial]
+    hdr = s["suppliers"][0] + ["months"]
+    s["suppliers"] = [hdr,
+                      ["Quarry Q", "rail", 600, 1, lead, "Mon,Wed,Fri", 10, 3000, None, None, "Jan-Mar"],
+                      ["Quarry Q", "rail", 600, 1, lead, "Mon,Wed,Fri", 10, 1000, None, None, "Apr-Dec"]]
+    return s
+
+
+def test_hand_worked_optimum_cheapest_train_day():
+    """Use is 63.045 t/day from 700 t with a 150 t safety stock: without a train the
+    end-of-day level 700 − 63.045·(d+1) is 195.6 t on day 7 (Mon 1 April) and 132.6 t on
+    day 8, below safety.  The quarry loads Mon, Wed, Fri; the lead time (3 days) rules out
+    days 0-2, so the train days are Fri 29 March (day 4), Mon 1 April (day 7), and Wed 3
+    April (day 9), too late, since day 8 would be below safety.  April freight is $1,000 a
+    train against $3,000 in March, and one train of 600 t covers the ten days (700 + 600
+    − 630.45 = 669.6 t left).  So the optimum is one train on Monday 1 April, after which the
+    level is 700 − 8 × 63.045 + 600 = 795.6 t, below the 1,200 t capacity."""
+    scn = load_scenario(workbook_bytes(tiny()))
+    r = make_plan(scn, firm_days=10)
+    mv = r.movements
+    inbound = mv[mv["direction"] == "in"]
+    assert len(inbound) == 1
+    row = inbound.iloc[0]
+    assert row["date"] == pd.Timestamp("2030-04-01") and row["loads"] == 1
+    assert row["lane"] == "Quarry Q rail (Apr-Dec)"
+    assert row["order_by"] == pd.Timestamp("2030-03-29")
+    assert r.breaches == []
+    level = r.evaluation.levels["limestone"]
+    assert level[7] == pytest.approx(700 - 8 * 63.045 + 600, rel=1e-3)
+    assert r.evaluation.total_cost <= r.baseline_evaluation.total_cost + 1e-6
+
+
+def test_impossible_scenario_names_the_cause(tmp_path):
+    """Initial stock below safety and a lead time longer than the horizon: a plan still
+    comes back, exit code 1, and the breach names the lead time."""
+    s = tiny(initial=100.0, lead=20)
+    path = write_workbook(s, tmp_path / "impossible.xlsx")
+    out = tmp_path / "out"
+    assert main(["plan", str(path), "--out", str(out), "--futures", "0"]) == 1
+    summary = json.loads((out / "summary.json").read_text())
+    lime = [b for b in summary["breaches"] if b["store"] == "limestone"]
+    assert lime and "lead time" in lime[0]["cause"]
+    assert lime[0]["first_date"] == "2030-03-25"
+    for name in ("balance.csv", "movements.csv", "inventory.csv", "summary.json"):
+        assert (out / name).exists()
+
+
+def test_periods_daily_then_weekly_cut_at_month_ends():
+    dates = pd.date_range("2030-01-01", periods=90)
+    periods = build_periods(dates, 10)
+    assert periods[:10] == [(d, d) for d in range(10)]
+    assert all(b - a <= 6 for a, b in periods)
+    assert all(dates[a].month == dates[b].month for a, b in periods)
+    assert periods[-1][1] == 89 and sum(b - a + 1 for a, b in periods) == 90
+    assert build_periods(dates, 500) == [(d, d) for d in range(90)]
+
+
+@pytest.fixture(scope="module")
+def demo_plan(tmp_path_factory, demo_path):
+    out = tmp_path_factory.mktemp("plan")
+    code = main(["plan", str(demo_path), "--out", str(out), "--futures", "0", "--time-limit", "60"])
+    return code, out
+
+
+def _files(out):
+    return (pd.read_csv(out / "movements.csv"), pd.read_csv(out / "balance.csv"),
+            pd.read_csv(out / "inventory.csv"), json.loads((out / "summary.json").read_text()))
+
+
+def test_demo_plan_keeps_every_rule(demo_plan, demo_path):
+    code, out = demo_plan
+    mv, bal, inv, summary = _files(out)
+    scn = load_scenario(demo_path)
+    assert code == (1 if summary["breaches"] else 0)
+    assert check_plan(scn, mv, bal, inv, summary["breaches"]) == []
+    assert set(mv.columns) >= {"date", "material", "direction", "party", "lane", "loads", "tonnes",
+                               "cost", "order_by", "firm"}
+    assert set(inv.columns) >= {"date", "store", "level_t", "safety_t", "capacity_t"}
+    for key in ("solver", "status", "objective", "bound", "gap", "solve_seconds", "total_cost",
+                "baseline_total_cost", "breaches"):
+        assert key in summary
+    assert summary["total_cost"] <= summary["baseline_total_cost"]
+    firm = mv[mv["firm"]]
+    assert pd.to_datetime(firm["date"]).max() < pd.Timestamp(scn.plant.start_date) + pd.Timedelta(days=56)
+    assert not mv[~mv["firm"]].empty
+
+
+def test_demo_baseline_also_keeps_the_rules(demo_path):
+    """The yardstick obeys the same rules (calendars, lead times, quality, contracts)."""
+    scn = load_scenario(demo_path)
+    r = make_plan(scn, firm_days=56, time_limit=30)
+    from reagentplan.schedule.plan import inventory_frame, movements_frame
+
+    mv = movements_frame(scn, r.lanes, r.baseline, 56)
+    inv = inventory_frame(scn, r.baseline_evaluation)
+    errors = check_plan(scn, mv.astype({"date": str}), r.balance, inv, r.baseline_evaluation.breaches)
+    assert errors == []
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_random_small_scenarios(seed):
+    """Random leads, calendars, stocks and contracts: every rule holds, and the optimum
+    never costs more than the baseline."""
+    rng = np.random.default_rng(seed)
+    s = minimal_sheets(days=int(rng.integers(12, 40)))
+    lead = int(rng.integers(0, 6))
+    days = rng.choice(["Mon-Fri", "Mon,Wed,Fri", "Tue-Sat", ""])
+    s["suppliers"][1] = ["Quarry Q", "rail", float(rng.choice([300, 500, 800])), int(rng.integers(1, 3)),
+                         lead, days, 15, float(rng.integers(0, 4000)), None, float(rng.choice([3000, 30000]))]
+    s["suppliers"].append(["Truck Co", "truck", 25, 10, 1, "Mon-Sat", 25, 100, None, None])
+    s["storage"][1] = ["limestone", 2000, 300, float(rng.integers(200, 1500))]
+    s["storage"][2] = ["gypsum", float(rng.integers(600, 3000)), 0, 200]
+    s["buyers"][1][4] = int(rng.integers(1, 10))
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=int(rng.integers(5, 60)), time_limit=20)
+    mv = r.movements
+    errors = check_plan(scn, mv.astype({"date": str}), r.balance, r.inventory, r.breaches)
+    assert errors == []
+    assert r.evaluation.total_cost <= r.baseline_evaluation.total_cost + 1e-6 * abs(r.baseline_evaluation.total_cost) + 1e-6
