@@ -50,19 +50,19 @@ def _cmd_balance(args) -> int:
 
 def _cmd_plan(args) -> int:
     from .pipeline import run_plan
-    from .report import staged_output
+    from .report import staged_output, write_run
     from .scenario import load_scenario
-    from .schedule import write_plan_files
-    from .summary import describe_plan
+    from .summary import describe_plan, describe_risk
 
     scenario = load_scenario(args.workbook)
     run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
                    time_limit=args.time_limit, firm_days=args.firm_days,
                    risk_level=args.risk_level / 100, progress=True)
     with staged_output(args.out) as tmp:
-        write_plan_files(run.plan, tmp)
+        written = write_run(run, tmp)
     print(describe_plan(run.plan))
-    print(f"\nWrote balance.csv, movements.csv, inventory.csv and summary.json to {args.out}")
+    print(describe_risk(run))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     print(f"\nCaution: {CAUTION}")
     return EXIT_BREACH if run.plan.breaches else EXIT_OK
 
@@ -70,19 +70,19 @@ def _cmd_plan(args) -> int:
 def _cmd_demo(args) -> int:
     from demo.build_demo import build_demo_workbook
 
-    from .balance import balance_frame
-    from .report import staged_output, write_csv
+    from .pipeline import run_plan
+    from .report import staged_output, write_run
     from .scenario import load_scenario
-    from .summary import describe_balance
+    from .summary import describe_demo
 
     out = Path(args.out)
     with staged_output(out) as tmp:
         build_demo_workbook(tmp / "demo_station.xlsx")
         scenario = load_scenario(tmp / "demo_station.xlsx")
-        frame = balance_frame(scenario)
-        write_csv(frame, tmp / "balance.csv")
-    print(describe_balance(scenario, frame))
-    print(f"\nWrote {out / 'demo_station.xlsx'} and {out / 'balance.csv'}")
+        run = run_plan(scenario, futures=args.futures, seed=0, time_limit=args.time_limit,
+                       progress=True)
+        written = write_run(run, tmp)
+    print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]))
     print(f"\nCaution: {CAUTION}")
     return EXIT_OK
 
@@ -98,6 +98,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("demo", help="build the demo station's workbook and run it end to end")
     p.add_argument("--out", default="reagentplan-demo", help="output folder (default: %(default)s)")
+    p.add_argument("--futures", type=int, default=500, help="sampled futures (default %(default)s)")
+    p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
     p.set_defaults(func=_cmd_demo)
 
     p = sub.add_parser("template", help="write the blank, annotated scenario workbook")

@@ -45,3 +45,29 @@ def write_csv(frame: pd.DataFrame, path: Path, float_format: str = "%.10g") -> P
 def caution_lines() -> list[str]:
     """The caution printed with every result."""
     return [CAUTION]
+
+
+def write_run(run, folder: Path) -> list[Path]:
+    """Every output of a planned run into ``folder``: balance.csv, movements.csv,
+    inventory.csv, summary.json (with the top risks), and with futures risk.csv and
+    forecast.csv; then plan.xlsx."""
+    import json
+
+    from .plan_workbook import write_plan_workbook
+    from .schedule import write_plan_files
+
+    folder = Path(folder)
+    paths = write_plan_files(run.plan, folder)
+    summary = run.plan.summary()
+    if run.risk is not None:
+        risk = run.risk.frame
+        paths.append(write_csv(risk, folder / "risk.csv"))
+        summary["top_risks"] = run.risk.top
+        summary["futures"] = run.risk.n_futures
+    (folder / "summary.json").write_text(json.dumps(summary, indent=2))
+    if run.futures is not None:
+        from .forecast import forecast_frame
+
+        paths.append(write_csv(forecast_frame(run.futures), folder / "forecast.csv"))
+    paths.append(write_plan_workbook(run, folder / "plan.xlsx"))
+    return paths

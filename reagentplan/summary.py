@@ -92,3 +92,51 @@ def describe_plan(result) -> str:
     else:
         lines.append("  no limit broken in the planned (median) case")
     return "\n".join(lines)
+
+
+def describe_risk(run) -> str:
+    """The top risks of a planned run, for the terminal."""
+    if run.risk is None:
+        return "  risk: no futures sampled (--futures 0), so no risk figures"
+    lines = [f"Risk across {run.risk.n_futures} sampled futures (plan held fixed):"]
+    if not run.risk.top:
+        lines.append("  no store passes a 5 % chance of breaking a limit on any day")
+    for t in run.risk.top:
+        after = f" -> {100 * t['chance_after']:.1f} %" if "chance_after" in t else ""
+        lines.append(f"  - {t['store']}: {100 * t['chance']:.1f} % chance {t['what']} from "
+                     f"{t['first_date']}; remedy: {t['remedy']}{after}")
+    return "\n".join(lines)
+
+
+def describe_demo(run, out, files: list[str]) -> str:
+    """The short table the demo prints: cost against the baseline, bookings, tonnes sold
+    and landfilled, the top risks and where the files are."""
+    plan = run.plan
+    s = plan.summary()
+    cur = s["currency"]
+    mv = plan.movements
+    inbound = mv[mv["direction"] == "in"]
+    trains = int(inbound.loc[inbound["lane"].str.contains(" rail"), "loads"].sum())
+    trucks = int(inbound.loc[inbound["lane"].str.contains(" truck"), "loads"].sum())
+    saving = s["baseline_total_cost"] - s["total_cost"]
+    lines = [f"Demo station: {plan.scenario.plant.name}, {plan.scenario.plant.horizon_days} days "
+             f"from {plan.scenario.plant.start_date:%Y-%m-%d}",
+             "",
+             f"  {'cost of the plan':34} {s['total_cost']:>14,.0f} {cur}",
+             f"  {'cost of the reorder-point policy':34} {s['baseline_total_cost']:>14,.0f} {cur}",
+             f"  {'saving':34} {saving:>14,.0f} {cur}",
+             f"  {'limestone trains / trucks booked':34} {trains:>8} / {trucks}",
+             ""]
+    out_rows = mv[mv["direction"] == "out"]
+    lines.append(f"  {'product':12} {'sold [t]':>12} {'landfilled [t]':>15}")
+    for material in ("gypsum", "fly_ash", "bottom_ash"):
+        g = out_rows[out_rows["material"] == material]
+        sold = g.loc[g["kind"] == "sale", "tonnes"].sum()
+        land = g.loc[g["kind"] == "landfill", "tonnes"].sum()
+        lines.append(f"  {material:12} {sold:>12,.0f} {land:>15,.0f}")
+    lines.append("")
+    lines.append(f"  limits broken in the planned case: {len(s['breaches'])}")
+    lines.append(describe_risk(run))
+    lines.append("")
+    lines.append(f"Files in {out}: {', '.join(files)}")
+    return "\n".join(lines)

@@ -25,6 +25,12 @@ def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluati
         if b["kind"] == "contract minimum not reached":
             lane = next(l for l in lanes if b["store"].startswith(l.name))
             b["cause"] = _contract_min_cause(lane, a, z, month_index)
+        elif b["store"] == "limestone" and b["kind"] == "above capacity":
+            b["cause"] = ("stock held against the futures of higher use, or firm orders: fewer or "
+                          "later loads would leave the worse futures below safety stock")
+        elif b["store"] != "limestone" and b["kind"] == "below safety stock":
+            b["cause"] = ("room kept for the futures of higher production: the plan ships below "
+                          "safety stock rather than risk overflowing in the worse futures")
         elif b["store"] == "limestone":
             b["cause"] = _limestone_cause(scenario, lanes, plan, a, month_index)
         else:

@@ -37,6 +37,10 @@ from ..scenario import Scenario
 from .evaluate import EMPTY_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, PRODUCTION, DailyPlan
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 
+#: Weight of a guarded (worse-future) shortfall against a planned one: the plan first keeps
+#: its own median levels inside the limits, then buys what protection it can.
+GUARD_WEIGHT = 0.25
+
 SOLVERS = {"highs": mathopt.SolverType.HIGHS, "cp-sat": mathopt.SolverType.CP_SAT,
            "scip": mathopt.SolverType.GSCIP}
 
@@ -226,10 +230,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 gs = m.add_variable(lb=0, ub=most, name=f"guard[{store},{k}]")
                 if store == "limestone":
                     m.add_linear_constraint(gs + level >= safety + float(g_end[k]))
-                    cost_terms.append(pen.shortage_penalty_per_t * w * gs)
+                    cost_terms.append(GUARD_WEIGHT * pen.shortage_penalty_per_t * w * gs)
                 else:
                     m.add_linear_constraint(level - gs <= capacity - float(g_end[k]))
-                    cost_terms.append(pen.overflow_penalty_per_t * w * gs)
+                    cost_terms.append(GUARD_WEIGHT * pen.overflow_penalty_per_t * w * gs)
             prev = level
         value = (-cheapest_delivered_cost(scenario) if store == "limestone"
                  else cheapest_disposal_cost(scenario, store))

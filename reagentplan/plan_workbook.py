@@ -1,0 +1,371 @@
+"""The plan workbook, ``plan.xlsx``: one sheet per role, the daily balance, the costs and
+every assumption, laid out to be printed and pinned up as well as read on screen.
+
+Written with openpyxl: native line and bar charts, conditional colouring of the risk
+figures, frozen headers, units in every header, print titles and landscape fit-to-width.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+from dataclasses import asdict
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.chart import BarChart, LineChart, Reference
+from openpyxl.formatting.rule import CellIsRule
+from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.utils import get_column_letter
+
+from . import CAUTION
+from .schedule.lanes import SALE, SUPPLY, horizon_months
+
+HEAD_FILL = PatternFill("solid", fgColor="2F4858")
+HEAD_FONT = Font(bold=True, color="FFFFFF")
+TITLE_FONT = Font(bold=True, size=14, color="2F4858")
+NOTE_FONT = Font(italic=True, color="555555")
+#: Risk colouring: a pale sand above the alert level, a brick red above 20 %.
+WATCH_FILL = PatternFill("solid", fgColor="F6E7B4")
+ALARM_FILL = PatternFill("solid", fgColor="E4A18B")
+OUTLOOK_FILL = PatternFill("solid", fgColor="EEF2F4")
+
+SOURCES = [
+    ("SO2 from fuel sulfur", "US EPA AP-42, 5th ed., Section 1.1 (about 95 % of fuel S to SO2; Table 1.1-3)"),
+    ("Molar masses", "IUPAC standard atomic weights, via the periodictable library"),
+    ("Unit conversions", "NIST SP 811, via the pint library"),
+    ("Limestone scrubber chemistry", "Srivastava & Jozewicz (2001), J. Air & Waste Manage. Assoc. 51:1676"),
+    ("Fly ash SO3 and LOI reporting", "ASTM C618 (class F: SO3 at most 5 %, LOI at most 6 %)"),
+    ("Landfill mark, trigger days, empty-store penalty", "common practice, no source"),
+]
+
+
+def _frame_to_sheet(ws, frame: pd.DataFrame, start_row: int = 1, formats: dict | None = None,
+                    widths: dict | None = None) -> None:
+    formats = formats or {}
+    for j, col in enumerate(frame.columns, start=1):
+        c = ws.cell(start_row, j, col)
+        c.fill, c.font = HEAD_FILL, HEAD_FONT
+        c.alignment = Alignment(wrap_text=True, vertical="center", horizontal="center")
+    for i, row in enumerate(frame.itertuples(index=False), start=start_row + 1):
+        for j, v in enumerate(row, start=1):
+            if isinstance(v, pd.Timestamp):
+                v = v.date() if not pd.isna(v) else None
+            elif isinstance(v, (np.floating, float)) and not np.isfinite(v):
+                v = None
+            elif isinstance(v, np.generic):
+                v = v.item()
+            elif v is pd.NA:
+                v = None
+            cell = ws.cell(i, j, v)
+            col = frame.columns[j - 1]
+            if col in formats:
+                cell.number_format = formats[col]
+            elif isinstance(v, dt.date):
+                cell.number_format = "yyyy-mm-dd"
+    for j, col in enumerate(frame.columns, start=1):
+        w = (widths or {}).get(col, max(10, min(40, len(str(col)) + 2)))
+        ws.column_dimensions[get_column_letter(j)].width = w
+    ws.freeze_panes = ws.cell(start_row + 1, 1)
+    ws.row_dimensions[start_row].height = 32
+    ws.print_title_rows = f"{start_row}:{start_row}"
+    ws.page_setup.orientation = "landscape"
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+
+
+def _title(ws, text: str, note: str) -> None:
+    ws.cell(1, 1, text).font = TITLE_FONT
+    ws.cell(2, 1, note).font = NOTE_FONT
+
+
+def orders_frame(run) -> pd.DataFrame:
+    """Every inbound load, for the coordinator."""
+    mv = run.plan.movements
+    inbound = mv[mv["direction"] == "in"].copy()
+    return pd.DataFrame({
+        "supplier": inbound["party"], "lane": inbound["lane"], "arrival date": inbound["date"],
+        "order by": inbound["order_by"], "loads": inbound["loads"].astype("float"),
+        "tonnes [t]": inbound["tonnes"], f"cost [{run.plan.scenario.plant.currency}]": inbound["cost"],
+        "window": np.where(inbound["firm"], "firm", "outlook"),
+        "already booked": np.where(inbound["booked"], "yes", ""),
+    }).reset_index(drop=True)
+
+
+def stores_frame(run) -> pd.DataFrame:
+    """Daily store levels with safety, capacity and (with futures) the risk, wide."""
+    inv = run.plan.inventory
+    out = pd.DataFrame({"date": run.plan.scenario.dates})
+    risk = run.risk.frame if run.risk is not None else None
+    for store, g in inv.groupby("store", sort=False):
+        label = store.replace("_", " ")
+        out[f"{label} level [t]"] = g["level_t"].to_numpy()
+        out[f"{label} safety [t]"] = g["safety_t"].to_numpy()
+        out[f"{label} capacity [t]"] = g["capacity_t"].to_numpy()
+        if risk is not None:
+            r = risk[risk["store"] == store]
+            if store == "limestone":
+                out[f"{label} chance below safety [%]"] = 100 * r["p_below_safety"].to_numpy()
+            else:
+                out[f"{label} chance over capacity [%]"] = 100 * r["p_over_capacity"].to_numpy()
+    return out
+
+
+def shipments_frame(run) -> pd.DataFrame:
+    """Every outbound load to a buyer with its quality margin, for sales."""
+    plan = run.plan
+    mv = plan.movements
+    sales = mv[mv["kind"] == "sale"].copy()
+    bal = plan.balance.set_index("date")
+    buyers = {b.lane: b for b in plan.scenario.buyers}
+    margins = []
+    for r in sales.itertuples():
+        b, q = buyers[r.lane], bal.loc[r.date]
+        parts = []
+        if b.min_purity_pct is not None:
+            parts.append(("purity", q["gypsum_purity_pct"] - b.min_purity_pct))
+        if b.max_moisture_pct is not None:
+            parts.append(("moisture", b.max_moisture_pct - q["gypsum_moisture_pct"]))
+        if b.max_chloride_ppm is not None:
+            parts.append(("chloride", (b.max_chloride_ppm - q["gypsum_chloride_ppm"]) / 100))
+        if b.max_loi_pct is not None:
+            parts.append(("LOI", b.max_loi_pct - q["fly_ash_loi_pct"]))
+        if b.max_so3_pct is not None:
+            parts.append(("SO3", b.max_so3_pct - q["fly_ash_so3_pct"]))
+        parts = [p for p in parts if np.isfinite(p[1])]
+        margins.append(min(parts, key=lambda p: p[1]) if parts else ("", np.nan))
+    cur = plan.scenario.plant.currency
+    return pd.DataFrame({
+        "date": sales["date"], "buyer": sales["party"], "material": sales["material"],
+        "loads": sales["loads"].astype(float), "tonnes [t]": sales["tonnes"],
+        f"net revenue [{cur}]": -sales["cost"],
+        "closest limit": [m[0] for m in margins],
+        "quality margin [% points]": [m[1] for m in margins],
+        "window": np.where(sales["firm"], "firm", "outlook"),
+    }).reset_index(drop=True)
+
+
+def contract_frame(run) -> pd.DataFrame:
+    """Monthly tonnes per lane against its pro-rated minimum and maximum."""
+    plan = run.plan
+    _, months, _ = horizon_months(plan.scenario.dates)
+    rows = []
+    for lane in plan.lanes:
+        if lane.kind not in (SUPPLY, SALE):
+            continue
+        totals = plan.evaluation.month_totals[lane.name]
+        for k, month in enumerate(months):
+            lo, hi = lane.month_min_t[k], lane.month_max_t[k]
+            t = totals[k]
+            status = ("below minimum" if np.isfinite(lo) and t < lo - 1e-6 else
+                      "at maximum" if np.isfinite(hi) and t >= hi - 1e-6 else "within")
+            rows.append({"party": lane.party, "lane": lane.name, "month": str(month),
+                         "tonnes [t]": t, "minimum [t]": lo, "maximum [t]": hi, "status": status,
+                         "direction": "in" if lane.kind == SUPPLY else "out"})
+    return pd.DataFrame(rows)
+
+
+def costs_frame(run) -> pd.DataFrame:
+    s = run.plan.summary()
+    keys = list(s["costs"])
+    cur = s["currency"]
+    frame = pd.DataFrame({"item": [k.replace("_", " ") for k in keys],
+                          f"plan [{cur}]": [s["costs"][k] for k in keys],
+                          f"reorder-point baseline [{cur}]": [s["baseline_costs"][k] for k in keys]})
+    total = pd.DataFrame({"item": ["total (with end-stock value)"],
+                          f"plan [{cur}]": [s["total_cost"]],
+                          f"reorder-point baseline [{cur}]": [s["baseline_total_cost"]]})
+    return pd.concat([frame, total], ignore_index=True)
+
+
+def _records(objs) -> pd.DataFrame:
+    rows = []
+    for o in objs:
+        d = asdict(o)
+        for k, v in d.items():
+            if isinstance(v, frozenset):
+                d[k] = ",".join(str(i) for i in sorted(v))
+        rows.append(d)
+    return pd.DataFrame(rows)
+
+
+def _line_chart(ws, title: str, data_ws, first_col: int, cols: list[int], n_rows: int, anchor: str,
+                y_title: str) -> None:
+    chart = LineChart()
+    chart.title, chart.y_axis.title, chart.x_axis.title = title, y_title, "date"
+    chart.height, chart.width = 9, 24
+    chart.x_axis.number_format = "mmm-yy"
+    for c in cols:
+        chart.add_data(Reference(data_ws, min_col=c, min_row=1, max_row=n_rows + 1), titles_from_data=True)
+    chart.set_categories(Reference(data_ws, min_col=first_col, min_row=2, max_row=n_rows + 1))
+    ws.add_chart(chart, anchor)
+
+
+def write_plan_workbook(run, path: str | os.PathLike) -> Path:
+    """Write ``plan.xlsx`` for a `reagentplan.pipeline.PlanRun` (via a temporary name)."""
+    path = Path(path)
+    plan = run.plan
+    scn = plan.scenario
+    cur = scn.plant.currency
+    wb = Workbook()
+    money = f'#,##0 "{cur}"'
+
+    # --- coordinator
+    ws = wb.active
+    ws.title = "Coordinator"
+    orders = orders_frame(run)
+    _title(ws, f"{scn.plant.name}: limestone loads to book",
+           "Dated at arrival at the plant; order by = last day to place the order. "
+           "Outlook rows (shaded) are weekly plans spread to days and will be re-planned.")
+    _frame_to_sheet(ws, orders, start_row=4, formats={"loads": "0", "tonnes [t]": "#,##0",
+                                                      f"cost [{cur}]": money},
+                    widths={"supplier": 24, "lane": 34, "arrival date": 12, "order by": 12})
+    for i, w in enumerate(orders["window"], start=5):
+        if w == "outlook":
+            for j in range(1, len(orders.columns) + 1):
+                ws.cell(i, j).fill = OUTLOOK_FILL
+
+    # --- plant manager
+    ws = wb.create_sheet("Plant manager")
+    stores = stores_frame(run)
+    _frame_to_sheet(ws, stores, formats={c: "#,##0" for c in stores.columns if "[t]" in c}
+                    | {c: "0.0" for c in stores.columns if "[%]" in c})
+    n = len(stores)
+    for j, c in enumerate(stores.columns, start=1):
+        if "[%]" in c:
+            letter = get_column_letter(j)
+            rng = f"{letter}2:{letter}{n + 1}"
+            ws.conditional_formatting.add(rng, CellIsRule(operator="greaterThan", formula=["20"], fill=ALARM_FILL))
+            ws.conditional_formatting.add(rng, CellIsRule(operator="greaterThan", formula=["5"], fill=WATCH_FILL))
+    charts = wb.create_sheet("Store charts")
+    charts.cell(1, 1, "End-of-day level with safety stock and capacity, per store").font = TITLE_FONT
+    row = 3
+    for store in scn.storage:
+        label = store.replace("_", " ")
+        cols = [stores.columns.get_loc(f"{label} {k} [t]") + 1 for k in ("level", "safety", "capacity")]
+        _line_chart(charts, f"{label} [t]", ws, 1, cols, n, f"A{row}", "t")
+        row += 19
+    if run.risk is not None and run.risk.top:
+        top = pd.DataFrame(run.risk.top)
+        rws = wb.create_sheet("Top risks")
+        _title(rws, "Where the plan is most likely to break a limit",
+               f"Chance across {run.risk.n_futures} sampled futures with the plan held fixed.")
+        _frame_to_sheet(rws, top, start_row=4, widths={"remedy": 70, "store": 12})
+
+    # --- sales
+    ws = wb.create_sheet("Sales")
+    ships = shipments_frame(run)
+    _frame_to_sheet(ws, ships, formats={"tonnes [t]": "#,##0", f"net revenue [{cur}]": money,
+                                        "quality margin [% points]": "0.00", "loads": "0"},
+                    widths={"buyer": 24})
+    ws.conditional_formatting.add(f"H2:H{len(ships) + 1}",
+                                  CellIsRule(operator="lessThan", formula=["0.5"], fill=WATCH_FILL))
+    cws = wb.create_sheet("Contracts")
+    contracts = contract_frame(run)
+    _frame_to_sheet(cws, contracts, formats={c: "#,##0" for c in contracts.columns if "[t]" in c},
+                    widths={"lane": 36, "party": 24})
+    for i, status in enumerate(contracts["status"], start=2):
+        if status == "below minimum":
+            cws.cell(i, contracts.columns.get_loc("status") + 1).fill = ALARM_FILL
+    # monthly shipments per buyer, as a table the bar chart reads
+    sales = ships.assign(month=pd.to_datetime(ships["date"]).dt.to_period("M").astype(str))
+    pivot = sales.pivot_table(index="month", columns="buyer", values="tonnes [t]", aggfunc="sum",
+                              fill_value=0.0).reset_index()
+    start_col = len(contracts.columns) + 3
+    for j, col in enumerate(pivot.columns, start=start_col):
+        cws.cell(1, j, col).font = Font(bold=True)
+        for i, v in enumerate(pivot[col], start=2):
+            cws.cell(i, j, v if not isinstance(v, np.generic) else v.item())
+    if len(pivot.columns) > 1:
+        bar = BarChart()
+        bar.title, bar.y_axis.title = "Shipments by buyer per month", "t"
+        bar.height, bar.width = 9, 24
+        bar.add_data(Reference(cws, min_col=start_col + 1, max_col=start_col + len(pivot.columns) - 1,
+                               min_row=1, max_row=len(pivot) + 1), titles_from_data=True)
+        bar.set_categories(Reference(cws, min_col=start_col, min_row=2, max_row=len(pivot) + 1))
+        cws.add_chart(bar, f"{get_column_letter(start_col)}{len(pivot) + 4}")
+
+    # --- balance, costs, assumptions
+    ws = wb.create_sheet("Daily balance")
+    bal = plan.balance.copy()
+    bal.columns = [_with_unit(c) for c in bal.columns]
+    _frame_to_sheet(ws, bal, formats={c: "#,##0.0" for c in bal.columns if "[t]" in c or "[GJ]" in c
+                                      or "[MWh]" in c} | {c: "0.000" for c in bal.columns if "/" in c})
+    ws = wb.create_sheet("Costs")
+    costs = costs_frame(run)
+    _title(ws, "Costs of the plan and of the reorder-point baseline",
+           "Positive = the plant pays. Limestone left at the end is credited at its cheapest "
+           "delivered cost; byproduct left is charged at its landfill cost.")
+    _frame_to_sheet(ws, costs, start_row=4, formats={c: money for c in costs.columns[1:]},
+                    widths={"item": 30, costs.columns[1]: 20, costs.columns[2]: 28})
+    _assumptions(wb.create_sheet("Assumptions"), run)
+
+    tmp = path.with_name(f".{path.name}.tmp")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    wb.save(tmp)
+    os.replace(tmp, path)
+    return path
+
+
+_UNITS = {"_t": "[t]", "_gj": "[GJ]", "_mwh": "[MWh]", "_pct": "[%]", "_ppm": "[ppm]",
+          "_kg_per_gj": "[kg/GJ]", "_lb_per_mmbtu": "[lb/MMBtu]", "_kg_per_mwh": "[kg/MWh]"}
+
+
+def _with_unit(col: str) -> str:
+    for suffix, unit in sorted(_UNITS.items(), key=lambda kv: -len(kv[0])):
+        if col.endswith(suffix):
+            return f"{col[: -len(suffix)].replace('_', ' ')} {unit}"
+    return col.replace("_", " ")
+
+
+def _assumptions(ws, run) -> None:
+    scn = run.plan.scenario
+    _title(ws, "Assumptions: every input as read, the sources of the constants, the cautions",
+           f"Scenario file: {scn.source_name or 'upload'}. All quantities metric.")
+    r = 4
+    ws.cell(r, 1, "Caution").font = Font(bold=True, color="9C2A00")
+    ws.cell(r, 2, CAUTION).alignment = Alignment(wrap_text=True)
+    ws.row_dimensions[r].height = 45
+    r += 2
+    ws.cell(r, 1, "Sources of the constants").font = Font(bold=True)
+    for what, src in SOURCES:
+        r += 1
+        ws.cell(r, 1, what)
+        ws.cell(r, 2, src)
+    r += 2
+    blocks = [("plant", pd.DataFrame(list(asdict(scn.plant).items()), columns=["key", "value"])),
+              ("scrubber", pd.DataFrame(list(asdict(scn.scrubber).items()), columns=["key", "value"])),
+              ("units", _records(scn.units)), ("coal_sources", _records(scn.coal_sources)),
+              ("coal_blend", scn.coal_blend), ("storage", _records(scn.storage.values())),
+              ("suppliers", _records(scn.suppliers)), ("buyers", _records(scn.buyers)),
+              ("disposal", _records(scn.disposal)), ("firm_orders", _records(scn.firm_orders)),
+              ("lane_closures", _records(scn.lane_closures))]
+    if scn.period_settings is not None:
+        blocks.append(("period_settings", scn.period_settings))
+    for name, frame in blocks:
+        ws.cell(r, 1, name).font = Font(bold=True)
+        r += 1
+        if frame.empty:
+            ws.cell(r, 1, "(none)").font = NOTE_FONT
+            r += 2
+            continue
+        for j, col in enumerate(frame.columns, start=1):
+            c = ws.cell(r, j, col)
+            c.fill, c.font = HEAD_FILL, HEAD_FONT
+        for row in frame.itertuples(index=False):
+            r += 1
+            for j, v in enumerate(row, start=1):
+                if isinstance(v, pd.Timestamp):
+                    v = v.date()
+                elif isinstance(v, np.generic):
+                    v = v.item()
+                elif not isinstance(v, (int, float, str, dt.date, type(None))):
+                    v = str(v)
+                ws.cell(r, j, v)
+        r += 2
+    ws.column_dimensions["A"].width = 34
+    ws.column_dimensions["B"].width = 60
+    ws.page_setup.orientation = "landscape"

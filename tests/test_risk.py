@@ -1,0 +1,147 @@
+"""Risk replay and the plan workbook."""
+
+from __future__ import annotations
+
+import dataclasses
+import shutil
+import subprocess
+
+import numpy as np
+import pandas as pd
+import pytest
+from openpyxl import load_workbook
+
+from helpers import minimal_sheets, workbook_bytes, write_workbook
+from reagentplan.cli import main
+from reagentplan.pipeline import run_plan
+from reagentplan.risk import deterministic_flows, replay
+from reagentplan.scenario import load_scenario
+from reagentplan.schedule import make_plan
+from reagentplan.schedule.evaluate import DailyPlan
+
+
+@pytest.fixture(scope="module")
+def small_run(demo_path):
+    """A 60-day plan of the demo station with 300 futures."""
+    from demo.build_demo import build_demo_workbook
+
+    path = build_demo_workbook(demo_path.parent / "demo60.xlsx", horizon_days=60)
+    return run_plan(load_scenario(path), futures=300, seed=3, time_limit=30)
+
+
+def test_replay_of_the_deterministic_future_reproduces_inventory(small_run):
+    plan = small_run.plan
+    rr = replay(plan, deterministic_flows(plan.balance), suggest=False)
+    inv = plan.inventory
+    for store in plan.scenario.storage:
+        np.testing.assert_allclose(rr.levels[store][0], inv.loc[inv["store"] == store, "level_t"], atol=1e-6)
+
+
+def test_probabilities_are_ordered_and_in_range(small_run):
+    f = small_run.risk.frame
+    for col in ("p_below_safety", "p_empty", "p_over_capacity", "p_so2_over_limit"):
+        v = f[col].dropna()
+        assert ((v >= 0) & (v <= 1)).all(), col
+    lime = f[f["store"] == "limestone"]
+    assert (lime["p_empty"] <= lime["p_below_safety"] + 1e-12).all()
+    assert (f["level_p10_t"] <= f["level_p50_t"] + 1e-9).all() and (f["level_p50_t"] <= f["level_p90_t"] + 1e-9).all()
+    assert set(["date", "store", "p_below_safety", "p_empty", "p_over_capacity"]) <= set(f.columns)
+
+
+def _lime_risk(scn, plan_result, flows) -> float:
+    return float(replay(plan_result, flows, suggest=False).frame.query("store == 'limestone'")["p_below_safety"].mean())
+
+
+def test_more_sulfur_spread_raises_limestone_risk_and_an_extra_train_lowers_it():
+    """A short horizon where limestone is tight: spreading the sulfur (the futures' use)
+    raises the chance of dropping below safety; one more train lowers it."""
+    s = minimal_sheets(days=20)
+    s["storage"][1] = ["limestone", 3000, 400, 900]
+    scn = load_scenario(workbook_bytes(s))
+    plan = make_plan(scn, firm_days=20)
+    use = plan.balance["limestone_t"].to_numpy()
+    rng = np.random.default_rng(0)
+    z = rng.standard_normal((4000, 1)) + 0.3 * rng.standard_normal((4000, len(use)))
+    narrow = {"limestone": use * (1 + 0.05 * z)}
+    wide = {"limestone": use * (1 + 0.20 * z)}
+    assert _lime_risk(scn, plan, wide) > _lime_risk(scn, plan, narrow)
+    lane = next(l for l in plan.lanes if l.kind == "supply")
+    day = int(np.flatnonzero(lane.open)[0])
+    more = {k: v.copy() for k, v in plan.plan.quantity.items()}
+    more[lane.name][day] += 1
+    extra = replay(plan, wide, plan=DailyPlan(more, plan.plan.booked), suggest=False)
+    assert (extra.frame.query("store == 'limestone'")["p_below_safety"].mean()
+            < _lime_risk(scn, plan, wide))
+
+
+def test_top_risks_name_a_remedy_that_helps(small_run):
+    for item in small_run.risk.top:
+        assert item["remedy"]
+        if "chance_after" in item:
+            assert item["chance_after"] <= item["chance"]
+
+
+@pytest.fixture(scope="module")
+def plan_out(tmp_path_factory, small_run):
+    from reagentplan.report import write_run
+
+    out = tmp_path_factory.mktemp("out")
+    write_run(small_run, out)
+    return out
+
+
+def test_workbook_sheets_match_the_csvs(plan_out):
+    wb = load_workbook(plan_out / "plan.xlsx")
+    for name in ("Coordinator", "Plant manager", "Sales", "Contracts", "Daily balance", "Costs",
+                 "Assumptions", "Store charts"):
+        assert name in wb.sheetnames
+    mv = pd.read_csv(plan_out / "movements.csv")
+    inbound = mv[mv["direction"] == "in"]
+    ws = wb["Coordinator"]
+    header = [c.value for c in ws[4]]
+    rows = [r for r in ws.iter_rows(min_row=5, values_only=True) if r[0]]
+    assert len(rows) == len(inbound)
+    assert sum(r[header.index("tonnes [t]")] for r in rows) == pytest.approx(inbound["tonnes"].sum())
+    inv = pd.read_csv(plan_out / "inventory.csv")
+    ws = wb["Plant manager"]
+    header = [c.value for c in ws[1]]
+    col = header.index("limestone level [t]")
+    levels = [r[col] for r in ws.iter_rows(min_row=2, values_only=True)]
+    np.testing.assert_allclose(levels, inv.loc[inv["store"] == "limestone", "level_t"], atol=1e-3)
+    assert wb["Plant manager"].freeze_panes == "A2"
+    assert wb["Store charts"]._charts and wb["Contracts"]._charts
+
+
+@pytest.mark.skipif(shutil.which("libreoffice") is None, reason="LibreOffice (libreoffice-calc-nogui) not installed")
+def test_libreoffice_opens_the_workbook(plan_out, tmp_path):
+    """A real spreadsheet program opens plan.xlsx: LibreOffice converts it to PDF and its
+    first sheet to CSV, whose cells read back as written."""
+    for fmt in ("pdf", "csv"):
+        r = subprocess.run(["libreoffice", "--headless", f"-env:UserInstallation=file://{tmp_path}/lo",
+                            "--convert-to", fmt, "--outdir", str(tmp_path), str(plan_out / "plan.xlsx")],
+                           capture_output=True, text=True, timeout=240)
+        assert r.returncode == 0, r.stderr
+        assert (tmp_path / f"plan.{fmt}").stat().st_size > 200
+    text = (tmp_path / "plan.csv").read_text(errors="replace")
+    wb = load_workbook(plan_out / "plan.xlsx")
+    assert wb["Coordinator"]["A1"].value in text
+    assert "order by" in text and "tonnes [t]" in text
+
+
+def test_interrupted_run_keeps_the_previous_output(tmp_path, monkeypatch):
+    s = minimal_sheets(days=8)
+    path = write_workbook(s, tmp_path / "w.xlsx")
+    out = tmp_path / "out"
+    assert main(["plan", str(path), "--out", str(out), "--futures", "0"]) == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+
+    import reagentplan.plan_workbook as pw
+
+    def boom(*a, **k):
+        raise RuntimeError("simulated crash while writing")
+
+    monkeypatch.setattr(pw, "write_plan_workbook", boom)
+    with pytest.raises(RuntimeError):
+        main(["plan", str(path), "--out", str(out), "--futures", "0"])
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".out")] == []
