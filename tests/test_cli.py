@@ -104,7 +104,10 @@ def test_template_has_notes_dropdowns_and_example_rows(tmp_path):
 
 def test_demo_runs(tmp_path, capsys):
     out = tmp_path / "demo"
-    assert main(["demo", "--out", str(out)]) == 0
-    assert (out / "balance.csv").exists() and (out / "demo_station.xlsx").exists()
+    assert main(["demo", "--out", str(out), "--futures", "100", "--time-limit", "30"]) == 0
+    for name in ("demo_station.xlsx", "balance.csv", "movements.csv", "inventory.csv", "risk.csv",
+                 "summary.json", "forecast.csv", "plan.xlsx"):
+        assert (out / name).exists(), name
     text = capsys.readouterr().out
-    assert "limestone used" in text and "Caution" in text
+    assert "cost of the reorder-point policy" in text and "Caution" in text
+    assert "limestone trains / trucks booked" in text

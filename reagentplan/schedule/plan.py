@@ -108,9 +108,15 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                          time_limit=time_limit, gap=gap, hint=base)
     ev = evaluate(scenario, balance, lanes, outcome.plan)
+    chosen = outcome.plan
+    if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
+        # the outlook weeks, once spread to days, priced dearer than the warm start:
+        # keep the warm start (the baseline), which the model's solution had to beat
+        chosen, ev = base, evaluate(scenario, balance, lanes, base)
+        outcome.status += " (baseline kept: the spread outlook priced dearer)"
     base_ev.breaches = explain(scenario, lanes, base, base_ev)
-    breaches = explain(scenario, lanes, outcome.plan, ev)
-    return PlanResult(scenario, balance, lanes, outcome.plan, ev, base, base_ev, outcome, breaches,
+    breaches = explain(scenario, lanes, chosen, ev)
+    return PlanResult(scenario, balance, lanes, chosen, ev, base, base_ev, outcome, breaches,
                       firm_days)
 
 
