@@ -49,7 +49,7 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
         flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
                  if store in scenario.storage and q in fut.flows}
     plan = make_plan(scenario, balance, flows=flows, risk_level=risk_level, firm_days=firm_days,
-                     solver=solver, time_limit=time_limit)
+                     solver=solver, time_limit=time_limit, progress=progress)
     risk = None
     if fut is not None:
         so2 = {k: fut.flows[k] for k in SO2_FLOWS if k in fut.flows}

@@ -75,7 +75,8 @@ class SolveOutcome:
 def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                firm: dict[str, tuple[np.ndarray, np.ndarray]], guard: dict[str, np.ndarray],
                *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-               gap: float = 1e-5, hint: DailyPlan | None = None) -> SolveOutcome:
+               gap: float = 1e-5, hint: DailyPlan | None = None,
+               progress: bool = False) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, departures at most), so the daily levels that the outputs show
@@ -84,7 +85,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     t0 = time.perf_counter()
     periods = build_periods(scenario.dates, firm_days)
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
-                           hint)
+                           hint, progress=progress, label=f"plan ({solver})")
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
     if len(periods) < n:
         daily = [(d, d) for d in range(n)]
@@ -93,7 +94,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
         left = max(time_limit - (time.perf_counter() - t0), 5.0)
         try:
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
-                                    plan, totals)
+                                    plan, totals, progress=progress, label="outlook to days")
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
@@ -101,8 +102,73 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                         first["gap"], time.perf_counter() - t0)
 
 
+class SolveProgress:
+    """A progress line on stderr for long solves: elapsed time against the time limit and,
+    where the solver reports them during the search (CP-SAT), the best cost and bound;
+    every solver's final cost and bound at the end."""
+
+    def __init__(self, enabled: bool, time_limit: float, label: str):
+        self.enabled, self.time_limit, self.label = enabled, time_limit, label
+        self.best, self.bound = float("nan"), float("nan")
+        self._stop = None
+
+    def __enter__(self):
+        if not self.enabled:
+            return self
+        import threading
+
+        from tqdm import tqdm
+
+        self.bar = tqdm(total=round(self.time_limit), desc=self.label, unit="s", leave=False,
+                        bar_format="{desc}: {n_fmt}/{total_fmt} s {postfix}")
+        self._stop = threading.Event()
+        self._t0 = time.perf_counter()
+
+        def tick():
+            while not self._stop.wait(1.0):
+                self.bar.n = min(round(time.perf_counter() - self._t0), self.bar.total)
+                self.bar.set_postfix_str(self._postfix())
+
+        self._thread = threading.Thread(target=tick, daemon=True)
+        self._thread.start()
+        return self
+
+    def _postfix(self) -> str:
+        if np.isfinite(self.best):
+            return f"best {self.best:,.0f}, bound {self.bound:,.0f}"
+        return "searching"
+
+    def solve_kwargs(self, solver: str) -> dict:
+        if not self.enabled or solver != "cp-sat":
+            return {}
+
+        def cb(data):
+            self.best = data.mip_stats.primal_bound
+            self.bound = data.mip_stats.dual_bound
+            return mathopt.CallbackResult()
+
+        return {"callback_reg": mathopt.CallbackRegistration(events={mathopt.Event.MIP}), "cb": cb}
+
+    def done(self, result) -> None:
+        if self.enabled and result.has_primal_feasible_solution():
+            self.best = result.objective_value()
+            self.bound = result.termination.objective_bounds.dual_bound
+
+    def __exit__(self, *exc):
+        if self._stop is not None:
+            self._stop.set()
+            self._thread.join()
+            self.bar.close()
+            import sys
+
+            print(f"{self.label}: {time.perf_counter() - self._t0:.1f} s, {self._postfix()}",
+                  file=sys.stderr)
+        return False
+
+
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
-                   hint: DailyPlan | None, totals: dict | None = None) -> dict:
+                   hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
+                   label: str = "solving") -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
     dates = scenario.dates
     n = len(dates)
@@ -262,10 +328,13 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 if v is not None:
                     values[v] = float(min(max(agg[k], 0), v.upper_bound))
         model_params = mathopt.ModelSolveParameters(solution_hints=[mathopt.SolutionHint(variable_values=values)])
-    try:
-        result = mathopt.solve(m, SOLVERS[solver], params=params, model_params=model_params)
-    except Exception:  # a solver that refuses hints
-        result = mathopt.solve(m, SOLVERS[solver], params=params)
+    with SolveProgress(progress, time_limit, label) as watch:
+        kwargs = watch.solve_kwargs(solver)
+        try:
+            result = mathopt.solve(m, SOLVERS[solver], params=params, model_params=model_params, **kwargs)
+        except Exception:  # a solver that refuses hints or callbacks
+            result = mathopt.solve(m, SOLVERS[solver], params=params)
+        watch.done(result)
     if not result.has_primal_feasible_solution():
         raise RuntimeError(f"{solver} found no plan in {time_limit:g} s ({result.termination.reason.name})")
     obj = result.objective_value()

@@ -87,7 +87,7 @@ class PlanResult:
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-              gap: float = 1e-5) -> PlanResult:
+              gap: float = 1e-5, progress: bool = False) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -106,7 +106,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     base_ev = evaluate(scenario, balance, lanes, base)
     guard = guard_margins(balance, flows, risk_level)
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit, gap=gap, hint=base)
+                         time_limit=time_limit, gap=gap, hint=base, progress=progress)
     ev = evaluate(scenario, balance, lanes, outcome.plan)
     chosen = outcome.plan
     if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
