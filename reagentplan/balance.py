@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from . import chemistry as chem
-from .scenario import Scenario, horizon_generation
+from .scenario import Scenario
 from .units import KG_PER_GJ_TO_LB_PER_MMBTU
 
 # --------------------------------------------------------------------------- inputs
@@ -118,7 +118,9 @@ def scenario_drivers(scenario: Scenario) -> Drivers:
     each unit carries no sulfur or ash.  Coal quality is the blend of the day: shares are
     of as-received tonnes, so every property (including HHV per kg) mixes by mass.
     """
-    gen = horizon_generation(scenario)  # (days × units) [MWh]
+    from .forecast.generation import median_generation  # lazy: the forecast imports this module
+
+    gen = median_generation(scenario)  # (days × units) [MWh]: plan, else forecast median
     hr = np.array([u.heat_rate_gj_per_mwh for u in scenario.units])
     coal_frac = 1 - np.array([u.gas_heat_share_pct for u in scenario.units]) / 100
     g = gen.to_numpy(dtype=float)

@@ -67,6 +67,37 @@ def _cmd_plan(args) -> int:
     return EXIT_BREACH if run.plan.breaches else EXIT_OK
 
 
+def _cmd_forecast(args) -> int:
+    from .forecast import (backtest, describe_backtest, describe_forecast, forecast_frame,
+                           notes_text, sample_futures)
+    from .report import staged_output, write_csv
+    from .scenario import load_scenario
+
+    scenario = load_scenario(args.workbook)
+    futures = sample_futures(scenario, args.futures, args.seed, progress=None)
+    frame = forecast_frame(futures)
+    result = (backtest(scenario, args.backtest, args.futures, args.seed, progress=None)
+              if args.backtest is not None else None)
+    report = describe_backtest(result) if result is not None else None
+    out = Path(args.out)
+    written = ["forecast.csv", "forecast_notes.txt"]
+    with staged_output(out) as tmp:
+        write_csv(frame, tmp / "forecast.csv")
+        (tmp / "forecast_notes.txt").write_text(
+            notes_text(futures, report.splitlines() if report else None), encoding="utf-8")
+        if result is not None:
+            write_csv(result.summary, tmp / "backtest.csv")
+            write_csv(result.daily, tmp / "backtest_daily.csv")
+            written += ["backtest.csv", "backtest_daily.csv"]
+    print(describe_forecast(futures))
+    if report:
+        print()
+        print(report)
+    print(f"\nWrote {', '.join(str(out / name) for name in written)}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
 def _cmd_demo(args) -> int:
     from demo.build_demo import build_demo_workbook
 
@@ -84,6 +115,32 @@ def _cmd_demo(args) -> int:
         written = write_run(run, tmp)
     print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]))
     print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
+def _cmd_dashboard(args) -> int:
+    import os
+
+    from dashboard.security import DashboardRefused, password_for
+
+    try:
+        password = password_for(args.host, os.environ)
+    except DashboardRefused as exc:
+        print(exc, file=sys.stderr)
+        return EXIT_BAD_INPUT
+    if not 0 <= args.port <= 65535:
+        print(f"--port {args.port}: expected a port from 0 to 65535.", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    from dashboard.app import create_app, serve
+
+    what = args.workbook or "the demo station"
+    print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
+    app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
+                     firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+    print(f"Dashboard on http://{args.host}:{args.port}/"
+          + (" (password required)" if password else "") + "; Ctrl+C stops it.")
+    print(f"Caution: {CAUTION}")
+    serve(app, args.host, args.port)
     return EXIT_OK
 
 
@@ -114,6 +171,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("workbook")
     p.add_argument("--out", required=True, help="output folder")
     p.set_defaults(func=_cmd_balance)
+
+    p = sub.add_parser("forecast", help="sampled futures of generation, coal quality and the "
+                                        "balance (forecast.csv)")
+    p.add_argument("workbook")
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--futures", type=int, default=1000,
+                   help="futures to sample (default: %(default)s)")
+    p.add_argument("--seed", type=int, default=0,
+                   help="random seed; the same seed gives the same futures (default: %(default)s)")
+    p.add_argument("--backtest", type=int, default=None, metavar="K",
+                   help="also hold back the last K days of history, forecast them and score "
+                        "the forecast (backtest.csv)")
+    p.set_defaults(func=_cmd_forecast)
+
     p = sub.add_parser("plan", help="optimised deliveries, store levels and haul-outs")
     p.add_argument("workbook")
     p.add_argument("--out", required=True, help="output folder")
@@ -129,6 +200,22 @@ def build_parser() -> argparse.ArgumentParser:
                    help="accepted chance [%%] of dropping below safety or above capacity on a day "
                         "(default %(default)s)")
     p.set_defaults(func=_cmd_plan)
+
+    p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
+    p.add_argument("workbook", nargs="?", default=None,
+                   help="scenario workbook (default: the demo station)")
+    p.add_argument("--host", default="127.0.0.1",
+                   help="address to bind (default %(default)s); any other needs the environment "
+                        "variable REAGENTPLAN_DASHBOARD_PASSWORD")
+    p.add_argument("--port", type=int, default=8050, help="port (default %(default)s)")
+    p.add_argument("--futures", type=int, default=500, help="sampled futures (default %(default)s)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the futures (default %(default)s)")
+    p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
+    p.add_argument("--firm-days", type=int, default=56,
+                   help="days planned one by one; weekly outlook after (default %(default)s)")
+    p.add_argument("--demo-days", type=int, default=365,
+                   help="days of the demo station when no workbook is given (default %(default)s)")
+    p.set_defaults(func=_cmd_dashboard)
     return parser
 
 

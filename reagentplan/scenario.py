@@ -28,6 +28,9 @@ from .workbook import RawSheet, read_raw
 DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 MONTH_NAMES = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
 SHARE_TOLERANCE_PCT = 0.01
+#: Fewest days of ``generation_history`` a unit needs when the ``generation`` sheet
+#: leaves some of its planned days to the forecast [d].
+MIN_HISTORY_DAYS = 14
 
 
 # --------------------------------------------------------------------------- types
@@ -646,8 +649,11 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     if has_gen_history:
         history = _check_dated(recs["generation_history"], "generation_history", "unit", unit_names,
                                plant, out, inside_horizon=False)
+        _check_history_days(recs["generation_history"], unit_names, out)
     if not has_gen_history and not out.problems:
         _check_generation_coverage(generation, units, plant, out)
+    if has_gen_history and not out.problems:
+        _check_history_covers_forecast(generation, history, units, plant, out)
 
     source_names = {s.source: s for s in sources}
     blend = _check_blend(recs["coal_blend"], source_names, plant, out)
@@ -763,6 +769,47 @@ def _check_generation_coverage(generation: pd.DataFrame, units: tuple[Unit, ...]
                     f"(first {missing[0]:%Y-%m-%d})",
                     "a row for every unit and day of the horizon, or a 'generation_history' "
                     "sheet to forecast the days not given")
+
+
+def _check_history_days(records: list[dict[str, Any]], units: dict, out: _Collector) -> None:
+    """Each unit's history: one row per day from its first to its last (no gaps), and no
+    day above capacity x 24 h."""
+    last: dict[str, dt.date] = {}
+    for r in records:
+        u = units.get(r["unit"])
+        if u is None:
+            continue
+        if r["mwh"] > u.capacity_mw * 24 * 1.0001:
+            out.add("generation_history", r["_row"], "mwh", f"found {r['mwh']:g} MWh for {u.unit}",
+                    f"at most {u.capacity_mw * 24:g} MWh (capacity {u.capacity_mw:g} MW x 24 h)")
+        before = last.get(u.unit)
+        if before is not None and (r["date"] - before).days > 1:
+            first_missing = before + dt.timedelta(days=1)
+            n = (r["date"] - before).days - 1
+            out.add("generation_history", r["_row"], "date",
+                    f"{u.unit} has no rows for the {n} day(s) from {first_missing:%Y-%m-%d} to "
+                    f"{r['date'] - dt.timedelta(days=1):%Y-%m-%d}, before this row",
+                    "one row per unit and day with no gaps (0 MWh for days the unit was off)")
+        if before is None or r["date"] > before:
+            last[u.unit] = r["date"]
+
+
+def _check_history_covers_forecast(generation: pd.DataFrame, history: pd.DataFrame,
+                                   units: tuple[Unit, ...], plant: Plant, out: _Collector) -> None:
+    """A unit whose planned days the ``generation`` sheet leaves open needs history."""
+    dates = plant.dates
+    for u in units:
+        have = pd.DatetimeIndex(generation.loc[generation["unit"] == u.unit, "date"])
+        missing = dates.difference(have)
+        if not len(missing):
+            continue
+        n = int((history["unit"] == u.unit).sum())
+        if n < MIN_HISTORY_DAYS:
+            out.add("generation_history", None, "unit",
+                    f"{u.unit} has {n} day(s) of history and no generation on {len(missing)} of "
+                    f"{len(dates)} planned days (first {missing[0]:%Y-%m-%d})",
+                    f"at least {MIN_HISTORY_DAYS} days of history for {u.unit} to forecast "
+                    "from, or rows in the 'generation' sheet for every planned day")
 
 
 def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
@@ -909,24 +956,9 @@ def _check_periods(records, plant: Plant, out: _Collector) -> pd.DataFrame | Non
 
 
 def horizon_generation(scenario: Scenario) -> pd.DataFrame:
-    """Generation [MWh] per (date × unit) for every horizon day.
+    """Generation [MWh] per (date × unit) for every horizon day: the ``generation``
+    sheet where it gives a day, else the forecast's median
+    (`reagentplan.forecast.median_generation`, fitted on ``generation_history``)."""
+    from .forecast.generation import median_generation  # the forecast builds on this module
 
-    Days the ``generation`` sheet does not give are filled from ``generation_history``
-    with the unit's mean for the same weekday over the last eight weeks of history (a
-    stated stop-gap; the forecast stage replaces it with a fitted model).
-    """
-    table = scenario.generation_matrix()
-    if not table.isna().any().any():
-        return table
-    hist = scenario.generation_history
-    if hist is None or hist.empty:
-        return table.fillna(0.0)
-    recent = hist[hist["date"] >= hist["date"].max() - pd.Timedelta(days=55)]
-    profile = recent.assign(wd=recent["date"].dt.weekday).groupby(["unit", "wd"])["mwh"].mean()
-    for unit in table.columns:
-        gaps = table[unit].isna()
-        if gaps.any():
-            wd = table.index[gaps].day_of_week
-            vals = [profile.get((unit, w), np.nan) for w in wd]
-            table.loc[gaps, unit] = vals
-    return table.fillna(0.0)
+    return median_generation(scenario)

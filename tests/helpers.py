@@ -7,6 +7,8 @@ import datetime as dt
 import io
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 from openpyxl import Workbook
 
 START = dt.date(2030, 3, 4)  # a Monday
@@ -91,4 +93,96 @@ def set_value(sheets: dict, sheet: str, key_or_row, column: str, value) -> dict:
         return sheets
     j = rows[0].index(column)
     rows[1 + key_or_row][j] = value
+    return sheets
+
+
+# --------------------------------------------------------------------------- histories
+
+
+def ar1(rng: np.random.Generator, n: int, phi: float, sd: float) -> np.ndarray:
+    """A stationary AR(1) series of ``n`` days: persistence ``phi``, standard deviation
+    ``sd`` [unit of sd]."""
+    e = np.empty(n)
+    x = rng.normal(0, sd)
+    innov = sd * np.sqrt(1 - phi**2)
+    for t in range(n):
+        x = phi * x + rng.normal(0, innov)
+        e[t] = x
+    return e
+
+
+def synthetic_load_factor(dates: pd.DatetimeIndex, rng: np.random.Generator, phi: float = 0.8,
+                          sd: float = 0.04, season: float = 0.08, weekend: float = 0.07,
+                          outages_per_year: float = 3.0, outage_days: tuple[int, int] = (2, 5),
+                          level: float = 0.7, common: np.ndarray | None = None) -> np.ndarray:
+    """A known daily load-factor process [-]: level + yearly season (two peaks) +
+    weekend dip + AR(1) deviation (``phi`` per day, stationary ``sd``; plus an optional
+    shared ``common`` series) on line, and forced outages (0) starting at random
+    (``outages_per_year``) with lengths drawn evenly from ``outage_days``."""
+    n = len(dates)
+    doy = dates.day_of_year.to_numpy()
+    wd = dates.day_of_week.to_numpy()
+    mean = (level + season * np.cos(4 * np.pi * (doy - 20) / 365.25)
+            - weekend * (wd == 5) - 1.3 * weekend * (wd == 6))
+    lf = mean + ar1(rng, n, phi, sd) + (0 if common is None else common)
+    off = np.zeros(n, dtype=bool)
+    p = outages_per_year / 365.0
+    t = 0
+    while t < n:
+        if rng.random() < p:
+            k = int(rng.integers(outage_days[0], outage_days[1] + 1))
+            off[t:t + k] = True
+            t += k
+        t += 1
+    return np.where(off, 0.0, np.clip(lf, 0.06, 1.0))
+
+
+def synthetic_history(units: dict[str, float], days: int, seed: int = 0,
+                      end: dt.date = START - dt.timedelta(days=1), shared_sd: float = 0.0,
+                      **process) -> pd.DataFrame:
+    """History (date, unit, mwh) of ``days`` days ending on ``end`` for units
+    {name: capacity [MW]}, from `synthetic_load_factor`; ``shared_sd`` adds an AR(1)
+    component common to all units (correlated deviations)."""
+    rng = np.random.default_rng(seed)
+    dates = pd.date_range(end=pd.Timestamp(end), periods=days, freq="D")
+    common = ar1(rng, days, process.get("phi", 0.8), shared_sd) if shared_sd else None
+    frames = [pd.DataFrame({"date": dates, "unit": name,
+                            "mwh": np.round(synthetic_load_factor(dates, rng, common=common,
+                                                                  **process) * cap * 24, 1)})
+              for name, cap in units.items()]
+    return (pd.concat(frames).sort_values(["date", "unit"], kind="stable")
+            .reset_index(drop=True))
+
+
+def history_rows(history: pd.DataFrame) -> list[list]:
+    """A history frame as the rows of a ``generation_history`` sheet."""
+    return [["date", "unit", "mwh"]] + [[d.date(), u, float(m)] for d, u, m in
+                                        history.itertuples(index=False)]
+
+
+def synthetic_labs(source: str, days: int, sulfur: float, sd: float, phi: float, seed: int = 0,
+                   end: dt.date = START - dt.timedelta(days=1),
+                   weekdays: tuple[int, ...] = (0, 2, 4)) -> list[list]:
+    """Rows of ``coal_quality_history`` for one source: sulfur an AR(1) around ``sulfur``
+    (``phi`` per day, stationary ``sd``) sampled on ``weekdays``; ash and HHV constant."""
+    rng = np.random.default_rng(seed)
+    dates = pd.date_range(end=pd.Timestamp(end), periods=days, freq="D")
+    x = rng.normal(0, sd)
+    rows = []
+    for d in dates:
+        x = phi * x + rng.normal(0, sd * np.sqrt(1 - phi**2))
+        if d.weekday() in weekdays:
+            rows.append([d.date(), source, round(sulfur + x, 4), 10.0, 25.0])
+    return rows
+
+
+def lab_sheet(*row_lists: list[list]) -> list[list]:
+    """A ``coal_quality_history`` sheet from per-source rows, in date order."""
+    rows = sorted((r for rl in row_lists for r in rl), key=lambda r: r[0])
+    return [["date", "source", "sulfur_pct", "ash_pct", "hhv_mj_per_kg"]] + rows
+
+
+def history_only(sheets: dict[str, list[list]]) -> dict[str, list[list]]:
+    """Drop every row of the ``generation`` sheet (the forecast covers the horizon)."""
+    sheets["generation"] = sheets["generation"][:1]
     return sheets

@@ -1,0 +1,256 @@
+"""The dashboard in a real headless Chromium (Debian's chromium and chromium-driver):
+the page loads, each view draws its charts, a bad upload shows the loader's message, a
+good upload and a re-plan redraw the charts, and plan.xlsx downloads.
+
+Screenshots of each view are saved under the test's temporary folder.  The app is served
+in a thread on 127.0.0.1; nothing else is contacted.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import logging
+import os
+import shutil
+import sys
+import threading
+import time
+import types
+from pathlib import Path
+
+import pytest
+
+CHROMIUM = "/usr/bin/chromium"
+CHROMEDRIVER = "/usr/bin/chromedriver"
+
+if not os.path.exists(CHROMIUM):
+    pytest.skip(f"no Chromium at {CHROMIUM} (Debian package 'chromium')", allow_module_level=True)
+if not os.path.exists(CHROMEDRIVER):
+    pytest.skip(f"no chromedriver at {CHROMEDRIVER} (Debian package 'chromium-driver')",
+                allow_module_level=True)
+webdriver = pytest.importorskip("selenium.webdriver")
+
+from selenium.webdriver.chrome.service import Service  # noqa: E402
+from selenium.webdriver.common.by import By  # noqa: E402
+from selenium.webdriver.common.keys import Keys  # noqa: E402
+from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
+
+from helpers import minimal_sheets, write_workbook  # noqa: E402
+
+pytestmark = pytest.mark.slow
+
+TIMEOUT = 60
+
+
+@pytest.fixture(scope="module")
+def plan_writer():
+    """The plan workbook writer, or (while that stage is missing) a stand-in for this
+    test only."""
+    try:
+        import reagentplan.plan_workbook  # noqa: F401
+
+        yield
+        return
+    except ImportError:
+        pass
+    fake = types.ModuleType("reagentplan.plan_workbook")
+
+    def write_plan_workbook(run, path):
+        from openpyxl import Workbook
+
+        wb = Workbook()
+        wb.active.append(["stand-in plan workbook for the dashboard test"])
+        wb.save(path)
+        return Path(path)
+
+    fake.write_plan_workbook = write_plan_workbook
+    sys.modules["reagentplan.plan_workbook"] = fake
+    yield
+    sys.modules.pop("reagentplan.plan_workbook", None)
+
+
+@pytest.fixture(scope="module")
+def server(tmp_path_factory, plan_writer):
+    from werkzeug.serving import make_server
+
+    from dashboard.app import create_app
+    from demo.build_demo import build_demo_workbook
+
+    folder = tmp_path_factory.mktemp("dash")
+    workbook = build_demo_workbook(folder / "demo60.xlsx", horizon_days=60)
+    app = create_app(workbook, futures=100, time_limit=30, work_dir=folder / "work")
+    logging.getLogger("werkzeug").setLevel(logging.ERROR)
+    srv = make_server("127.0.0.1", 0, app.server, threaded=True)
+    thread = threading.Thread(target=srv.serve_forever, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{srv.server_port}/", folder
+    srv.shutdown()
+    thread.join(10)
+
+
+@pytest.fixture(scope="module")
+def browser(tmp_path_factory):
+    os.environ.setdefault("SE_OFFLINE", "true")  # never let Selenium look for drivers online
+    profile = tmp_path_factory.mktemp("chrome-profile")
+    downloads = tmp_path_factory.mktemp("downloads")
+    opts = webdriver.ChromeOptions()
+    opts.binary_location = CHROMIUM
+    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
+                "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                "--no-first-run", "--disable-extensions", f"--user-data-dir={profile}",
+                "--window-size=1500,1100"):
+        opts.add_argument(arg)
+    opts.add_experimental_option("prefs", {
+        "download.default_directory": str(downloads), "download.prompt_for_download": False,
+        "download.directory_upgrade": True, "safebrowsing.enabled": False})
+    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=opts)
+    driver.execute_cdp_cmd("Browser.setDownloadBehavior",
+                           {"behavior": "allow", "downloadPath": str(downloads)})
+    driver.downloads = downloads
+    yield driver
+    driver.quit()
+
+
+def wait(driver, condition, what: str, timeout: float = TIMEOUT):
+    return WebDriverWait(driver, timeout, poll_frequency=0.1).until(
+        lambda d: condition(d), message=f"timed out waiting for {what}")
+
+
+def drawn_graphs(driver) -> int:
+    """Plotly graphs in the selected view that have drawn their SVG."""
+    return driver.execute_script(
+        "return document.querySelectorAll('.rp-view .js-plotly-plot .main-svg.plotly, "
+        ".rp-view .js-plotly-plot svg.main-svg').length") // 2
+
+
+def text(driver, element_id: str) -> str:
+    """The element's text, read in the page (no stale references while Dash redraws)."""
+    return driver.execute_script(
+        "var e = document.getElementById(arguments[0]); return e ? e.innerText : '';", element_id)
+
+
+def classes(driver, element_id: str) -> str:
+    return driver.execute_script(
+        "var e = document.getElementById(arguments[0]); return e ? e.className : '';", element_id)
+
+
+def graph_count(driver) -> int:
+    return driver.execute_script("return document.querySelectorAll('.rp-view .js-plotly-plot').length")
+
+
+def trace_points(driver, graph_id: str) -> int:
+    """Points of the first trace of a graph, read from plotly's own data."""
+    return driver.execute_script(
+        "var g = document.querySelector('#' + arguments[0] + ' .js-plotly-plot');"
+        "return g && g.data && g.data.length ? g.data[0].x.length : -1;", graph_id)
+
+
+def show_tab(driver, name: str, expected: int) -> None:
+    driver.find_element(By.ID, f"tab-{name}").click()
+    wait(driver, lambda d: d.find_element(By.ID, f"tab-{name}").get_attribute("class").find("selected") >= 0
+         and graph_count(d) >= expected and drawn_graphs(d) >= expected, f"{expected} charts in {name}")
+
+
+def screenshot(driver, path: Path) -> None:
+    height = driver.execute_script("return document.documentElement.scrollHeight")
+    driver.set_window_size(1500, min(max(1100, height + 40), 4000))
+    time.sleep(0.6)  # let plotly settle after the resize
+    driver.save_screenshot(str(path))
+    driver.set_window_size(1500, 1100)
+
+
+def upload(driver, path: Path) -> None:
+    field = driver.find_element(By.CSS_SELECTOR, "#upload input[type=file]")
+    driver.execute_script("arguments[0].style.display = 'block';", field)
+    field.send_keys(str(path))
+
+
+def test_dashboard_in_chromium(server, browser, tmp_path):
+    url, folder = server
+    d = browser
+    t0 = time.perf_counter()
+    d.get(url)
+    wait(d, lambda d: graph_count(d) >= 3 and drawn_graphs(d) >= 3, "the first view's charts")
+    first_render = time.perf_counter() - t0
+    print(f"first render {first_render:.2f} s")
+
+    from reagentplan import CAUTION
+
+    assert CAUTION in text(d, "caution")
+    assert "Velmora Bend" in text(d, "header-title")
+    assert "60 days" in text(d, "header-sub")
+
+    # coordinator: calendar, contracts, lane use, and the order lists
+    show_tab(d, "coordinator", 3)
+    for gid in ("coord-calendar", "coord-contracts", "coord-lane-use"):
+        assert d.find_element(By.ID, gid).find_elements(By.CSS_SELECTOR, ".js-plotly-plot")
+    assert d.find_elements(By.ID, "haulouts-table")
+    assert text(d, "coord-orders").strip()
+    screenshot(d, tmp_path / "coordinator.png")
+
+    # plant manager: four stores, SO2, headlines
+    show_tab(d, "plant", 5)
+    for store in ("limestone", "gypsum", "fly_ash", "bottom_ash"):
+        assert d.find_elements(By.CSS_SELECTOR, f"#store-{store} .js-plotly-plot")
+        assert text(d, f"headline-{store}")
+    assert trace_points(d, "plant-so2") == 60
+    screenshot(d, tmp_path / "plant.png")
+
+    # sales: shipments, quality, season, landfill, airspace
+    show_tab(d, "sales", 4)
+    assert "Years left" in text(d, "airspace-table")
+    screenshot(d, tmp_path / "sales.png")
+
+    # a bad upload shows the loader's own message, and changes nothing
+    sheets = minimal_sheets()
+    del sheets["buyers"]
+    bad = write_workbook(sheets, tmp_path / "no_buyers.xlsx")
+    upload(d, bad)
+    wait(d, lambda d: "bad" in classes(d, "upload-message"), "the bad upload's message")
+    message = text(d, "upload-message")
+    assert "no_buyers.xlsx: The workbook has" in message and "sheet 'buyers'" in message
+    screenshot(d, tmp_path / "bad_upload.png")
+
+    # a good upload (another station: 35 days from March) and a re-plan with a what-if
+    from demo.build_demo import build_demo_workbook
+
+    good = build_demo_workbook(tmp_path / "spring.xlsx", start_date=dt.date(2027, 3, 1),
+                               horizon_days=35)
+    upload(d, good)
+    wait(d, lambda d: "good" in classes(d, "upload-message"), "the good upload's message")
+    assert "spring.xlsx: the workbook is sound" in text(d, "upload-message")
+    assert "60 days" in text(d, "header-sub")  # not planned yet
+
+    thumb = d.find_element(By.CSS_SELECTOR, "#removal [role=slider]")
+    for _ in range(5):
+        thumb.send_keys(Keys.ARROW_LEFT)  # 97.5 % -> 97.0 %
+    wait(d, lambda d: thumb.get_attribute("aria-valuenow") == "97", "the removal slider")
+    d.find_element(By.ID, "replan-btn").click()
+    wait(d, lambda d: "busy" in classes(d, "replan-box"), "the re-plan's progress state", timeout=10)
+    assert not d.find_element(By.ID, "replan-btn").is_enabled()
+    assert d.find_element(By.ID, "replan-progress-text").is_displayed()
+    # the page stays responsive while the plan runs: switching views still works
+    show_tab(d, "plant", 5)
+    wait(d, lambda d: "good" in classes(d, "replan-message"), "the re-plan to finish", timeout=120)
+    wait(d, lambda d: "SO2 removal 97 %" in text(d, "plan-whatif"), "the new plan's label")
+    wait(d, lambda d: "35 days" in text(d, "header-sub"), "the new header")
+    wait(d, lambda d: trace_points(d, "plant-so2") == 35, "the SO2 chart of the new plan")
+    assert "spring.xlsx" in text(d, "header-sub")
+    screenshot(d, tmp_path / "plant_after_replan.png")
+    show_tab(d, "coordinator", 3)
+    screenshot(d, tmp_path / "coordinator_after_replan.png")
+
+    # download the plan
+    d.find_element(By.ID, "download-btn").click()
+    target = d.downloads / "plan.xlsx"
+    wait(d, lambda d: target.exists() and target.stat().st_size > 0
+         and not list(d.downloads.glob("*.crdownload")), "plan.xlsx in the download folder")
+    assert target.read_bytes()[:2] == b"PK"  # an .xlsx is a zip file
+
+    errors = [e for e in d.get_log("browser") if e.get("level") == "SEVERE"]
+    assert not errors, errors
+    keep = os.environ.get("REAGENTPLAN_SCREENSHOTS")
+    if keep:  # copy the screenshots somewhere to look at them
+        Path(keep).mkdir(parents=True, exist_ok=True)
+        for png in tmp_path.glob("*.png"):
+            shutil.copy(png, Path(keep) / png.name)
