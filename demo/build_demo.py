@@ -569,8 +569,10 @@ def build_demo_workbook(
     hist_planned = _spring_outages(hist_first, start - timedelta(days=1), 24)
     hist_rows, ar_state = _generation_rows(hist_days, rng_hist, hist_planned, 5)
 
+    # the dispatch plan holds the planned overhaul only: forced outages are not known in
+    # advance (the forecast samples them from the history's)
     days = [start + timedelta(days=i) for i in range(horizon_days)]
-    n_forced = 2 if horizon_days >= 120 else (1 if horizon_days >= 20 else 0)
+    n_forced = 0
     planned = _spring_outages(start, end, 21)
     gen_rows, _ = _generation_rows(days, rng_gen, planned, n_forced, ar_state)
     _write_table(wb, "generation", ("date", "unit", "mwh"), gen_rows)

@@ -79,8 +79,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                progress: bool = False) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
-    (arrivals exactly, departures at most), so the daily levels that the outputs show
-    are planned, not guessed."""
+    (arrivals exactly, sales at most, landfill free within its limits), so the daily
+    levels that the outputs show are planned, not guessed."""
     n = len(scenario.dates)
     t0 = time.perf_counter()
     periods = build_periods(scenario.dates, firm_days)
@@ -225,8 +225,9 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                     continue
                 if lane.kind == SUPPLY:
                     m.add_linear_constraint(sum(terms, 0.0) == float(q))
-                else:
+                elif lane.kind == SALE:
                     m.add_linear_constraint(sum(terms, 0.0) <= float(q) + 1e-6)
+                # landfill stays free day by day: the way out that is always there
 
     # ---- monthly contracts and airspace
     for lane in lanes:
