@@ -529,7 +529,7 @@ def build_demo_workbook(
         First planned day [date].
     horizon_days:
         Number of planned days [d]; ``generation`` covers every one of them.
-        The histories cover the two years (generation) and one year (coal
+        The histories cover the three years (generation) and one year (coal
         quality) before ``start_date``.
     """
     start = _as_date(start_date)
@@ -562,9 +562,9 @@ def build_demo_workbook(
          for u in UNITS],
     )
 
-    # two full years of generation history before the start date, then the
+    # three full years (so a backtest still fits a yearly season) of generation history before the start date, then the
     # horizon, whose day-to-day noise carries on from the last history day
-    hist_first = _shift_years(start, -2)
+    hist_first = _shift_years(start, -3)
     hist_days = [hist_first + timedelta(days=i) for i in range((start - hist_first).days)]
     hist_planned = _spring_outages(hist_first, start - timedelta(days=1), 24)
     hist_rows, ar_state = _generation_rows(hist_days, rng_hist, hist_planned, 5)
