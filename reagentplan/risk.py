@@ -19,6 +19,8 @@ of a stock-out per period, expected shortage.
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -109,21 +111,21 @@ def replay(result: PlanResult, flows: dict[str, np.ndarray], *, plan: DailyPlan 
     scn, lanes = result.scenario, result.lanes
     plan = plan or result.plan
     n = len(scn.dates)
-    rows, levels = [], {}
-    for store, st in scn.storage.items():
-        if store not in flows:
-            continue
+
+    def one_store(store: str):
+        st = scn.storage[store]
         f = np.asarray(flows[store], dtype=np.float64)
         moved = store_flows(plan, lanes, store, n)
         rate = _forward_mean(f.mean(axis=0), SUPPLY_WINDOW_DAYS)  # mean use or output ahead [t/d]
+        unmet = None
         if store == "limestone":
             level, unmet = replay_limestone(st.initial_t, moved, f)
-            p_empty = (unmet > 1e-9).mean(axis=0)
+            p_empty = (unmet.T > 1e-9).mean(axis=1)  # unmet.T is day-major, contiguous
         else:
             level = replay_byproduct(st.initial_t, f, moved)
-            p_empty = (level <= 1e-9).mean(axis=0)
-        levels[store] = level
         lv = np.ascontiguousarray(level.T, dtype=np.float32)  # day-major copy for the statistics
+        if store != "limestone":
+            p_empty = (lv <= 1e-6).mean(axis=1)
         q = np.quantile(lv, [0.1, 0.5, 0.9], axis=1, method="inverted_cdf")
         with np.errstate(divide="ignore", invalid="ignore"):
             if store == "limestone":  # days the stock lasts at the coming mean use
@@ -143,7 +145,14 @@ def replay(result: PlanResult, flows: dict[str, np.ndarray], *, plan: DailyPlan 
         })
         if store == "limestone" and so2 is not None:
             frame["p_so2_over_limit"], frame["mwh_at_risk"] = _permit_consequence(scn, f, unmet, so2)
-        rows.append(frame)
+        return store, level, frame
+
+    stores = [s for s in scn.storage if s in flows]
+    # numpy releases the GIL in the sorts and reductions: one thread per store
+    with ThreadPoolExecutor(max_workers=min(len(stores), os.cpu_count() or 1)) as pool:
+        done = list(pool.map(one_store, stores))
+    levels = {store: level for store, level, _ in done}
+    rows = [frame for _, _, frame in done]
     frame = pd.concat(rows, ignore_index=True)
     top = top_risks(result, frame, flows, plan) if suggest else []
     first = next(iter(flows.values()))
