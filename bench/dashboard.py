@@ -33,8 +33,6 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-CHROMIUM = "/usr/bin/chromium"
-CHROMEDRIVER = "/usr/bin/chromedriver"
 FIRST_RENDER_TARGET_S = 2.0
 REPLAN_TARGET_S = 5.0
 
@@ -49,18 +47,9 @@ def serve(app):
 
 
 def browser(profile: str):
-    from selenium import webdriver
-    from selenium.webdriver.chrome.service import Service
+    from dashboard.testing import chromium_driver
 
-    os.environ.setdefault("SE_OFFLINE", "true")
-    opts = webdriver.ChromeOptions()
-    opts.binary_location = CHROMIUM
-    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
-                "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                "--no-first-run", "--disable-extensions", f"--user-data-dir={profile}",
-                "--window-size=1500,1100"):
-        opts.add_argument(arg)
-    return webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=opts)
+    return chromium_driver(profile)
 
 
 DRAWN = ("return document.querySelectorAll('.rp-view .js-plotly-plot').length >= 3 && "
@@ -151,6 +140,8 @@ def main(argv=None) -> int:
     parser.add_argument("--replans", type=int, default=3, help="re-plans to time (default %(default)s)")
     parser.add_argument("--shots", type=Path, default=None, help="save screenshots of the 365-day views here")
     args = parser.parse_args(argv)
+    from dashboard.testing import CHROMEDRIVER, CHROMIUM
+
     if not (os.path.exists(CHROMIUM) and os.path.exists(CHROMEDRIVER)):
         print(f"needs {CHROMIUM} and {CHROMEDRIVER} (Debian chromium, chromium-driver)")
         return 2

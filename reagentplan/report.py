@@ -14,8 +14,6 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import CAUTION
-
 
 @contextlib.contextmanager
 def staged_output(out_dir: str | os.PathLike) -> Iterator[Path]:
@@ -40,11 +38,6 @@ def write_csv(frame: pd.DataFrame, path: Path, float_format: str = "%.10g") -> P
     """Write a frame as CSV with ISO dates and no index."""
     frame.to_csv(path, index=False, float_format=float_format, date_format="%Y-%m-%d")
     return path
-
-
-def caution_lines() -> list[str]:
-    """The caution printed with every result."""
-    return [CAUTION]
 
 
 def write_run(run, folder: Path) -> list[Path]:

@@ -179,7 +179,7 @@ def top_risks(result: PlanResult, frame: pd.DataFrame, flows: dict[str, np.ndarr
               plan: DailyPlan, limit: int = 5) -> list[dict]:
     """Stores whose chance of breaking a limit passes `ALERT_LEVEL`, earliest first, each
     with what would remove it and the chance once that is done."""
-    scn, lanes = result.scenario, result.lanes
+    scn = result.scenario
     out = []
     for store, g in frame.groupby("store", sort=False):
         g = g.reset_index(drop=True)

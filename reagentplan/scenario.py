@@ -9,6 +9,7 @@ boundary the rest of the library trusts the types.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import difflib
 import math
@@ -618,7 +619,7 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
 
     plant = _make(Plant, plant_kv)
     if plant.fly_ash_share_pct is None:
-        plant = _replace(plant, fly_ash_share_pct=80.0 if plant.boiler == "pc" else 60.0)
+        plant = dataclasses.replace(plant, fly_ash_share_pct=80.0 if plant.boiler == "pc" else 60.0)
     scrubber = _make(Scrubber, scrub_kv)
     units = tuple(_make(Unit, r) for r in recs["units"])
     sources = tuple(_make(CoalSource, r) for r in recs["coal_sources"])
@@ -671,12 +672,6 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
 
 def _make(cls, record: dict[str, Any]):
     return cls(**{f.name: record.get(f.name) for f in fields(cls)})
-
-
-def _replace(obj, **changes):
-    import dataclasses
-
-    return dataclasses.replace(obj, **changes)
 
 
 def _check_plant(plant: Plant, scrubber: Scrubber, out: _Collector) -> None:
@@ -953,12 +948,3 @@ def _check_periods(records, plant: Plant, out: _Collector) -> pd.DataFrame | Non
     frame["first_date"] = pd.to_datetime(frame["first_date"])
     frame["last_date"] = pd.to_datetime(frame["last_date"])
     return frame
-
-
-def horizon_generation(scenario: Scenario) -> pd.DataFrame:
-    """Generation [MWh] per (date × unit) for every horizon day: the ``generation``
-    sheet where it gives a day, else the forecast's median
-    (`reagentplan.forecast.median_generation`, fitted on ``generation_history``)."""
-    from .forecast.generation import median_generation  # the forecast builds on this module
-
-    return median_generation(scenario)

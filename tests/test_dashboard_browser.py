@@ -12,16 +12,13 @@ import datetime as dt
 import logging
 import os
 import shutil
-import sys
 import threading
 import time
-import types
 from pathlib import Path
 
 import pytest
 
-CHROMIUM = "/usr/bin/chromium"
-CHROMEDRIVER = "/usr/bin/chromedriver"
+from dashboard.testing import CHROMEDRIVER, CHROMIUM, chromium_driver  # noqa: E402
 
 if not os.path.exists(CHROMIUM):
     pytest.skip(f"no Chromium at {CHROMIUM} (Debian package 'chromium')", allow_module_level=True)
@@ -30,7 +27,6 @@ if not os.path.exists(CHROMEDRIVER):
                 allow_module_level=True)
 webdriver = pytest.importorskip("selenium.webdriver")
 
-from selenium.webdriver.chrome.service import Service  # noqa: E402
 from selenium.webdriver.common.by import By  # noqa: E402
 from selenium.webdriver.common.keys import Keys  # noqa: E402
 from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
@@ -43,34 +39,7 @@ TIMEOUT = 60
 
 
 @pytest.fixture(scope="module")
-def plan_writer():
-    """The plan workbook writer, or (while that stage is missing) a stand-in for this
-    test only."""
-    try:
-        import reagentplan.plan_workbook  # noqa: F401
-
-        yield
-        return
-    except ImportError:
-        pass
-    fake = types.ModuleType("reagentplan.plan_workbook")
-
-    def write_plan_workbook(run, path):
-        from openpyxl import Workbook
-
-        wb = Workbook()
-        wb.active.append(["stand-in plan workbook for the dashboard test"])
-        wb.save(path)
-        return Path(path)
-
-    fake.write_plan_workbook = write_plan_workbook
-    sys.modules["reagentplan.plan_workbook"] = fake
-    yield
-    sys.modules.pop("reagentplan.plan_workbook", None)
-
-
-@pytest.fixture(scope="module")
-def server(tmp_path_factory, plan_writer):
+def server(tmp_path_factory):
     from werkzeug.serving import make_server
 
     from dashboard.app import create_app
@@ -90,22 +59,9 @@ def server(tmp_path_factory, plan_writer):
 
 @pytest.fixture(scope="module")
 def browser(tmp_path_factory):
-    os.environ.setdefault("SE_OFFLINE", "true")  # never let Selenium look for drivers online
     profile = tmp_path_factory.mktemp("chrome-profile")
     downloads = tmp_path_factory.mktemp("downloads")
-    opts = webdriver.ChromeOptions()
-    opts.binary_location = CHROMIUM
-    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
-                "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                "--no-first-run", "--disable-extensions", f"--user-data-dir={profile}",
-                "--window-size=1500,1100"):
-        opts.add_argument(arg)
-    opts.add_experimental_option("prefs", {
-        "download.default_directory": str(downloads), "download.prompt_for_download": False,
-        "download.directory_upgrade": True, "safebrowsing.enabled": False})
-    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=opts)
-    driver.execute_cdp_cmd("Browser.setDownloadBehavior",
-                           {"behavior": "allow", "downloadPath": str(downloads)})
+    driver = chromium_driver(profile, downloads)
     driver.downloads = downloads
     yield driver
     driver.quit()

@@ -6,7 +6,7 @@ import datetime as dt
 
 import pytest
 
-from helpers import START, minimal_sheets, set_value, workbook_bytes, write_workbook
+from helpers import START, set_value, workbook_bytes, write_workbook
 from reagentplan.errors import ScenarioError
 from reagentplan.scenario import load_scenario
 

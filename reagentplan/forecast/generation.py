@@ -47,7 +47,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..scenario import MIN_HISTORY_DAYS, Scenario, Unit
+from ..scenario import Scenario, Unit
 from . import streams
 from .memo import per_scenario
 from .noise import (ARNoise, correlate, fit_ar_noise, noise_mean_sd, simulate_noise,

@@ -8,7 +8,6 @@ closure, contract maximum, quality limits shutting out buyers, landfill limit.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from ..scenario import Scenario
 from .evaluate import DailyPlan, Evaluation

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import Scenario
-from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 
 #: A tonne of limestone demand that cannot be met (the store is empty) costs this many
 #: times the shortage penalty: the scrubber cannot run.  Common practice, no source.
