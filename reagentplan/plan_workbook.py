@@ -31,6 +31,8 @@ NOTE_FONT = Font(italic=True, color="555555")
 WATCH_FILL = PatternFill("solid", fgColor="F6E7B4")
 ALARM_FILL = PatternFill("solid", fgColor="E4A18B")
 OUTLOOK_FILL = PatternFill("solid", fgColor="EEF2F4")
+#: Chart lines: the level in slate, safety stock in ochre, capacity in brick.
+LINE_COLOURS = ("2F4858", "C98B2B", "A8442A")
 
 SOURCES = [
     ("SO2 from fuel sulfur", "US EPA AP-42, 5th ed., Section 1.1 (about 95 % of fuel S to SO2; Table 1.1-3)"),
@@ -200,6 +202,11 @@ def _line_chart(ws, title: str, data_ws, first_col: int, cols: list[int], n_rows
     chart.x_axis.number_format = "mmm-yy"
     for c in cols:
         chart.add_data(Reference(data_ws, min_col=c, min_row=1, max_row=n_rows + 1), titles_from_data=True)
+    for series, colour, dash in zip(chart.series, LINE_COLOURS, ("solid", "dash", "dash")):
+        series.graphicalProperties.line.solidFill = colour
+        series.graphicalProperties.line.dashStyle = dash
+        series.graphicalProperties.line.width = 19050 if dash == "solid" else 12700
+        series.smooth = False
     chart.set_categories(Reference(data_ws, min_col=first_col, min_row=2, max_row=n_rows + 1))
     ws.add_chart(chart, anchor)
 
@@ -242,6 +249,9 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
             ws.conditional_formatting.add(rng, CellIsRule(operator="greaterThan", formula=["5"], fill=WATCH_FILL))
     charts = wb.create_sheet("Store charts")
     charts.cell(1, 1, "End-of-day level with safety stock and capacity, per store").font = TITLE_FONT
+    charts.page_setup.orientation = "landscape"
+    charts.page_setup.fitToWidth, charts.page_setup.fitToHeight = 1, 0
+    charts.sheet_properties.pageSetUpPr.fitToPage = True
     row = 3
     for store in scn.storage:
         label = store.replace("_", " ")
