@@ -247,9 +247,9 @@ def replan(store: PlanStore, options: PlanOptions, scenario_id, load_pct, sulfur
 
 
 def plan_workbook_bytes(run) -> bytes:
-    """The plan workbook (`reagentplan.plan_workbook.write_plan_workbook`) as bytes,
+    """The plan workbook (`reagentplan.output.plan_workbook.write_plan_workbook`) as bytes,
     written to a private temporary folder and read back."""
-    from reagentplan.plan_workbook import write_plan_workbook  # lazily: the writer is optional
+    from reagentplan.output import write_plan_workbook
 
     with tempfile.TemporaryDirectory(prefix="reagentplan-download-") as tmp:
         path = Path(tmp) / "plan.xlsx"

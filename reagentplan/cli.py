@@ -34,7 +34,7 @@ def _cmd_check(args) -> int:
 
 def _cmd_balance(args) -> int:
     from .balance import balance_frame
-    from .report import staged_output, write_csv
+    from .output import staged_output, write_csv
     from .scenario import load_scenario
     from .summary import describe_balance
 
@@ -50,7 +50,7 @@ def _cmd_balance(args) -> int:
 
 def _cmd_plan(args) -> int:
     from .pipeline import run_plan
-    from .report import staged_output, write_run
+    from .output import staged_output, write_run
     from .scenario import load_scenario
     from .summary import describe_plan, describe_risk
 
@@ -70,7 +70,7 @@ def _cmd_plan(args) -> int:
 def _cmd_forecast(args) -> int:
     from .forecast import (backtest, describe_backtest, describe_forecast, forecast_frame,
                            notes_text, sample_futures)
-    from .report import staged_output, write_csv
+    from .output import staged_output, write_csv
     from .scenario import load_scenario
 
     scenario = load_scenario(args.workbook)
@@ -102,7 +102,7 @@ def _cmd_demo(args) -> int:
     from demo.build_demo import build_demo_workbook
 
     from .pipeline import run_plan
-    from .report import staged_output, write_run
+    from .output import staged_output, write_run
     from .scenario import load_scenario
     from .summary import describe_demo
 

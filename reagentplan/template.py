@@ -17,6 +17,7 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.datavalidation import DataValidation
 
 from . import CAUTION, schema
+from .output.files import save_workbook
 from .units import VARIANTS
 
 HEADER_FILL = PatternFill("solid", fgColor="DCE6D2")
@@ -71,11 +72,7 @@ def write_template(path: str | Path) -> Path:
     notes.column_dimensions["B"].width = 28
     notes.column_dimensions["C"].width = 110
     wb.move_sheet("notes", offset=len(wb.sheetnames))
-    tmp = path.with_name(f".{path.name}.tmp")
-    path.parent.mkdir(parents=True, exist_ok=True)
-    wb.save(tmp)
-    tmp.replace(path)
-    return path
+    return save_workbook(wb, path)
 
 
 def _header(ws, names: list[str]) -> None:

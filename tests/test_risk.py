@@ -82,7 +82,7 @@ def test_top_risks_name_a_remedy_that_helps(small_run):
 
 @pytest.fixture(scope="module")
 def plan_out(tmp_path_factory, small_run):
-    from reagentplan.report import write_run
+    from reagentplan.output import write_run
 
     out = tmp_path_factory.mktemp("out")
     write_run(small_run, out)
@@ -134,7 +134,7 @@ def test_interrupted_run_keeps_the_previous_output(tmp_path, monkeypatch):
     assert main(["plan", str(path), "--out", str(out), "--futures", "0"]) == 0
     before = {p.name: p.read_bytes() for p in out.iterdir()}
 
-    import reagentplan.plan_workbook as pw
+    import reagentplan.output.run as pw
 
     def boom(*a, **k):
         raise RuntimeError("simulated crash while writing")

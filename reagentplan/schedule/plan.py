@@ -3,9 +3,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -157,18 +155,5 @@ def inventory_frame(scenario: Scenario, ev: Evaluation) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
-def write_plan_files(result: PlanResult, folder: Path) -> list[Path]:
-    """Write balance.csv, movements.csv, inventory.csv and summary.json into ``folder``."""
-    from ..report import write_csv
-
-    paths = [write_csv(result.balance, folder / "balance.csv"),
-             write_csv(result.movements, folder / "movements.csv"),
-             write_csv(result.inventory, folder / "inventory.csv", float_format="%.3f")]
-    path = folder / "summary.json"
-    path.write_text(json.dumps(result.summary(), indent=2))
-    paths.append(path)
-    return paths
-
-
 __all__ = ["make_plan", "PlanResult", "guard_margins", "movements_frame", "inventory_frame",
-           "write_plan_files", "LANDFILL", "SALE"]
+           "LANDFILL", "SALE"]

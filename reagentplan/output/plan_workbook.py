@@ -20,8 +20,9 @@ from openpyxl.formatting.rule import CellIsRule
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
-from . import CAUTION
-from .schedule.lanes import SALE, SUPPLY, horizon_months
+from .. import CAUTION
+from ..schedule.lanes import SALE, SUPPLY, horizon_months
+from .files import save_workbook
 
 HEAD_FILL = PatternFill("solid", fgColor="2F4858")
 HEAD_FONT = Font(bold=True, color="FFFFFF")
@@ -313,11 +314,7 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
                     widths={"item": 30, costs.columns[1]: 20, costs.columns[2]: 28})
     _assumptions(wb.create_sheet("Assumptions"), run)
 
-    tmp = path.with_name(f".{path.name}.tmp")
-    path.parent.mkdir(parents=True, exist_ok=True)
-    wb.save(tmp)
-    os.replace(tmp, path)
-    return path
+    return save_workbook(wb, path)
 
 
 _UNITS = {"_t": "[t]", "_gj": "[GJ]", "_mwh": "[MWh]", "_pct": "[%]", "_ppm": "[ppm]",
