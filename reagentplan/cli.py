@@ -62,6 +62,8 @@ def _cmd_plan(args) -> int:
         written = write_run(run, tmp)
     print(describe_plan(run.plan))
     print(describe_risk(run))
+    for line in run.warnings:
+        print(f"Warning: {line}")
     print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     print(f"\nCaution: {CAUTION}")
     return EXIT_BREACH if run.plan.breaches else EXIT_OK

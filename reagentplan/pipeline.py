@@ -30,6 +30,12 @@ class PlanRun:
     futures: object | None  # reagentplan.forecast.Futures, or None without futures
     risk: RiskResult | None = None
 
+    @property
+    def warnings(self) -> list[str]:
+        """Plain-words warnings of the run: inputs that look doubtful (a coal sheet value
+        that disagrees with its lab results...)."""
+        return list(self.futures.warnings) if self.futures is not None else []
+
 
 def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
              time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,

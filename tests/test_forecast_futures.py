@@ -221,3 +221,56 @@ def test_quality_fit_without_any_history_is_fixed_or_sheet():
     scn = zero_spread_scenario()
     q = fit_quality(scn)
     assert all(not src.varies for src in q.sources.values())
+
+
+# --------------------------------------------------------------------------- lab level
+
+
+def lab_scenario(sheet_sulfur: float, lab_sulfur: float = 2.0, days: int = 30):
+    s = minimal_sheets(days=days)
+    set_value(s, "coal_sources", 0, "sulfur_pct", sheet_sulfur)
+    s["coal_quality_history"] = lab_sheet(synthetic_labs("Coal A", 365, lab_sulfur, 0.2, 0.9,
+                                                         seed=2))
+    return load_scenario(workbook_bytes(s))
+
+
+def test_futures_centre_on_the_lab_not_on_the_sheet():
+    """The sheet says 2.6 % S, a year of lab results says about 2.0 % (sd 0.2): the
+    futures follow the lab, and the disagreement (3 sd) is named."""
+    scn = lab_scenario(2.6)
+    fut = sample_futures(scn, 4000, seed=1)
+    labs = scn.coal_quality_history["sulfur_pct"]
+    assert np.median(fut["sulfur_pct"][:, -1]) == pytest.approx(labs.mean(), abs=0.03)
+    assert abs(np.median(fut["sulfur_pct"]) - 2.6) > 0.4
+    assert len(fut.warnings) == 1
+    w = fut.warnings[0]
+    assert "Coal A" in w and "sulfur_pct" in w and "2.6" in w and "lab" in w
+    assert any(n.startswith("warning: ") for n in fut.notes)
+
+
+def test_an_agreeing_sheet_gives_no_warning_and_the_same_centre():
+    near = lab_scenario(2.05)
+    fut = sample_futures(near, 2000, seed=1)
+    assert fut.warnings == ()
+    far = sample_futures(lab_scenario(2.6), 2000, seed=1)
+    # the futures depend on the lab, not on the sheet's value
+    assert np.array_equal(fut["sulfur_pct"], far["sulfur_pct"])
+
+
+def test_the_forecast_starts_at_the_latest_result_and_returns_to_the_level():
+    """AR(1) around the lab's level, started from the last result's deviation: the first
+    day's median is near the last result, the far days' near the level (Box et al. 2015,
+    the AR(1) forecast function phi**h times the last deviation)."""
+    s = minimal_sheets(days=60)
+    rows = synthetic_labs("Coal A", 365, 2.0, 0.2, 0.9, seed=2, weekdays=tuple(range(7)))
+    rows[-1][2] = 2.8  # the latest result, the day before the plan starts, is high
+    s["coal_quality_history"] = lab_sheet(rows)
+    scn = load_scenario(workbook_bytes(s))
+    src = fit_quality(scn).sources["Coal A"]
+    sulfur = src.properties[0]
+    level = sulfur.center
+    fut = sample_futures(scn, 4000, seed=3)
+    med = np.median(fut["sulfur_pct"], axis=0)
+    assert med[0] > level + 0.3
+    assert abs(med[-1] - level) < 0.05
+    assert med[0] > med[5] > med[20]

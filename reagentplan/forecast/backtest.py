@@ -218,7 +218,7 @@ def backtest(scenario: Scenario, holdout_days: int, n_futures: int = 1000, seed:
             a = lab.reindex(q_window).to_numpy(dtype=float)
             row, day = _score(f"sulfur {s.source}", "sulfur_pct", q_window, a, sim,
                               np.full(len(q_window), np.nan), trailing_mean(lab, q_end),
-                              "lab results, AR(1) around the sheet's sulfur_pct")
+                              "lab results, AR(1) around their recent level")
             rows.append(row)
             daily.append(day)
     summary = pd.DataFrame(rows, columns=list(SUMMARY_COLUMNS))

@@ -1,11 +1,16 @@
 """Coal-quality futures per source: sulfur, ash and heating value as received.
 
-Each property of each source varies around the ``coal_sources`` sheet's value as an
-AR(1) deviation per day: its spread and day-to-day persistence come from the source's
-lab results in ``coal_quality_history`` (several samples on one day are averaged; days
-without a sample are missing, not filled), and the three properties' innovations are
-correlated as the lab results are (ash up, heating value down).  The forecast carries
-on from the last result's deviation from the history's mean.
+Where a source has lab results in ``coal_quality_history`` (at least `MIN_SAMPLES`),
+each property varies as an AR(1) deviation per day around the lab's recent level: the
+mean of the results of the last `RECENT_DAYS` before the latest one.  Its spread and
+day-to-day persistence are fitted on the same results (several samples on one day are
+averaged; days without a sample are missing, not filled), and the three properties'
+innovations are correlated as the lab results are (ash up, heating value down).  The
+forecast carries on from the last result's deviation from that level, so it starts
+where the lab stands and returns to the level as fast as the lab's persistence says.
+The ``coal_sources`` sheet's single value is then only compared with the lab: where the
+two differ by more than `DISAGREE_SDS` standard deviations of the lab results, the
+source's model carries a warning (the deterministic balance still uses the sheet).
 
 Without lab results, sulfur takes the sheet's ``sulfur_sd_pct`` as its spread with the
 stated persistence `DEFAULT_PERSISTENCE`, started from no knowledge of the present;
@@ -42,6 +47,12 @@ DEFAULT_PERSISTENCE = 0.8
 MIN_SAMPLES = 10
 #: As `reagentplan.forecast.generation.MAX_LEAD_DAYS`: older results are forgotten [d].
 MAX_LEAD_DAYS = 366
+#: Lab results of this many days up to the latest one set the level and the fit [d]
+#: (a stated choice: a year holds every season of a mine's seams; no published source).
+RECENT_DAYS = 366
+#: The sheet and the lab disagree beyond this many lab standard deviations [-]
+#: (a stated threshold: about 5 % of results lie further out for a normal spread).
+DISAGREE_SDS = 2.0
 
 
 @dataclass(frozen=True)
@@ -53,13 +64,18 @@ class PropertyModel:
     name : str
         ``sulfur_pct`` [%], ``ash_pct`` [%] or ``hhv_mj_per_kg`` [MJ/kg].
     center : float
-        The sheet's value [unit]: the level the deviations are added to.
+        The level the deviations are added to [unit]: the lab's recent mean where the
+        property is fitted from lab results, else the sheet's value.
     noise : ARNoise | None
         Daily deviation [unit]; None = no spread.
     basis : str
         ``lab`` (fitted), ``sheet`` (sulfur_sd_pct, default persistence) or ``fixed``.
     samples : int
         Lab results used.
+    sheet_value : float | None
+        The ``coal_sources`` sheet's value [unit] (None when it is the center).
+    lab_sd : float
+        Standard deviation of the lab results used [unit] (0 without a fit).
     """
 
     name: str
@@ -67,15 +83,27 @@ class PropertyModel:
     noise: ARNoise | None
     basis: str
     samples: int = 0
+    sheet_value: float | None = None
+    lab_sd: float = 0.0
+
+    @property
+    def disagrees(self) -> bool:
+        """The sheet's value lies more than `DISAGREE_SDS` lab standard deviations from
+        the lab's level."""
+        return (self.sheet_value is not None
+                and abs(self.sheet_value - self.center) > DISAGREE_SDS * self.lab_sd)
 
     def describe(self) -> str:
         label = {"sulfur_pct": "sulfur", "ash_pct": "ash", "hhv_mj_per_kg": "HHV"}[self.name]
         unit = "MJ/kg" if self.name == "hhv_mj_per_kg" else "%"
         if self.noise is None:
+            if self.basis == "lab":
+                return f"{label} fixed at {self.center:g} {unit}, as all {self.samples} lab results"
             return f"{label} fixed at {self.center:g} {unit}"
         spread = f"sd {self.noise.stationary_sd:.3g} {unit}, {self.noise.describe()}"
         if self.basis == "lab":
-            return f"{label} from {self.samples} lab results: {spread}"
+            return (f"{label} from {self.samples} lab results, around their recent level "
+                    f"{self.center:.3g} {unit}: {spread}")
         return (f"{label}: sd {self.noise.stationary_sd:.3g} {unit} from sulfur_sd_pct with "
                 f"an assumed persistence of {DEFAULT_PERSISTENCE:g} per day (fallback: "
                 f"fewer than {MIN_SAMPLES} lab results)")
@@ -108,12 +136,29 @@ class SourceModel:
     def describe(self) -> str:
         return "; ".join(p.describe() for p in self.properties)
 
+    def warnings(self) -> list[str]:
+        """One line per property whose sheet value disagrees with the lab."""
+        out = []
+        for p in self.properties:
+            if p.disagrees:
+                unit = "MJ/kg" if p.name == "hhv_mj_per_kg" else "%"
+                out.append(
+                    f"coal_sources: {self.source} {p.name} is {p.sheet_value:g} {unit} on the "
+                    f"sheet, but its {p.samples} recent lab results average {p.center:.3g} {unit} "
+                    f"(sd {p.lab_sd:.3g}): more than {DISAGREE_SDS:g} sd apart. The futures follow "
+                    f"the lab; the deterministic balance uses the sheet. Check the sheet value.")
+        return out
+
 
 @dataclass(frozen=True)
 class QualityModel:
     """Quality models of every coal source, by name (sulfur and ash [%], HHV [MJ/kg])."""
 
     sources: dict[str, SourceModel]
+
+    def warnings(self) -> list[str]:
+        """Sheet values that disagree with the lab, one line each."""
+        return [w for m in self.sources.values() for w in m.warnings()]
 
 
 def daily_lab_means(samples: pd.DataFrame) -> pd.DataFrame:
@@ -124,15 +169,26 @@ def daily_lab_means(samples: pd.DataFrame) -> pd.DataFrame:
     return by_day.reindex(grid)
 
 
+def recent_results(daily: pd.DataFrame, days: int = RECENT_DAYS) -> pd.DataFrame:
+    """The daily lab means [unit] of the last ``days`` [d] up to the latest result."""
+    return daily[daily.index > daily.index[-1] - pd.Timedelta(days=days)]
+
+
 def fit_source(source: CoalSource, samples: pd.DataFrame | None) -> SourceModel:
     """Fit one source from its lab results (date, sulfur_pct [%], ash_pct [%],
     hhv_mj_per_kg [MJ/kg]), or fall back to the sheet's ``sulfur_sd_pct`` [% S].
+
+    A property with at least `MIN_SAMPLES` results in the last `RECENT_DAYS` is centred
+    on their mean (the lab's recent level) and its deviations from that level are fitted
+    as AR(1); the sheet's value is kept for comparison (`PropertyModel.disagrees`).
 
     References
     ----------
     statsmodels ``SARIMAX(order=(1, 0, 0))`` via `reagentplan.forecast.noise.fit_ar_noise`.
     """
     daily = daily_lab_means(samples) if samples is not None and len(samples) else None
+    if daily is not None:
+        daily = recent_results(daily)
     props: list[PropertyModel] = []
     innovations: dict[str, np.ndarray] = {}
     for name in PROPERTIES:
@@ -140,9 +196,13 @@ def fit_source(source: CoalSource, samples: pd.DataFrame | None) -> SourceModel:
         values = daily[name].to_numpy(dtype=float) if daily is not None else np.array([])
         n = int(np.isfinite(values).sum())
         if n >= MIN_SAMPLES and np.nanstd(values) > 0:
-            noise, innov = fit_ar_noise(values - np.nanmean(values), order=1)
-            props.append(PropertyModel(name, center, noise, "lab", n))
+            level, sd = float(np.nanmean(values)), float(np.nanstd(values))
+            noise, innov = fit_ar_noise(values - level, order=1)
+            props.append(PropertyModel(name, level, noise, "lab", n, center, sd))
             innovations[name] = innov
+        elif n >= MIN_SAMPLES:  # the lab shows one value every time: no spread, its level
+            level = float(np.nanmean(values))
+            props.append(PropertyModel(name, level, None, "lab", n, center, 0.0))
         elif name == "sulfur_pct" and source.sulfur_sd_pct > 0:
             props.append(PropertyModel(name, center,
                                        stationary_ar1(DEFAULT_PERSISTENCE, source.sulfur_sd_pct),

@@ -99,7 +99,18 @@ class ForecastModel:
             lines.append(corr)
         for s in scenario.coal_sources:
             lines.append(f"coal {s.source}: {self.quality.sources[s.source].describe()}")
+        lines += [f"warning: {w}" for w in self.warnings(scenario)]
         return lines
+
+    def warnings(self, scenario: Scenario) -> list[str]:
+        """Sheet values of the sources burned in the horizon that disagree with their lab
+        results (`reagentplan.forecast.coal_quality.SourceModel.warnings`)."""
+        burned = np.nan_to_num(scenario.blend_matrix().to_numpy(dtype=float)).any(axis=0)
+        out = []
+        for i, s in enumerate(scenario.coal_sources):
+            if burned[i]:
+                out += self.quality.sources[s.source].warnings()
+        return out
 
 
 def fit_forecast(scenario: Scenario, progress=None, cache: bool = True) -> ForecastModel:
@@ -146,6 +157,11 @@ class Futures:
     @property
     def n_futures(self) -> int:
         return next(iter(self.flows.values())).shape[0]
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """The notes that are warnings (a sheet value that disagrees with the lab)."""
+        return tuple(n[len("warning: "):] for n in self.notes if n.startswith("warning: "))
 
     @property
     def n_days(self) -> int:

@@ -23,6 +23,7 @@ def run_summary(run) -> dict:
     """``summary.json`` of a planned run: the plan's summary, with the top risks and the
     number of futures when the run was replayed against futures."""
     summary = run.plan.summary()
+    summary["warnings"] = run.warnings
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
         summary["futures"] = run.risk.n_futures
