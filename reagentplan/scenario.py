@@ -24,7 +24,7 @@ from . import schema
 from .errors import Problem, ScenarioError
 from .schema import Field, Sheet
 from .units import BY_US_NAME, VARIANTS
-from .workbook import RawSheet, read_raw
+from .workbook import RawSheet, Uncalculated, read_raw
 
 DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 MONTH_NAMES = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
@@ -269,7 +269,15 @@ def _describe(value: Any) -> str:
     return f"{value!r}"
 
 
+def _refuse_uncalculated(value: Any) -> None:
+    if isinstance(value, Uncalculated):
+        raise _CellError(f"found the formula '{value}' with no calculated value",
+                         "a value: the file was saved without calculating its formulas (open it "
+                         "in Excel or LibreOffice and save it again, or type the value)")
+
+
 def _parse_number(value: Any) -> float:
+    _refuse_uncalculated(value)
     if isinstance(value, bool):
         raise _CellError(f"found {value}")
     if isinstance(value, (int, float)):
@@ -351,6 +359,7 @@ def names_label(chosen: frozenset[int], names: tuple[str, ...]) -> str:
 
 def _parse_cell(f: Field, value: Any) -> Any:
     """Parse one non-empty cell; raise `_CellError` with what was found."""
+    _refuse_uncalculated(value)
     if f.kind == "text":
         if isinstance(value, float) and value.is_integer():
             value = int(value)
