@@ -499,6 +499,10 @@ def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector) -> list[dict[str, 
                 continue
             seen[key] = excel_row
         records.append(rec)
+    if sheet.sort_by:
+        # order-free: rows pasted unit by unit or source by source are sorted (stable, so
+        # rows of one key keep the order they were written in)
+        records.sort(key=lambda r: tuple(r[k] for k in sheet.sort_by))
     return records
 
 
@@ -670,7 +674,7 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     quality = None
     if has_quality_history:
         quality = _check_dated(recs["coal_quality_history"], "coal_quality_history", "source",
-                               source_names, plant, out, inside_horizon=False, check_order=True)
+                               source_names, plant, out, inside_horizon=False)
     firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
@@ -730,10 +734,10 @@ def _check_quality_limits(records: list[dict[str, Any]], out: _Collector) -> Non
 
 
 def _check_dated(records: list[dict[str, Any]], sheet: str, ref_col: str, known: dict,
-                 plant: Plant, out: _Collector, inside_horizon: bool,
-                 check_order: bool = True) -> pd.DataFrame:
+                 plant: Plant, out: _Collector, inside_horizon: bool) -> pd.DataFrame:
+    """Check a dated table's references and dates.  Its rows come sorted by the sheet's
+    ``sort_by`` (`_read_table`), so the order they were typed or pasted in is free."""
     ref_sheet = "units" if ref_col == "unit" else "coal_sources"
-    previous: dt.date | None = None
     for r in records:
         d = r["date"]
         if r[ref_col] not in known:
@@ -747,11 +751,6 @@ def _check_dated(records: list[dict[str, Any]], sheet: str, ref_col: str, known:
         if not inside_horizon and d >= plant.start_date:
             out.add(sheet, r["_row"], "date", f"the date {d:%Y-%m-%d} is not in the past",
                     f"history before the start date {plant.start_date:%Y-%m-%d}")
-        if check_order and previous is not None and d < previous:
-            out.add(sheet, r["_row"], "date",
-                    f"the date {d:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
-                    "rows in date order")
-        previous = d
     cols = [f.name for f in schema.SHEETS_BY_NAME[sheet].fields]
     frame = pd.DataFrame([{c: r[c] for c in cols} for r in records], columns=cols)
     frame["date"] = pd.to_datetime(frame["date"])
@@ -818,7 +817,6 @@ def _check_history_covers_forecast(generation: pd.DataFrame, history: pd.DataFra
 
 def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
                  out: _Collector) -> pd.DataFrame:
-    previous = None
     totals: dict[dt.date, list] = {}
     for r in records:
         if r["source"] not in sources:
@@ -829,11 +827,6 @@ def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
             out.add("coal_blend", r["_row"], "date",
                     f"the date {r['date']:%Y-%m-%d} is after the horizon's last day "
                     f"{plant.end_date:%Y-%m-%d}", "a date inside the horizon")
-        if previous is not None and r["date"] < previous:
-            out.add("coal_blend", r["_row"], "date",
-                    f"the date {r['date']:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
-                    "rows in date order")
-        previous = r["date"]
         totals.setdefault(r["date"], []).append(r)
     if not records:
         out.add("coal_blend", None, None, "the sheet has no rows",

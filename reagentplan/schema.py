@@ -95,6 +95,9 @@ class Sheet:
     required: bool = True
     key: tuple[str, ...] = ()  # columns that identify a row (duplicates are errors)
     note: str = ""
+    #: Columns the rows are sorted by once read: the order rows are written in carries
+    #: no meaning (history pasted unit by unit is as good as history in date order).
+    sort_by: tuple[str, ...] = ()
 
     def field(self, name: str) -> Field:
         for f in self.fields:
@@ -183,6 +186,7 @@ UNITS = Sheet(
 GENERATION = Sheet(
     "generation",
     key=("date", "unit"),
+    sort_by=("date", "unit"),
     fields=(
         Field("date", "date", note="day", example="2027-01-01"),
         Field("unit", "text", note="unit name from the units sheet", example="Unit 1"),
@@ -210,6 +214,7 @@ COAL_SOURCES = Sheet(
 COAL_BLEND = Sheet(
     "coal_blend",
     key=("date", "source"),
+    sort_by=("date", "source"),
     fields=(
         Field("date", "date", note="blend holds from this date to the next", example="2027-01-01"),
         Field("source", "text", note="source name from coal_sources", example="Seam A"),
@@ -326,6 +331,7 @@ GENERATION_HISTORY = Sheet(
     "generation_history",
     required=False,
     key=("date", "unit"),
+    sort_by=("date", "unit"),
     fields=GENERATION.fields,
     note="past days of generation; the forecast is made from them",
 )
@@ -334,6 +340,7 @@ COAL_QUALITY_HISTORY = Sheet(
     "coal_quality_history",
     required=False,
     key=(),
+    sort_by=("date", "source"),
     fields=(
         Field("date", "date", note="sample date", example="2026-06-01"),
         Field("source", "text", note="source name from coal_sources", example="Seam A"),
