@@ -157,8 +157,14 @@ def parse_upload(data: dict | None):
         return None, f"{name}: {exc.report()}", False
     scenario = dataclasses.replace(scenario, source_name=name)
     p = scenario.plant
+    unusual = ""
+    if scenario.warnings:
+        n = len(scenario.warnings)
+        unusual = (f" {n} value{'s are' if n != 1 else ' is'} unusual; check before relying on "
+                   "the plan: " + " | ".join(str(w) for w in scenario.warnings[:5])
+                   + (" | ..." if n > 5 else ""))
     return scenario, (f"{name}: the workbook is sound ({p.name}, {p.horizon_days} days from "
-                      f"{p.start_date:%Y-%m-%d}). Press Re-plan to plan it."), True
+                      f"{p.start_date:%Y-%m-%d}). Press Re-plan to plan it.{unusual}"), True
 
 
 def accept_upload(store: PlanStore, data: dict | None):

@@ -14,6 +14,15 @@ from .errors import ScenarioError
 EXIT_OK, EXIT_BREACH, EXIT_BAD_INPUT = 0, 1, 2
 
 
+def _warn(scenario, stream=None) -> None:
+    """Print the scenario's unusual values (on stderr unless told otherwise)."""
+    from .summary import describe_warnings
+
+    text = describe_warnings(getattr(scenario, "warnings", ()))
+    if text:
+        print(text, file=stream or sys.stderr)
+
+
 def _cmd_template(args) -> int:
     from .template import write_template
 
@@ -27,8 +36,13 @@ def _cmd_check(args) -> int:
     from .summary import describe_scenario
 
     scenario = load_scenario(args.workbook)
-    print(f"{args.workbook}: the workbook is sound.")
+    n = len(scenario.warnings)
+    print(f"{args.workbook}: the workbook is sound"
+          + (f", with {n} unusual value{'s' if n != 1 else ''} (below)." if n else "."))
     print(describe_scenario(scenario))
+    if n:
+        print()
+        _warn(scenario, sys.stdout)
     return EXIT_OK
 
 
@@ -39,6 +53,7 @@ def _cmd_balance(args) -> int:
     from .summary import describe_balance
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     frame = balance_frame(scenario)
     with staged_output(args.out) as tmp:
         write_csv(frame, tmp / "balance.csv")
@@ -55,6 +70,7 @@ def _cmd_plan(args) -> int:
     from .summary import describe_plan, describe_risk
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
                    time_limit=args.time_limit, firm_days=args.firm_days,
                    risk_level=args.risk_level / 100, progress=True)
@@ -74,6 +90,7 @@ def _cmd_forecast(args) -> int:
     from .scenario import load_scenario
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     futures = sample_futures(scenario, args.futures, args.seed, progress=None)
     frame = forecast_frame(futures)
     result = (backtest(scenario, args.backtest, args.futures, args.seed, progress=None)
@@ -110,6 +127,7 @@ def _cmd_demo(args) -> int:
     with staged_output(out) as tmp:
         build_demo_workbook(tmp / "demo_station.xlsx")
         scenario = load_scenario(tmp / "demo_station.xlsx")
+        _warn(scenario)
         run = run_plan(scenario, futures=args.futures, seed=0, time_limit=args.time_limit,
                        progress=True)
         written = write_run(run, tmp)

@@ -9,6 +9,19 @@ from .files import write_csv, write_json
 from .plan_workbook import write_plan_workbook
 
 
+def input_warnings(scenario) -> list[dict]:
+    """The scenario's unusual values (`Scenario.warnings`) as ``summary.json`` records."""
+    return [w.as_dict() for w in getattr(scenario, "warnings", ())]
+
+
+def plan_summary(result) -> dict:
+    """A `PlanResult`'s summary with the scenario's ``warnings`` (a list, empty when
+    every value is usual)."""
+    summary = result.summary()
+    summary["warnings"] = input_warnings(result.scenario)
+    return summary
+
+
 def write_plan_files(result, folder: Path) -> list[Path]:
     """Write balance.csv, movements.csv, inventory.csv and summary.json of a
     `reagentplan.schedule.PlanResult` into ``folder``."""
@@ -16,13 +29,14 @@ def write_plan_files(result, folder: Path) -> list[Path]:
     return [write_csv(result.balance, folder / "balance.csv"),
             write_csv(result.movements, folder / "movements.csv"),
             write_csv(result.inventory, folder / "inventory.csv", float_format="%.3f"),
-            write_json(result.summary(), folder / "summary.json")]
+            write_json(plan_summary(result), folder / "summary.json")]
 
 
 def run_summary(run) -> dict:
-    """``summary.json`` of a planned run: the plan's summary, with the top risks and the
-    number of futures when the run was replayed against futures."""
-    summary = run.plan.summary()
+    """``summary.json`` of a planned run: the plan's summary with the input ``warnings``,
+    and the top risks and the number of futures when the run was replayed against
+    futures."""
+    summary = plan_summary(run.plan)
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
         summary["futures"] = run.risk.n_futures
