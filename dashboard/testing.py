@@ -36,3 +36,21 @@ def chromium_driver(profile: str | os.PathLike, downloads: str | os.PathLike | N
         driver.execute_cdp_cmd("Browser.setDownloadBehavior",
                                {"behavior": "allow", "downloadPath": str(downloads)})
     return driver
+
+
+def serve_in_thread(app, host: str = "127.0.0.1", threads: int | None = None):
+    """Serve ``app`` with the production server (`dashboard.app.make_server`, waitress)
+    on a free port of ``host`` in a daemon thread; returns ``(url, stop)``."""
+    import threading
+
+    from .app import SERVER_THREADS, make_server, stop_server
+
+    server = make_server(app, host, 0, threads=threads or SERVER_THREADS)
+    thread = threading.Thread(target=server.run, daemon=True, name="reagentplan-server")
+    thread.start()
+
+    def stop() -> None:
+        stop_server(server)
+        thread.join(10)
+
+    return f"http://{host}:{server.effective_port}/", stop

@@ -139,7 +139,7 @@ def _cmd_demo(args) -> int:
 def _cmd_dashboard(args) -> int:
     import os
 
-    from dashboard.security import DashboardRefused, password_for
+    from dashboard.security import DashboardRefused, is_loopback, password_for
 
     try:
         password = password_for(args.host, os.environ)
@@ -155,10 +155,14 @@ def _cmd_dashboard(args) -> int:
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
     app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
                      firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+    _warn(app.reagentplan)
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
+    if not is_loopback(args.host):
+        print("Other machines can reach it: serve it behind a TLS-terminating proxy "
+              "(basic auth sends the password with every request).")
     print(f"Caution: {CAUTION}")
-    serve(app, args.host, args.port)
+    serve(app, args.host, args.port, trusted_proxy=args.trusted_proxy)
     return EXIT_OK
 
 
@@ -233,6 +237,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--demo-days", type=int, default=365,
                    help="days of the demo station when no workbook is given (default %(default)s)")
+    p.add_argument("--trusted-proxy", default=None, metavar="ADDRESS",
+                   help="address of a TLS-terminating proxy in front of the dashboard; only its "
+                        "X-Forwarded-For/-Host/-Proto headers are believed")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 
