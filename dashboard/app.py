@@ -46,6 +46,11 @@ MAX_REQUEST_BYTES = 16 * 1024 * 1024
 DEFAULT_PORT = 8050
 #: Threads answering requests (a re-plan runs in its own process, not in one of these).
 SERVER_THREADS = 8
+#: Most bytes of plans kept in the app's disk cache; the oldest go first.  A 90-day plan
+#: with 500 futures is about 3.5 MB, a 365-day one about 14 MB.
+CACHE_BYTES = 256 * 2**20
+#: Most bytes of finished re-plan jobs kept for the page to collect.
+JOBS_BYTES = 64 * 2**20
 
 TABS = (
     ("coordinator", "Deliveries & orders", coordinator),
@@ -114,7 +119,7 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
                risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,
-               throttle: LoginThrottle | None = None) -> Dash:
+               throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
@@ -132,6 +137,8 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     run : an already planned `PlanRun` to start from instead (its scenario is used).
     work_dir : folder for the app's caches; a fresh temporary one (removed at exit)
         when not given.
+    cache_bytes : most bytes of plans kept on disk (`CACHE_BYTES`); the oldest re-plans
+        are dropped first, the startup plan is kept in memory.
 
     Raises
     ------
@@ -158,7 +165,7 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         scenario, source = run.plan.scenario, run.plan.scenario.source_name or "the given plan"
     seconds = time.perf_counter() - t0
 
-    store = PlanStore(str(work / "plans"))
+    store = PlanStore(str(work / "plans"), size_limit=cache_bytes)
     meta = {"source": source, "whatif": "as the workbook says", "made": time.strftime("%H:%M:%S"),
             "seconds": seconds}
     scenario_id = store.put("scenario", scenario, {"source": source}, pin=True)
@@ -173,7 +180,7 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     install_body_limit(server, MAX_REQUEST_BYTES)
     install_headers(server)
 
-    manager = DiskcacheManager(diskcache.Cache(str(work / "jobs")))
+    manager = DiskcacheManager(diskcache.Cache(str(work / "jobs"), size_limit=JOBS_BYTES))
     app = Dash(__name__, server=server, serve_locally=True, title="reagentplan · station logistics",
                update_title=None, background_callback_manager=manager, include_assets_files=False,
                enable_mcp=False, suppress_callback_exceptions=False)
