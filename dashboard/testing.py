@@ -85,6 +85,8 @@ class DashSession:
         self.scenario_id: str | None = None
         self.plan_id: str | None = None
         self.timings: list[tuple[str, float]] = []
+        #: (what, start, end) on `time.perf_counter`, to tell what ran at the same time
+        self.events: list[tuple[str, float, float]] = []
         self.errors: list[str] = []
 
     # ------------------------------------------------------------------ http
@@ -110,8 +112,12 @@ class DashSession:
 
     def _timed(self, what: str, method: str, path: str, body: dict | None = None,
                ok: tuple[int, ...] = (200,)):
+        import time
+
+        t0 = time.perf_counter()
         status, raw, seconds = self._request(method, path, body)
         self.timings.append((what, seconds))
+        self.events.append((what, t0, t0 + seconds))
         if status not in ok:
             self.errors.append(f"{what}: HTTP {status} {raw[:200]!r}")
         return status, raw
@@ -215,6 +221,7 @@ class DashSession:
             if "response" not in answer:
                 continue  # progress only
             self.timings.append(("replan", time.perf_counter() - t0))
+            self.events.append(("replan", t0, time.perf_counter()))
             r = answer["response"]
             plan_id = r.get("plan-id", {}).get("data")
             message = r.get(C.REPLAN_MESSAGE, {}).get("children", "")
