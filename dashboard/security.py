@@ -222,7 +222,12 @@ def install_origin_check(server, *, loopback_only: bool, origins: Iterable[str] 
             return None
         source = request.headers.get("Origin") or request.headers.get("Referer") or ""
         claimed = _netloc(source, request.scheme)
-        if claimed is None or (claimed != own and claimed not in extra):
+        same = claimed == own
+        if not same and claimed is not None and own is not None and ":" not in host.rsplit("]", 1)[-1]:
+            # a Host without a port (a proxy in front): the page may be on https while
+            # the request reaches the dashboard on http; the default ports are the same site
+            same = claimed[0] == own[0] and claimed[1] in (80, 443)
+        if claimed is None or (not same and claimed not in extra):
             return Response("Refused: this request did not come from the dashboard's own page "
                             "(its Origin or Referer names another site, or none).\n", 403)
         return None

@@ -102,6 +102,18 @@ def test_a_cross_origin_post_with_the_password_is_refused(small_run, tmp_path):
     assert post(client, app, {**basic(PASSWORD), "Origin": "http://localhost"}).status_code == 200
 
 
+def test_behind_a_proxy_the_https_page_may_post_to_its_http_host(small_run, tmp_path):
+    """A proxy passing ``Host: plans.example`` (no port) on to http: the page's Origin is
+    https://plans.example, the same site; another site still is not."""
+    app = create_app(run=small_run, password=PASSWORD, work_dir=tmp_path / "app",
+                     throttle=LoginThrottle())
+    client = app.server.test_client()
+    headers = {**basic(PASSWORD), "Host": "plans.example"}
+    assert post(client, app, {**headers, "Origin": "https://plans.example"}).status_code == 200
+    assert post(client, app, {**headers, "Origin": "https://plans.example:8443"}).status_code == 403
+    assert post(client, app, {**headers, "Origin": "https://evil.example"}).status_code == 403
+
+
 def test_without_a_password_only_loopback_host_names_are_answered(open_app):
     """A hostile page that rebinds its own name to 127.0.0.1 sends Host: its name."""
     client = open_app.server.test_client()
