@@ -10,8 +10,20 @@ from .plan_workbook import write_plan_workbook
 
 
 def input_warnings(scenario) -> list[dict]:
-    """The scenario's unusual values (`Scenario.warnings`) as ``summary.json`` records."""
-    return [w.as_dict() for w in getattr(scenario, "warnings", ())]
+    """The scenario's unusual values (`Scenario.warnings`) as ``summary.json`` records
+    (``kind`` = ``input``)."""
+    return [{"kind": "input", **w.as_dict()} for w in getattr(scenario, "warnings", ())]
+
+
+def run_warnings(run) -> list[dict]:
+    """Every warning of a planned run for ``summary.json``: the inputs' unusual values,
+    then the run's own plain-words warnings (``PlanRun.warnings`` where it has them, e.g.
+    a coal sheet value far from its lab results: ``kind`` = ``forecast``)."""
+    out = input_warnings(run.plan.scenario)
+    for text in getattr(run, "warnings", None) or ():
+        out.append({"kind": "forecast", "sheet": None, "row": None, "column": None,
+                    "message": str(text)})
+    return out
 
 
 def plan_summary(result) -> dict:
@@ -37,6 +49,7 @@ def run_summary(run) -> dict:
     and the top risks and the number of futures when the run was replayed against
     futures."""
     summary = plan_summary(run.plan)
+    summary["warnings"] = run_warnings(run)
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
         summary["futures"] = run.risk.n_futures
