@@ -21,13 +21,11 @@ starts) is timed and printed too, but it is not part of either target.
 from __future__ import annotations
 
 import argparse
-import logging
 import os
 import shutil
 import statistics
 import sys
 import tempfile
-import threading
 import time
 from pathlib import Path
 
@@ -38,12 +36,11 @@ REPLAN_TARGET_S = 5.0
 
 
 def serve(app):
-    from werkzeug.serving import make_server
+    """The production server (waitress) in a thread: ``(stop, url)``."""
+    from dashboard.testing import serve_in_thread
 
-    logging.getLogger("werkzeug").setLevel(logging.ERROR)
-    srv = make_server("127.0.0.1", 0, app.server, threaded=True)
-    threading.Thread(target=srv.serve_forever, daemon=True).start()
-    return srv, f"http://127.0.0.1:{srv.server_port}/"
+    url, stop = serve_in_thread(app)
+    return stop, url
 
 
 def browser(profile: str):
@@ -174,7 +171,7 @@ def _run(args, work: Path, create_app, build_demo_workbook) -> int:
             shots(driver, url365, args.shots)
     finally:
         driver.quit()
-        srv365.shutdown()
+        srv365()
     warm_s = statistics.median(warm)
     print(f"first render, 365-day demo, fresh browser profile: {cold:.2f} s "
           f"(target <= {FIRST_RENDER_TARGET_S:g} s: {'met' if cold <= FIRST_RENDER_TARGET_S else 'missed'})")
@@ -198,7 +195,7 @@ def _run(args, work: Path, create_app, build_demo_workbook) -> int:
                   f"(server: {message})")
     finally:
         driver.quit()
-        srv90.shutdown()
+        srv90()
     med = statistics.median(times)
     print(f"90-day re-plan from the button, end to end (median of {len(times)}): {med:.2f} s "
           f"(target <= {REPLAN_TARGET_S:g} s: {'met' if med <= REPLAN_TARGET_S else 'missed'})")

@@ -9,6 +9,11 @@ or, from Python::
 
     from dashboard.app import create_app, serve
     serve(create_app("station.xlsx"), "127.0.0.1", 8050)
+
+It is served by waitress (a production WSGI server, pure Python): a fixed pool of
+threads, request bodies over `MAX_REQUEST_BYTES` refused from their headers, no
+tracebacks shown.  `make_server` gives the server without running it (tests and
+`bench/serve.py` run it in a thread and stop it with `stop_server`).
 """
 
 from __future__ import annotations
@@ -30,7 +35,8 @@ from reagentplan import CAUTION, __version__
 
 from . import callbacks
 from .callbacks import PlanOptions
-from .security import DEFAULT_HOST, install_basic_auth, install_headers
+from .security import (DEFAULT_HOST, ORIGINS_ENV, LoginThrottle, install_basic_auth,
+                       install_body_limit, install_headers, install_origin_check)
 from .store import PlanStore
 from .style import INDEX_STRING
 from .views import controls, coordinator, plant, sales
@@ -38,6 +44,13 @@ from .views import controls, coordinator, plant, sales
 #: Largest request body the server takes [bytes]: a 10 MB upload as base64, and room.
 MAX_REQUEST_BYTES = 16 * 1024 * 1024
 DEFAULT_PORT = 8050
+#: Threads answering requests (a re-plan runs in its own process, not in one of these).
+SERVER_THREADS = 8
+#: Most bytes of plans kept in the app's disk cache; the oldest go first.  A 90-day plan
+#: with 500 futures is about 3.5 MB, a 365-day one about 14 MB.
+CACHE_BYTES = 256 * 2**20
+#: Most bytes of finished re-plan jobs kept for the page to collect.
+JOBS_BYTES = 64 * 2**20
 
 TABS = (
     ("coordinator", "Deliveries & orders", coordinator),
@@ -104,7 +117,9 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str):
 def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0,
                solver: str = "highs", time_limit: float = 60.0, firm_days: int = 56,
                risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
-               run=None, work_dir: str | os.PathLike | None = None) -> Dash:
+               run=None, work_dir: str | os.PathLike | None = None,
+               origins: tuple[str, ...] | None = None,
+               throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
@@ -113,10 +128,17 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         station, built into the app's private folder with ``demo_days`` days.
     futures, seed, solver, time_limit, firm_days, risk_level : as `run_plan`, for the
         startup plan and every re-plan.
-    password : when given, every request must carry it (HTTP basic auth).
+    password : when given, every request must carry it (HTTP basic auth), with failed
+        attempts slowed and locked out per address (``throttle``, a `LoginThrottle`).
+        Without one, only loopback host names are answered.
+    origins : other origins whose pages may post to the dashboard (a proxy's public
+        ``https://name``); default: the environment variable ``REAGENTPLAN_DASHBOARD_ORIGINS``
+        (comma-separated).  The dashboard's own origin is always accepted.
     run : an already planned `PlanRun` to start from instead (its scenario is used).
     work_dir : folder for the app's caches; a fresh temporary one (removed at exit)
         when not given.
+    cache_bytes : most bytes of plans kept on disk (`CACHE_BYTES`); the oldest re-plans
+        are dropped first, the startup plan is kept in memory.
 
     Raises
     ------
@@ -143,19 +165,22 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         scenario, source = run.plan.scenario, run.plan.scenario.source_name or "the given plan"
     seconds = time.perf_counter() - t0
 
-    store = PlanStore(str(work / "plans"))
+    store = PlanStore(str(work / "plans"), size_limit=cache_bytes)
     meta = {"source": source, "whatif": "as the workbook says", "made": time.strftime("%H:%M:%S"),
             "seconds": seconds}
     scenario_id = store.put("scenario", scenario, {"source": source}, pin=True)
     plan_id = store.put("run", run, meta, pin=True)
 
     server = flask.Flask("reagentplan.dashboard")
-    if password:
-        install_basic_auth(server, password)
+    if origins is None:
+        origins = tuple(o.strip() for o in os.environ.get(ORIGINS_ENV, "").split(",") if o.strip())
+    # each is put in front of the others: they run body limit, password, origin
+    install_origin_check(server, loopback_only=not password, origins=origins)
+    guard = install_basic_auth(server, password, throttle) if password else None
+    install_body_limit(server, MAX_REQUEST_BYTES)
     install_headers(server)
-    server.config["MAX_CONTENT_LENGTH"] = MAX_REQUEST_BYTES
 
-    manager = DiskcacheManager(diskcache.Cache(str(work / "jobs")))
+    manager = DiskcacheManager(diskcache.Cache(str(work / "jobs"), size_limit=JOBS_BYTES))
     app = Dash(__name__, server=server, serve_locally=True, title="reagentplan · station logistics",
                update_title=None, background_callback_manager=manager, include_assets_files=False,
                enable_mcp=False, suppress_callback_exceptions=False)
@@ -165,13 +190,58 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     app.layout = build_layout(run, meta, scenario_id, plan_id)
     callbacks.register(app, store, options, manager)
     app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=scenario_id,
-                                      plan_id=plan_id, work_dir=work, startup_seconds=seconds)
+                                      plan_id=plan_id, work_dir=work, startup_seconds=seconds,
+                                      warnings=tuple(getattr(scenario, "warnings", ())),
+                                      throttle=guard, origins=origins)
     return app
 
 
-def serve(app: Dash, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT) -> None:
-    """Serve ``app`` until interrupted (Flask's threaded server).  A SIGTERM stops it
-    like Ctrl+C, so the app's temporary folder is removed."""
+def make_server(app: Dash, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT, *,
+                threads: int = SERVER_THREADS, trusted_proxy: str | None = None):
+    """A waitress server for ``app`` bound to ``host``:``port`` (0 = a free port), not
+    yet running: call ``.run()`` (blocks), stop it with `stop_server`.  Its address is
+    ``server.effective_host``, ``server.effective_port``.
+
+    ``trusted_proxy``: the address of a TLS-terminating proxy in front; its
+    ``X-Forwarded-For/-Host/-Proto`` headers are then believed (and only its), so the
+    login throttle sees the client's address and the origin check the public host.
+    """
+    from waitress import create_server
+
+    kwargs = {}
+    if trusted_proxy:
+        kwargs = {"trusted_proxy": trusted_proxy, "trusted_proxy_count": 1,
+                  "trusted_proxy_headers": "x-forwarded-for x-forwarded-host x-forwarded-proto",
+                  "clear_untrusted_proxy_headers": True}
+    return create_server(app.server, host=host, port=port, threads=threads,
+                         max_request_body_size=MAX_REQUEST_BYTES, expose_tracebacks=False,
+                         ident="reagentplan", connection_limit=200, channel_timeout=120, **kwargs)
+
+
+def stop_server(server) -> None:
+    """Stop a server made by `make_server` that is running in another thread."""
+    from waitress import wasyncore
+
+    socket_map = server.map if hasattr(server, "map") else server._map
+    triggers = [d for d in socket_map.values() if hasattr(d, "pull_trigger")]
+    trigger = getattr(server, "trigger", None) or (triggers[0] if triggers else None)
+    server.task_dispatcher.shutdown()
+    if trigger is not None:
+        # closed from inside the server's own loop, which then ends (no socket closed
+        # under a running select)
+        trigger.pull_trigger(lambda: wasyncore.close_all(socket_map))
+    else:  # pragma: no cover - every waitress server has a trigger
+        wasyncore.close_all(socket_map)
+
+
+def serve(app: Dash, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT, *,
+          threads: int = SERVER_THREADS, trusted_proxy: str | None = None) -> None:
+    """Serve ``app`` with waitress until interrupted.  A SIGTERM stops it like Ctrl+C,
+    so the app's temporary folder is removed."""
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, lambda *_: sys.exit(0))
-    app.run(host=host, port=port, debug=False, dev_tools_ui=False, dev_tools_props_check=False)
+    server = make_server(app, host, port, threads=threads, trusted_proxy=trusted_proxy)
+    try:
+        server.run()
+    finally:
+        stop_server(server)

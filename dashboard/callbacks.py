@@ -67,6 +67,52 @@ def view_outputs(view, run) -> list:
     return [content[k] for k in view.OUTPUTS]
 
 
+class DrawnViews:
+    """The last views drawn, by (view, plan id): a plan never changes once stored, so
+    twenty sessions looking at one plan draw each view once.  A view being drawn is
+    drawn by one request while the others for it wait (no stampede after a re-plan).
+    At most ``size`` views are kept."""
+
+    def __init__(self, size: int = 24):
+        import threading
+        from collections import OrderedDict
+
+        self.size = size
+        self._done: OrderedDict[tuple, list] = OrderedDict()
+        self._busy: dict[tuple, object] = {}
+        self._lock = threading.Lock()
+
+    def get(self, view, plan_id, draw):
+        import threading
+
+        key = (view.__name__, plan_id)
+        while True:
+            with self._lock:
+                if key in self._done:
+                    self._done.move_to_end(key)
+                    return self._done[key]
+                busy = self._busy.get(key)
+                if busy is None:
+                    busy = self._busy[key] = threading.Event()
+                    mine = True
+                else:
+                    mine = False
+            if not mine:
+                busy.wait(120)
+                continue
+            try:
+                out = draw()
+                with self._lock:
+                    self._done[key] = out
+                    while len(self._done) > self.size:
+                        self._done.popitem(last=False)
+                return out
+            finally:
+                with self._lock:
+                    self._busy.pop(key, None)
+                busy.set()
+
+
 def _kpi(label: str, value: str, tone: str = "", kpi_id: str | None = None):
     kwargs = {"id": kpi_id} if kpi_id else {}
     return html.Div([html.Div(label, className="k"), html.Div(value, className="v")],
@@ -157,8 +203,14 @@ def parse_upload(data: dict | None):
         return None, f"{name}: {exc.report()}", False
     scenario = dataclasses.replace(scenario, source_name=name)
     p = scenario.plant
+    unusual = ""
+    if scenario.warnings:
+        n = len(scenario.warnings)
+        unusual = (f" {n} value{'s are' if n != 1 else ' is'} unusual; check before relying on "
+                   "the plan: " + " | ".join(str(w) for w in scenario.warnings[:5])
+                   + (" | ..." if n > 5 else ""))
     return scenario, (f"{name}: the workbook is sound ({p.name}, {p.horizon_days} days from "
-                      f"{p.start_date:%Y-%m-%d}). Press Re-plan to plan it."), True
+                      f"{p.start_date:%Y-%m-%d}). Press Re-plan to plan it.{unusual}"), True
 
 
 def accept_upload(store: PlanStore, data: dict | None):
@@ -273,12 +325,13 @@ def download(store: PlanStore, plan_id):
 def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
     """Wire the callbacks to ``app``."""
 
+    drawn = DrawnViews()
     for view in VIEWS:
         outputs = [Output(k, "figure" if k in view.FIGURE_OUTPUTS else "children")
                    for k in view.OUTPUTS]
 
         def _draw(plan_id, _view=view):
-            return view_outputs(_view, get_run(store, plan_id).value)
+            return drawn.get(_view, plan_id, lambda: view_outputs(_view, get_run(store, plan_id).value))
 
         app.callback(outputs, Input("plan-id", "data"), prevent_initial_call=True)(_draw)
 

@@ -48,7 +48,10 @@ class PlanStore:
         import diskcache
 
         self.directory = directory
-        self._disk = diskcache.Cache(directory, size_limit=size_limit)
+        self.size_limit = size_limit
+        # culled here, oldest first (diskcache's own cull removes up to ten entries per
+        # write, which with a few large plans can drop the one just written)
+        self._disk = diskcache.Cache(directory, size_limit=size_limit, cull_limit=0)
         self._pinned: dict[str, Entry] = {}
         self._memo: OrderedDict[str, Entry] = OrderedDict()
         self._memory_items = memory_items
@@ -70,7 +73,17 @@ class PlanStore:
         else:
             self._disk.set(key, entry)
             self._remember(key, entry)
+            self._cull(keep=key)
         return item_id
+
+    def _cull(self, keep: str) -> None:
+        """Drop the oldest entries until the cache is within its size limit, never the
+        one just written (``keep``)."""
+        while self._disk.volume() > self.size_limit and len(self._disk) > 1:
+            oldest = next(iter(self._disk), None)
+            if oldest is None or oldest == keep:
+                break
+            self._disk.delete(oldest)
 
     def get(self, kind: str, item_id: object) -> Entry | None:
         """The entry, or ``None`` for an unknown, evicted or malformed id."""

@@ -14,6 +14,15 @@ from .errors import ScenarioError
 EXIT_OK, EXIT_BREACH, EXIT_BAD_INPUT = 0, 1, 2
 
 
+def _warn(scenario, stream=None) -> None:
+    """Print the scenario's unusual values (on stderr unless told otherwise)."""
+    from .summary import describe_warnings
+
+    text = describe_warnings(getattr(scenario, "warnings", ()))
+    if text:
+        print(text, file=stream or sys.stderr)
+
+
 def _cmd_template(args) -> int:
     from .template import write_template
 
@@ -27,8 +36,13 @@ def _cmd_check(args) -> int:
     from .summary import describe_scenario
 
     scenario = load_scenario(args.workbook)
-    print(f"{args.workbook}: the workbook is sound.")
+    n = len(scenario.warnings)
+    print(f"{args.workbook}: the workbook is sound"
+          + (f", with {n} unusual value{'s' if n != 1 else ''} (below)." if n else "."))
     print(describe_scenario(scenario))
+    if n:
+        print()
+        _warn(scenario, sys.stdout)
     return EXIT_OK
 
 
@@ -39,6 +53,7 @@ def _cmd_balance(args) -> int:
     from .summary import describe_balance
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     frame = balance_frame(scenario)
     with staged_output(args.out) as tmp:
         write_csv(frame, tmp / "balance.csv")
@@ -55,6 +70,7 @@ def _cmd_plan(args) -> int:
     from .summary import describe_plan, describe_risk
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
                    time_limit=args.time_limit, firm_days=args.firm_days,
                    risk_level=args.risk_level / 100, progress=True)
@@ -76,6 +92,7 @@ def _cmd_forecast(args) -> int:
     from .scenario import load_scenario
 
     scenario = load_scenario(args.workbook)
+    _warn(scenario)
     futures = sample_futures(scenario, args.futures, args.seed, progress=None)
     frame = forecast_frame(futures)
     result = (backtest(scenario, args.backtest, args.futures, args.seed, progress=None)
@@ -112,6 +129,7 @@ def _cmd_demo(args) -> int:
     with staged_output(out) as tmp:
         build_demo_workbook(tmp / "demo_station.xlsx")
         scenario = load_scenario(tmp / "demo_station.xlsx")
+        _warn(scenario)
         run = run_plan(scenario, futures=args.futures, seed=0, time_limit=args.time_limit,
                        progress=True)
         written = write_run(run, tmp)
@@ -123,7 +141,7 @@ def _cmd_demo(args) -> int:
 def _cmd_dashboard(args) -> int:
     import os
 
-    from dashboard.security import DashboardRefused, password_for
+    from dashboard.security import DashboardRefused, is_loopback, password_for
 
     try:
         password = password_for(args.host, os.environ)
@@ -139,10 +157,14 @@ def _cmd_dashboard(args) -> int:
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
     app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
                      firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+    _warn(app.reagentplan)
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
+    if not is_loopback(args.host):
+        print("Other machines can reach it: serve it behind a TLS-terminating proxy "
+              "(basic auth sends the password with every request).")
     print(f"Caution: {CAUTION}")
-    serve(app, args.host, args.port)
+    serve(app, args.host, args.port, trusted_proxy=args.trusted_proxy)
     return EXIT_OK
 
 
@@ -217,6 +239,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--demo-days", type=int, default=365,
                    help="days of the demo station when no workbook is given (default %(default)s)")
+    p.add_argument("--trusted-proxy", default=None, metavar="ADDRESS",
+                   help="address of a TLS-terminating proxy in front of the dashboard; only its "
+                        "X-Forwarded-For/-Host/-Proto headers are believed")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 

@@ -21,15 +21,49 @@ class Problem:
     expected: str
 
     def __str__(self) -> str:
-        where = []
-        if self.sheet:
-            where.append(f"sheet '{self.sheet}'")
-        if self.row is not None:
-            where.append(f"row {self.row}")
-        if self.column:
-            where.append(f"column '{self.column}'")
-        loc = ", ".join(where) if where else "workbook"
-        return f"{loc}: {self.found}; expected {self.expected}"
+        return f"{location(self.sheet, self.row, self.column)}: {self.found}; expected {self.expected}"
+
+
+def location(sheet: str | None, row: int | None, column: str | None) -> str:
+    """``sheet 'x', row 5, column 'y'`` as Excel shows it (``workbook`` for none)."""
+    where = []
+    if sheet:
+        where.append(f"sheet '{sheet}'")
+    if row is not None:
+        where.append(f"row {row}")
+    if column:
+        where.append(f"column '{column}'")
+    return ", ".join(where) if where else "workbook"
+
+
+@dataclass(frozen=True)
+class InputWarning:
+    """A value that is possible but unusual: the run goes on and says so (on the
+    console, in ``summary.json`` under ``warnings``, in the plan workbook's Assumptions).
+
+    Located like `Problem`; ``found`` is the value with its unit, ``usual`` the usual
+    range in words, ``source`` where that range comes from, ``hint`` a guess at what
+    was meant ("did you mean 97 %?") or empty.
+    """
+
+    sheet: str | None
+    row: int | None
+    column: str | None
+    found: str
+    usual: str
+    source: str
+    hint: str = ""
+
+    def __str__(self) -> str:
+        text = (f"{location(self.sheet, self.row, self.column)}: {self.found} is outside the "
+                f"usual range {self.usual}")
+        if self.hint:
+            text += f"; {self.hint}"
+        return f"{text} [range: {self.source}]"
+
+    def as_dict(self) -> dict:
+        return {"sheet": self.sheet, "row": self.row, "column": self.column, "found": self.found,
+                "usual": self.usual, "hint": self.hint, "source": self.source, "message": str(self)}
 
 
 class ScenarioError(Exception):

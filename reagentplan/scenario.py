@@ -21,10 +21,10 @@ import numpy as np
 import pandas as pd
 
 from . import schema
-from .errors import Problem, ScenarioError
+from .errors import InputWarning, Problem, ScenarioError
 from .schema import Field, Sheet
 from .units import BY_US_NAME, VARIANTS
-from .workbook import RawSheet, read_raw
+from .workbook import RawSheet, Uncalculated, read_raw
 
 DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 MONTH_NAMES = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
@@ -205,6 +205,8 @@ class Scenario:
     source_name: str = ""
     lane_closures: tuple[LaneClosure, ...] = ()
     period_settings: pd.DataFrame | None = None  # first_date, last_date, key, value
+    #: Values that are possible but unusual (`reagentplan.schema.PLAUSIBLE`), located.
+    warnings: tuple[InputWarning, ...] = ()
 
     @property
     def dates(self) -> pd.DatetimeIndex:
@@ -269,7 +271,15 @@ def _describe(value: Any) -> str:
     return f"{value!r}"
 
 
+def _refuse_uncalculated(value: Any) -> None:
+    if isinstance(value, Uncalculated):
+        raise _CellError(f"found the formula '{value}' with no calculated value",
+                         "a value: the file was saved without calculating its formulas (open it "
+                         "in Excel or LibreOffice and save it again, or type the value)")
+
+
 def _parse_number(value: Any) -> float:
+    _refuse_uncalculated(value)
     if isinstance(value, bool):
         raise _CellError(f"found {value}")
     if isinstance(value, (int, float)):
@@ -351,6 +361,7 @@ def names_label(chosen: frozenset[int], names: tuple[str, ...]) -> str:
 
 def _parse_cell(f: Field, value: Any) -> Any:
     """Parse one non-empty cell; raise `_CellError` with what was found."""
+    _refuse_uncalculated(value)
     if f.kind == "text":
         if isinstance(value, float) and value.is_integer():
             value = int(value)
@@ -373,9 +384,44 @@ def _parse_cell(f: Field, value: Any) -> Any:
         if not float(x).is_integer():
             raise _CellError(f"found {_describe(value)}")
         x = int(x)
-    if (f.lo is not None and x < f.lo) or (f.hi is not None and x > f.hi):
+    lo, hi = f.bounds()
+    if (lo is not None and x < lo) or (hi is not None and x > hi):
         raise _CellError(f"found {_describe(value)}")
     return x
+
+
+BOILER_WORDS = {"pc": "a pulverised-coal boiler with a wet scrubber", "cfb": "a fluidised bed"}
+
+
+def plausibility_warning(f: Field, value: Any, *, sheet: str | None, row: int | None,
+                         column: str | None, boiler: str | None = None) -> InputWarning | None:
+    """The warning for a parsed value outside its field's usual range, or ``None``.
+
+    The one check every table of `Field` goes through (the scenario's sheets here, the
+    operations record's sheets too): the range is the field's row of
+    `reagentplan.schema.PLAUSIBLE` (by name, or by its ``range_key``); ``boiler`` picks
+    the boiler's usual range where it has one (``None``: the table's default).  A
+    percentage of at most 1 where the usual range starts above 1 looks like a
+    fraction, and the warning asks whether 100 times it was meant.
+    """
+    rng = f.plausible
+    if rng is None or value is None or isinstance(value, bool):
+        return None
+    x = float(value)
+    lo, hi = rng.usual_for(boiler)
+    if lo <= x <= hi:
+        return None
+    unit = f" {f.unit}" if f.unit else ""
+    what = rng.what or f.name
+    if rng.by_boiler and boiler:
+        what += f" for {BOILER_WORDS.get(boiler, boiler)}"
+    found = f"{x:g}{unit}"
+    usual = f"{lo:g} to {hi:g}{unit} ({what})"
+    hint = ""
+    if f.unit == "%" and 0 < x <= 1 and lo > 1:
+        hint = (f"did you mean {x * 100:g} %? (percentages are written as percent: {x * 100:g}, "
+                f"not {x:g})")
+    return InputWarning(sheet, row, column, found, usual, rng.source, hint)
 
 
 def _empty(value: Any) -> bool:
@@ -390,6 +436,13 @@ class _Collector:
 
     def __init__(self) -> None:
         self.problems: list[Problem] = []
+        self.warnings: list[InputWarning] = []
+
+    def check_usual(self, f: Field, value: Any, sheet: str | None, row: int | None,
+                    column: str | None, boiler: str | None = None) -> None:
+        w = plausibility_warning(f, value, sheet=sheet, row=row, column=column, boiler=boiler)
+        if w is not None:
+            self.warnings.append(w)
 
     def add(self, sheet: str | None, row: int | None, column: str | None, found: str,
             expected: str) -> None:
@@ -444,8 +497,10 @@ def _resolve_columns(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, 
     return found
 
 
-def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector) -> list[dict[str, Any]]:
-    """Parse a table sheet into records (with ``_row``, the Excel row)."""
+def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector,
+                boiler: str | None = None) -> list[dict[str, Any]]:
+    """Parse a table sheet into records (with ``_row``, the Excel row): every cell
+    checked against its field (hard range: a problem) and its usual range (a warning)."""
     cols = _resolve_columns(raw, sheet, out)
     records: list[dict[str, Any]] = []
     seen: dict[tuple, int] = {}
@@ -472,6 +527,7 @@ def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector) -> list[dict[str, 
                     rec[f.name] = _parse_cell(f, x)
                 else:
                     rec[f.name] = _parse_cell(f, value)
+                out.check_usual(f, rec[f.name], sheet.name, excel_row, header, boiler)
             except _CellError as e:
                 found = e.found
                 expected = e.expected or f.expected()
@@ -490,6 +546,10 @@ def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector) -> list[dict[str, 
                 continue
             seen[key] = excel_row
         records.append(rec)
+    if sheet.sort_by:
+        # order-free: rows pasted unit by unit or source by source are sorted (stable, so
+        # rows of one key keep the order they were written in)
+        records.sort(key=lambda r: tuple(r[k] for k in sheet.sort_by))
     return records
 
 
@@ -499,7 +559,10 @@ def _show(v: Any) -> str:
     return "(empty)" if v is None else str(v)
 
 
-def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, Any]:
+def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector,
+                   boiler: str | None = None) -> dict[str, Any]:
+    """Parse a key/value sheet.  Usual ranges are checked once every key is read, with
+    the sheet's own ``boiler`` if it has one (``plant``), else the one given."""
     header = raw.header
     if "key" not in header or "value" not in header:
         out.add(sheet.name, 1, "key" if "key" not in header else "value", "the column is missing",
@@ -516,6 +579,7 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, An
     rows: dict[str, int] = {}
     bad: set[str] = set()
     written: dict[str, str] = {}
+    parsed: list[tuple[Field, int, str]] = []
     for excel_row, row in raw.rows:
         key = _normalise_key(row[jk] if jk < len(row) else None)
         value = row[jv] if jv < len(row) else None
@@ -544,6 +608,7 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, An
             continue
         try:
             values[canonical] = _parse_cell(f, _parse_number(value) * factor if factor != 1.0 else value)
+            parsed.append((f, excel_row, key))
         except _CellError as e:
             bad.add(canonical)
             out.add(sheet.name, excel_row, f"value ({key})", e.found, e.expected or f.expected())
@@ -555,6 +620,9 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector) -> dict[str, An
                         "no value" if where else f"the key '{f.name}' is missing",
                         f.expected() + f": {f.note}")
             values.setdefault(f.name, f.default)
+    boiler = values.get("boiler") or boiler
+    for f, excel_row, key in parsed:
+        out.check_usual(f, values[f.name], sheet.name, excel_row, f"value ({key})", boiler)
     return values
 
 
@@ -605,13 +673,15 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
             out.add(s.name, None, None, "the sheet is missing", f"a sheet '{s.name}' ({s.note or 'see the template'})")
     out.fail()
 
+    plant_kv = _read_keyvalue(by_name["plant"], schema.PLANT, out)
+    boiler = plant_kv.get("boiler") or schema.PLANT.field("boiler").default
+
     def table(sheet: Sheet) -> list[dict[str, Any]]:
         if sheet.name not in by_name:
             return []
-        return _read_table(by_name[sheet.name], sheet, out)
+        return _read_table(by_name[sheet.name], sheet, out, boiler)
 
-    plant_kv = _read_keyvalue(by_name["plant"], schema.PLANT, out)
-    scrub_kv = _read_keyvalue(by_name["scrubber"], schema.SCRUBBER, out)
+    scrub_kv = _read_keyvalue(by_name["scrubber"], schema.SCRUBBER, out, boiler)
     recs = {s.name: table(s) for s in schema.SHEETS if not s.keyvalue}
     has_gen_history = "generation_history" in by_name
     has_quality_history = "coal_quality_history" in by_name
@@ -661,13 +731,14 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     quality = None
     if has_quality_history:
         quality = _check_dated(recs["coal_quality_history"], "coal_quality_history", "source",
-                               source_names, plant, out, inside_horizon=False, check_order=True)
+                               source_names, plant, out, inside_horizon=False)
     firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
     out.fail()
     return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
-                    disposal, firm, history, quality, source_name, closures, periods)
+                    disposal, firm, history, quality, source_name, closures, periods,
+                    tuple(out.warnings))
 
 
 def _make(cls, record: dict[str, Any]):
@@ -721,10 +792,10 @@ def _check_quality_limits(records: list[dict[str, Any]], out: _Collector) -> Non
 
 
 def _check_dated(records: list[dict[str, Any]], sheet: str, ref_col: str, known: dict,
-                 plant: Plant, out: _Collector, inside_horizon: bool,
-                 check_order: bool = True) -> pd.DataFrame:
+                 plant: Plant, out: _Collector, inside_horizon: bool) -> pd.DataFrame:
+    """Check a dated table's references and dates.  Its rows come sorted by the sheet's
+    ``sort_by`` (`_read_table`), so the order they were typed or pasted in is free."""
     ref_sheet = "units" if ref_col == "unit" else "coal_sources"
-    previous: dt.date | None = None
     for r in records:
         d = r["date"]
         if r[ref_col] not in known:
@@ -738,11 +809,6 @@ def _check_dated(records: list[dict[str, Any]], sheet: str, ref_col: str, known:
         if not inside_horizon and d >= plant.start_date:
             out.add(sheet, r["_row"], "date", f"the date {d:%Y-%m-%d} is not in the past",
                     f"history before the start date {plant.start_date:%Y-%m-%d}")
-        if check_order and previous is not None and d < previous:
-            out.add(sheet, r["_row"], "date",
-                    f"the date {d:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
-                    "rows in date order")
-        previous = d
     cols = [f.name for f in schema.SHEETS_BY_NAME[sheet].fields]
     frame = pd.DataFrame([{c: r[c] for c in cols} for r in records], columns=cols)
     frame["date"] = pd.to_datetime(frame["date"])
@@ -809,7 +875,6 @@ def _check_history_covers_forecast(generation: pd.DataFrame, history: pd.DataFra
 
 def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
                  out: _Collector) -> pd.DataFrame:
-    previous = None
     totals: dict[dt.date, list] = {}
     for r in records:
         if r["source"] not in sources:
@@ -820,11 +885,6 @@ def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
             out.add("coal_blend", r["_row"], "date",
                     f"the date {r['date']:%Y-%m-%d} is after the horizon's last day "
                     f"{plant.end_date:%Y-%m-%d}", "a date inside the horizon")
-        if previous is not None and r["date"] < previous:
-            out.add("coal_blend", r["_row"], "date",
-                    f"the date {r['date']:%Y-%m-%d} comes after {previous:%Y-%m-%d} (rows out of order)",
-                    "rows in date order")
-        previous = r["date"]
         totals.setdefault(r["date"], []).append(r)
     if not records:
         out.add("coal_blend", None, None, "the sheet has no rows",
@@ -928,7 +988,11 @@ def _check_periods(records, plant: Plant, out: _Collector) -> pd.DataFrame | Non
         f = (schema.SCRUBBER.field(r["key"]) if r["key"] in {x.name for x in schema.SCRUBBER.fields}
              else schema.PLANT.field(r["key"]))
         try:
-            _parse_cell(f, r["value"])
+            x = _parse_cell(f, r["value"])
+            w = plausibility_warning(f, x, sheet="period_settings", row=r["_row"], column="value",
+                                     boiler=plant.boiler)
+            if w is not None:
+                out.warnings.append(dataclasses.replace(w, found=f"{w.found} for {r['key']}"))
         except _CellError as e:
             out.add("period_settings", r["_row"], "value", f"{e.found} for {r['key']}", f.expected())
         if r["last_date"] < r["first_date"]:

@@ -23,6 +23,115 @@ NOTE_SHEETS = ("notes", "readme")
 
 
 @dataclass(frozen=True)
+class Range:
+    """What the trade considers possible and usual for one quantity.
+
+    Attributes
+    ----------
+    hard : (lo, hi)
+        Outside it the value is impossible and refused (``None`` = no bound).
+    usual : (lo, hi)
+        Outside it the value is possible but unusual: the run goes on, with a warning.
+    source : str
+        Where the range comes from (a standard, a handbook, or "common practice").
+    by_boiler : ((boiler, (lo, hi)), ...)
+        The usual range for a boiler type (``pc``, ``cfb``) where it differs from
+        ``usual``; checked once the plant's boiler is known.
+    what : str
+        The quantity in words, for the warning ("SO2 removal of a wet scrubber").
+    """
+
+    hard: tuple[float | None, float | None]
+    usual: tuple[float, float]
+    source: str
+    by_boiler: tuple[tuple[str, tuple[float, float]], ...] = ()
+    what: str = ""
+
+    def usual_for(self, boiler: str | None = None) -> tuple[float, float]:
+        for name, rng in self.by_boiler:
+            if name == boiler:
+                return rng
+        return self.usual
+
+
+_CP = "common practice, no source"
+
+#: The plausibility table: one row per quantity, keyed by the canonical (metric) column
+#: or key name; every sheet's column of that name, the record's included, gets the same
+#: check.  Percentages are 0-100 hard.  Sources name the standard or handbook; values
+#: recalled without the document at hand say "from memory".
+PLAUSIBLE: dict[str, Range] = {
+    # plant
+    "fly_ash_share_pct": Range((0, 100), (65, 90), "AP-42 1.1: about 80 % of the ash of a dry-bottom "
+                               "pulverised-coal boiler leaves as fly ash (from memory); a fluidised "
+                               "bed splits nearer 50/50, common practice", by_boiler=(("cfb", (30, 80)),),
+                               what="share of ash leaving as fly ash"),
+    "so2_conversion_pct": Range((0, 100), (75, 100), "AP-42 1.1 Table 1.1-3: uncontrolled SOx of 38·S "
+                                "(bituminous), 35·S (subbituminous), 30·S (lignite) lb/ton, i.e. 95, 88 "
+                                "and 75 % of 40·S", what="fuel sulfur leaving as SO2"),
+    "fly_ash_loi_pct": Range((0, 99), (0, 12), "ASTM C618 limits LOI of fly ash for concrete to 6 %; "
+                             "pulverised-coal ash runs 1-10 % (common practice)", what="LOI of the fly ash"),
+    "so2_limit_kg_per_gj": Range((0, 50), (0.02, 1.3), "40 CFR 60 Subpart Da 1.2 lb/MMBtu = 0.52 kg/GJ, "
+                                 "MATS 0.2 lb/MMBtu = 0.086 kg/GJ (from memory)", what="permit SO2 limit"),
+    # scrubber (for cfb: the bed)
+    "removal_pct": Range((0, 100), (90, 99.5), "wet limestone forced-oxidation scrubbers remove 95-99 % "
+                         "(common practice, no source); a fluidised bed captures 70-98 % in the bed "
+                         "(common practice)", by_boiler=(("cfb", (70, 98)),), what="SO2 removal"),
+    "ca_s_ratio": Range((1, 5), (1.0, 1.1), "wet limestone scrubber 1.02-1.05, fluidised bed 2-3 mol/mol "
+                        "(common practice, no source)", by_boiler=(("cfb", (1.5, 3.5)),),
+                        what="Ca/S ratio"),
+    "limestone_caco3_pct": Range((50, 100), (85, 99), "scrubber-grade limestone is 90-98 % CaCO3 "
+                                 "(common practice, no source)", what="CaCO3 of the limestone"),
+    "oxidation_pct": Range((0, 100), (90, 100), "forced oxidation converts over 99 % of the sulfite "
+                           "(common practice, no source)", what="sulfite oxidised"),
+    "gypsum_moisture_pct": Range((0, 60), (5, 15), "vacuum-belt or centrifuge cake holds 8-12 % free "
+                                 "moisture (common practice, no source)", what="free moisture of the cake"),
+    "esp_efficiency_pct": Range((0, 100), (98, 100), "precipitators and fabric filters capture over 99 % "
+                                "of fly ash (common practice, no source)", what="fly ash captured"),
+    "injection_removal_pct": Range((0, 100), (0, 80), "dry sorbent injection removes up to 50-70 % "
+                                   "(common practice, no source)", what="SO2 removed upstream"),
+    "injection_ca_s_ratio": Range((1, 10), (1.5, 4.0), "furnace and duct sorbent injection runs at "
+                                  "Ca/S 2-3 (common practice, no source)", what="Ca/S of the injection"),
+    "prescrubber_hcl_removal_pct": Range((0, 100), (0, 100), _CP, what="HCl removed before the scrubber"),
+    "gypsum_chloride_ppm": Range((0, 1e6), (0, 1000), "washed wallboard gypsum is held near 100 ppm "
+                                 "chloride (common practice, no source)", what="chloride of the cake"),
+    # units
+    "capacity_mw": Range((1, 5000), (10, 1500), "coal units run from about 25 to 1,300 MW "
+                         "(common practice, from memory)", what="unit capacity"),
+    "heat_rate_gj_per_mwh": Range((5, 20), (8.5, 13.0), "coal units' net heat rates are about "
+                                  "8,000-12,500 Btu/kWh, 8.5-13 GJ/MWh (common practice, from memory)",
+                                  what="net heat rate"),
+    "gas_heat_share_pct": Range((0, 100), (0, 40), "gas reburn and co-firing supply up to 20-30 % of "
+                                "the heat (common practice, no source)", what="heat from natural gas"),
+    # coal
+    "sulfur_pct": Range((0, 100), (0.2, 6), "steam coals carry 0.2-6 % sulfur as received "
+                        "(common practice, from memory)", what="coal sulfur"),
+    "ash_pct": Range((0, 100), (3, 40), "steam coals carry 3-40 % ash as received "
+                     "(common practice, from memory)", what="coal ash"),
+    "moisture_pct": Range((0, 100), (1, 45), "ASTM D388 ranks: bituminous a few %, subbituminous "
+                          "15-30 %, lignite 25-45 % (from memory)", what="coal moisture"),
+    "hhv_mj_per_kg": Range((5, 40), (8, 33), "ASTM D388 coal ranks: lignite from about 14.7 MJ/kg to "
+                           "anthracite near 33 MJ/kg; ash and moisture as received bring it lower "
+                           "(from memory)", what="heating value as received"),
+    "chlorine_pct": Range((0, 5), (0, 0.5), "steam coals carry 0.01-0.3 % chlorine (common practice, "
+                          "from memory)", what="coal chlorine"),
+    "sulfur_sd_pct": Range((0, 10), (0, 1), _CP, what="spread of sulfur between deliveries"),
+    "share_pct": Range((0, 100), (0, 100), _CP, what="blend share"),
+    # buyers' limits
+    "min_purity_pct": Range((0, 100), (85, 98), "wallboard plants ask for 90-95 % CaSO4·2H2O "
+                            "(common practice, no source)", what="minimum gypsum purity"),
+    "max_moisture_pct": Range((0, 100), (5, 15), "wallboard plants take cake of at most about 10 % "
+                              "moisture (common practice, no source)", what="maximum gypsum moisture"),
+    "max_chloride_ppm": Range((0, None), (20, 1000), "wallboard plants take at most about 100 ppm "
+                              "chloride (common practice, no source)", what="maximum gypsum chloride"),
+    "max_loi_pct": Range((0, 100), (2, 12), "ASTM C618: LOI at most 6 % for fly ash in concrete",
+                         what="maximum LOI of fly ash"),
+    "max_so3_pct": Range((0, 100), (2, 6), "ASTM C618: SO3 at most 5 % for fly ash in concrete",
+                         what="maximum SO3 of fly ash"),
+}
+
+
+@dataclass(frozen=True)
 class Field:
     """One column of a table sheet, or one key of a key/value sheet.
 
@@ -46,6 +155,9 @@ class Field:
         One-line meaning shown in the template.
     example : Any
         Value of the template's example row.
+    range_key : str
+        Name of this field's row in `PLAUSIBLE` when it differs from ``name`` (a
+        supplier's ``caco3_pct`` is checked as ``limestone_caco3_pct``); ``"-"`` for none.
     """
 
     name: str
@@ -58,6 +170,19 @@ class Field:
     unit: str = ""
     note: str = ""
     example: Any = None
+    range_key: str = ""
+
+    @property
+    def plausible(self) -> Range | None:
+        """The field's row of the plausibility table, if it has one."""
+        if self.kind not in ("number", "integer") or self.range_key == "-":
+            return None
+        return PLAUSIBLE.get(self.range_key or self.name)
+
+    def bounds(self) -> tuple[float | None, float | None]:
+        """The hard range: the plausibility table's where it has the field, else lo/hi."""
+        rng = self.plausible
+        return rng.hard if rng is not None else (self.lo, self.hi)
 
     def expected(self) -> str:
         """Plain-words description of an acceptable value, for error messages."""
@@ -72,12 +197,13 @@ class Field:
         if self.kind == "months":
             return "months like Mar-Nov or Jan,Feb (empty = every month)"
         what = "a whole number" if self.kind == "integer" else "a number"
-        if self.lo is not None and self.hi is not None:
-            return f"{what} from {_fmt(self.lo)} to {_fmt(self.hi)}"
-        if self.lo is not None:
-            return f"{what} of at least {_fmt(self.lo)}"
-        if self.hi is not None:
-            return f"{what} of at most {_fmt(self.hi)}"
+        lo, hi = self.bounds()
+        if lo is not None and hi is not None:
+            return f"{what} from {_fmt(lo)} to {_fmt(hi)}"
+        if lo is not None:
+            return f"{what} of at least {_fmt(lo)}"
+        if hi is not None:
+            return f"{what} of at most {_fmt(hi)}"
         return what
 
 
@@ -95,6 +221,9 @@ class Sheet:
     required: bool = True
     key: tuple[str, ...] = ()  # columns that identify a row (duplicates are errors)
     note: str = ""
+    #: Columns the rows are sorted by once read: the order rows are written in carries
+    #: no meaning (history pasted unit by unit is as good as history in date order).
+    sort_by: tuple[str, ...] = ()
 
     def field(self, name: str) -> Field:
         for f in self.fields:
@@ -183,6 +312,7 @@ UNITS = Sheet(
 GENERATION = Sheet(
     "generation",
     key=("date", "unit"),
+    sort_by=("date", "unit"),
     fields=(
         Field("date", "date", note="day", example="2027-01-01"),
         Field("unit", "text", note="unit name from the units sheet", example="Unit 1"),
@@ -210,6 +340,7 @@ COAL_SOURCES = Sheet(
 COAL_BLEND = Sheet(
     "coal_blend",
     key=("date", "source"),
+    sort_by=("date", "source"),
     fields=(
         Field("date", "date", note="blend holds from this date to the next", example="2027-01-01"),
         Field("source", "text", note="source name from coal_sources", example="Seam A"),
@@ -255,7 +386,8 @@ SUPPLIERS = Sheet(
         Field("max_t_per_month", "number", False, None, 0, None, unit="t/month",
               note="contract maximum per month; empty = none", example=40000),
         Field("caco3_pct", "number", False, None, 50, 100, unit="%",
-              note="CaCO3 of this limestone; empty = the scrubber sheet's value", example=94),
+              note="CaCO3 of this limestone; empty = the scrubber sheet's value", example=94,
+              range_key="limestone_caco3_pct"),
         Field("months", "months", False, None,
               note="months this row's terms apply (e.g. a seasonal freight rate); empty = all",
               example=""),
@@ -326,6 +458,7 @@ GENERATION_HISTORY = Sheet(
     "generation_history",
     required=False,
     key=("date", "unit"),
+    sort_by=("date", "unit"),
     fields=GENERATION.fields,
     note="past days of generation; the forecast is made from them",
 )
@@ -334,6 +467,7 @@ COAL_QUALITY_HISTORY = Sheet(
     "coal_quality_history",
     required=False,
     key=(),
+    sort_by=("date", "source"),
     fields=(
         Field("date", "date", note="sample date", example="2026-06-01"),
         Field("source", "text", note="source name from coal_sources", example="Seam A"),

@@ -140,3 +140,16 @@ def describe_demo(run, out, files: list[str]) -> str:
     lines.append("")
     lines.append(f"Files in {out}: {', '.join(files)}")
     return "\n".join(lines)
+
+
+def describe_warnings(warnings) -> str:
+    """The unusual values of a scenario (`Scenario.warnings`), one per line; empty
+    text for none."""
+    if not warnings:
+        return ""
+    n = len(warnings)
+    lines = [f"Warning: {n} value{'s are' if n != 1 else ' is'} possible but unusual; the run goes "
+             "on with {0} as written. Check {1}:".format("them" if n != 1 else "it",
+                                                         "them" if n != 1 else "it")]
+    lines += [f"  - {w}" for w in warnings]
+    return "\n".join(lines)

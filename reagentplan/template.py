@@ -33,6 +33,9 @@ def _describe(f: schema.Field) -> str:
         parts.append("Codes: " + ", ".join(f.choices) + ".")
     if f.name in VARIANTS:
         parts.append(f"US customary alternative: {VARIANTS[f.name].us}.")
+    if f.plausible is not None and f.plausible.usual != f.plausible.hard:
+        lo, hi = f.plausible.usual
+        parts.append(f"Usual {lo:g} to {hi:g}; outside it the run warns.")
     parts.append("Required." if f.required else
                  f"Optional; default {f.default:g}." if isinstance(f.default, (int, float))
                  and not isinstance(f.default, bool) else "Optional.")
@@ -122,9 +125,10 @@ def _table_sheet(ws, s: schema.Sheet) -> None:
                                 error="A date (or YYYY-MM-DD text) is expected.")
             ws.add_data_validation(dv)
             dv.add(rng)
-        elif f.kind in ("number", "integer") and f.lo is not None:
+        elif f.kind in ("number", "integer") and f.bounds()[0] is not None:
             dv = DataValidation(type="decimal" if f.kind == "number" else "whole",
-                                operator="greaterThanOrEqual", formula1=str(f.lo), allow_blank=True,
+                                operator="greaterThanOrEqual", formula1=str(f.bounds()[0]),
+                                allow_blank=True,
                                 showErrorMessage=True, error=f"Expected {f.expected()}.")
             ws.add_data_validation(dv)
             dv.add(rng)

@@ -9,10 +9,8 @@ in a thread on 127.0.0.1; nothing else is contacted.
 from __future__ import annotations
 
 import datetime as dt
-import logging
 import os
 import shutil
-import threading
 import time
 from pathlib import Path
 
@@ -40,21 +38,18 @@ TIMEOUT = 60
 
 @pytest.fixture(scope="module")
 def server(tmp_path_factory):
-    from werkzeug.serving import make_server
-
     from dashboard.app import create_app
+    from dashboard.testing import serve_in_thread
     from demo.build_demo import build_demo_workbook
 
     folder = tmp_path_factory.mktemp("dash")
     workbook = build_demo_workbook(folder / "demo60.xlsx", horizon_days=60)
     app = create_app(workbook, futures=100, time_limit=30, work_dir=folder / "work")
-    logging.getLogger("werkzeug").setLevel(logging.ERROR)
-    srv = make_server("127.0.0.1", 0, app.server, threaded=True)
-    thread = threading.Thread(target=srv.serve_forever, daemon=True)
-    thread.start()
-    yield f"http://127.0.0.1:{srv.server_port}/", folder
-    srv.shutdown()
-    thread.join(10)
+    # the production server, with the origin check: every callback below (upload,
+    # re-plan, download) is a POST from Chromium that must pass it
+    url, stop = serve_in_thread(app)
+    yield url, folder
+    stop()
 
 
 @pytest.fixture(scope="module")

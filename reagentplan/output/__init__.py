@@ -3,7 +3,7 @@ return data; only this package writes it."""
 
 from .files import save_workbook, staged_output, write_csv, write_json
 from .plan_workbook import write_plan_workbook
-from .run import run_summary, write_plan_files, write_run
+from .run import input_warnings, plan_summary, run_summary, write_plan_files, write_run
 
 __all__ = ["save_workbook", "staged_output", "write_csv", "write_json", "run_summary",
-           "write_plan_files", "write_plan_workbook", "write_run"]
+           "plan_summary", "input_warnings", "write_plan_files", "write_plan_workbook", "write_run"]

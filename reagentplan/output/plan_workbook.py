@@ -337,6 +337,16 @@ def _assumptions(ws, run) -> None:
     ws.cell(r, 2, CAUTION).alignment = Alignment(wrap_text=True)
     ws.row_dimensions[r].height = 45
     r += 2
+    warnings = getattr(scn, "warnings", ())
+    ws.cell(r, 1, "Warnings: unusual inputs").font = Font(bold=True, color="9C2A00")
+    if not warnings:
+        ws.cell(r, 2, "none: every value is inside its usual range").font = NOTE_FONT
+        r += 1
+    for w in warnings:
+        ws.cell(r, 2, str(w)).alignment = Alignment(wrap_text=True)
+        ws.row_dimensions[r].height = 45
+        r += 1
+    r += 1
     ws.cell(r, 1, "Sources of the constants").font = Font(bold=True)
     for what, src in SOURCES:
         r += 1

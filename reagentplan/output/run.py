@@ -9,6 +9,31 @@ from .files import write_csv, write_json
 from .plan_workbook import write_plan_workbook
 
 
+def input_warnings(scenario) -> list[dict]:
+    """The scenario's unusual values (`Scenario.warnings`) as ``summary.json`` records
+    (``kind`` = ``input``)."""
+    return [{"kind": "input", **w.as_dict()} for w in getattr(scenario, "warnings", ())]
+
+
+def run_warnings(run) -> list[dict]:
+    """Every warning of a planned run for ``summary.json``: the inputs' unusual values,
+    then the run's own plain-words warnings (``PlanRun.warnings`` where it has them, e.g.
+    a coal sheet value far from its lab results: ``kind`` = ``forecast``)."""
+    out = input_warnings(run.plan.scenario)
+    for text in getattr(run, "warnings", None) or ():
+        out.append({"kind": "forecast", "sheet": None, "row": None, "column": None,
+                    "message": str(text)})
+    return out
+
+
+def plan_summary(result) -> dict:
+    """A `PlanResult`'s summary with the scenario's ``warnings`` (a list, empty when
+    every value is usual)."""
+    summary = result.summary()
+    summary["warnings"] = input_warnings(result.scenario)
+    return summary
+
+
 def write_plan_files(result, folder: Path) -> list[Path]:
     """Write balance.csv, movements.csv, inventory.csv and summary.json of a
     `reagentplan.schedule.PlanResult` into ``folder``."""
@@ -16,14 +41,15 @@ def write_plan_files(result, folder: Path) -> list[Path]:
     return [write_csv(result.balance, folder / "balance.csv"),
             write_csv(result.movements, folder / "movements.csv"),
             write_csv(result.inventory, folder / "inventory.csv", float_format="%.3f"),
-            write_json(result.summary(), folder / "summary.json")]
+            write_json(plan_summary(result), folder / "summary.json")]
 
 
 def run_summary(run) -> dict:
-    """``summary.json`` of a planned run: the plan's summary, with the top risks and the
-    number of futures when the run was replayed against futures."""
-    summary = run.plan.summary()
-    summary["warnings"] = run.warnings
+    """``summary.json`` of a planned run: the plan's summary with the input ``warnings``,
+    and the top risks and the number of futures when the run was replayed against
+    futures."""
+    summary = plan_summary(run.plan)
+    summary["warnings"] = run_warnings(run)
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
         summary["futures"] = run.risk.n_futures
