@@ -118,6 +118,20 @@ def _cmd_demo(args) -> int:
     return EXIT_OK
 
 
+def _cmd_db_upgrade(args) -> int:
+    from .record.db import connect, upgrade
+
+    engine = connect(args.db)
+    before, after = upgrade(engine)
+    if before == after:
+        print(f"The database is already at the newest schema (revision {after}).")
+    else:
+        print(f"Upgraded the database from {'an empty one' if before is None else 'revision ' + before} "
+              f"to revision {after}.")
+    engine.dispose()
+    return EXIT_OK
+
+
 def _cmd_dashboard(args) -> int:
     import os
 
@@ -142,6 +156,12 @@ def _cmd_dashboard(args) -> int:
     print(f"Caution: {CAUTION}")
     serve(app, args.host, args.port)
     return EXIT_OK
+
+
+def _db_option(p, required: bool = False) -> None:
+    p.add_argument("--db", default=None, metavar="URL",
+                   help="the record: sqlite:///station.db or postgresql+psycopg://user@host/db "
+                        "(default: the environment variable REAGENTPLAN_DB)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -200,6 +220,12 @@ def build_parser() -> argparse.ArgumentParser:
                    help="accepted chance [%%] of dropping below safety or above capacity on a day "
                         "(default %(default)s)")
     p.set_defaults(func=_cmd_plan)
+
+    p = sub.add_parser("db", help="the operations record's database")
+    dbsub = p.add_subparsers(dest="db_command", required=True, metavar="ACTION")
+    q = dbsub.add_parser("upgrade", help="create the record's tables or bring them to the newest schema")
+    _db_option(q)
+    q.set_defaults(func=_cmd_db_upgrade)
 
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,
