@@ -132,6 +132,24 @@ def _cmd_db_upgrade(args) -> int:
     return EXIT_OK
 
 
+def _cmd_record(args) -> int:
+    from .record.db import connect
+    from .record.importer import describe_import, record_files
+    from .scenario import load_scenario
+
+    scenario = load_scenario(args.scenario) if args.scenario else None
+    engine = connect(args.db)
+    try:
+        result = record_files(engine, args.files, scenario=scenario, replace=args.replace,
+                              today=args.as_of)
+    finally:
+        engine.dispose()
+    print(describe_import(result))
+    if scenario is None:
+        print("(No --scenario given: names, lanes and load sizes were not checked against a workbook.)")
+    return EXIT_OK
+
+
 def _cmd_dashboard(args) -> int:
     import os
 
@@ -156,6 +174,15 @@ def _cmd_dashboard(args) -> int:
     print(f"Caution: {CAUTION}")
     serve(app, args.host, args.port)
     return EXIT_OK
+
+
+def _date(text: str):
+    import datetime as dt
+
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a date; expected YYYY-MM-DD") from None
 
 
 def _db_option(p, required: bool = False) -> None:
@@ -226,6 +253,21 @@ def build_parser() -> argparse.ArgumentParser:
     q = dbsub.add_parser("upgrade", help="create the record's tables or bring them to the newest schema")
     _db_option(q)
     q.set_defaults(func=_cmd_db_upgrade)
+
+    p = sub.add_parser("record", help="record stock surveys, arrivals, shipments, orders, "
+                                      "generation and lab results in the database")
+    p.add_argument("files", nargs="+", metavar="FILE",
+                   help=".xlsx with record sheets, or .csv named after one (arrivals.csv); several "
+                        "files are recorded together, all or none")
+    _db_option(p)
+    p.add_argument("--scenario", metavar="WORKBOOK", default=None,
+                   help="the station's scenario workbook: names, lanes and load sizes are checked "
+                        "against it")
+    p.add_argument("--replace", action="store_true",
+                   help="accept new values for facts already recorded (the old ones go to the audit trail)")
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="refuse facts after this day (default: today)")
+    p.set_defaults(func=_cmd_record)
 
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,
