@@ -5,6 +5,7 @@ print; bad input exits with code 2 and a message naming sheet, row and column.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -54,12 +55,27 @@ def _cmd_plan(args) -> int:
     from .scenario import load_scenario
     from .summary import describe_plan, describe_risk
 
-    scenario = load_scenario(args.workbook)
-    run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
+    options = dict(futures=args.futures, seed=args.seed, solver=args.solver,
                    time_limit=args.time_limit, firm_days=args.firm_days,
                    risk_level=args.risk_level / 100, progress=True)
-    with staged_output(args.out) as tmp:
-        written = write_run(run, tmp)
+    if args.db or args.as_of or os.environ.get("REAGENTPLAN_DB"):
+        from .pipeline import run_plan_from_record
+        from .record.db import connect
+        from .summary import describe_asof
+
+        engine = connect(args.db)
+        try:
+            with staged_output(args.out) as tmp:
+                run = run_plan_from_record(args.workbook, engine, args.as_of, **options)
+                written = write_run(run, tmp)
+        finally:
+            engine.dispose()
+        print(describe_asof(run.summary_extra))
+    else:
+        scenario = load_scenario(args.workbook)
+        run = run_plan(scenario, **options)
+        with staged_output(args.out) as tmp:
+            written = write_run(run, tmp)
     print(describe_plan(run.plan))
     print(describe_risk(run))
     print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
@@ -147,6 +163,67 @@ def _cmd_record(args) -> int:
     print(describe_import(result))
     if scenario is None:
         print("(No --scenario given: names, lanes and load sizes were not checked against a workbook.)")
+    return EXIT_OK
+
+
+def _cmd_diff(args) -> int:
+    from .output import staged_output
+    from .output.record import write_diff
+    from .record.db import RecordError, connect
+    from .record.versions import act_first, describe_diff, diff_plans, load_plan, plan_ids
+    from .errors import Problem
+
+    engine = connect(args.db)
+    try:
+        ids = plan_ids(engine)
+        if len(ids) < 2 and (args.from_id is None or args.to_id is None):
+            raise RecordError(Problem(None, None, None, f"the record holds {len(ids)} plan version(s)",
+                                      "two plans to compare: run `reagentplan plan WORKBOOK --db URL "
+                                      "--as-of DATE` once more"), "The command")
+        to_id = args.to_id if args.to_id is not None else ids[-1]
+        from_id = args.from_id if args.from_id is not None else max(i for i in ids if i < to_id)
+        before, after = load_plan(engine, from_id), load_plan(engine, to_id)
+    finally:
+        engine.dispose()
+    diff = diff_plans(before, after)
+    first = act_first(diff, after.as_of)
+    with staged_output(args.out) as tmp:
+        written = write_diff(diff, tmp)
+    print(describe_diff(before, after, diff, first))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
+    return EXIT_OK
+
+
+def _cmd_review(args) -> int:
+    from .output import staged_output
+    from .output.record import write_review
+    from .record.asof import load_record
+    from .record.db import connect
+    from .record.review import describe_review, review
+    from .record.versions import load_plan, load_workbook_bytes, plan_ids
+    from .scenario import load_scenario
+
+    engine = connect(args.db)
+    try:
+        if args.scenario:
+            scenario = load_scenario(args.scenario)
+        else:
+            ids = plan_ids(engine)
+            if not ids:
+                from .errors import Problem
+                from .record.db import RecordError
+
+                raise RecordError(Problem(None, None, "--scenario", "no plan version in the record",
+                                          "--scenario WORKBOOK, or a plan made with --db first"), "The command")
+            latest = load_plan(engine, ids[-1])
+            scenario = load_scenario(load_workbook_bytes(engine, latest.workbook_sha256))
+        result = review(engine, scenario, load_record(engine), until=args.until)
+    finally:
+        engine.dispose()
+    with staged_output(args.out) as tmp:
+        written = write_review(result, tmp)
+    print(describe_review(result))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     return EXIT_OK
 
 
@@ -246,6 +323,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--risk-level", type=float, default=5.0,
                    help="accepted chance [%%] of dropping below safety or above capacity on a day "
                         "(default %(default)s)")
+    _db_option(p)
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="with --db: plan from the record's state at the end of DATE (opening stock, "
+                        "month-to-date contract tonnes, booked orders, history); the plan starts the "
+                        "next day and is stored as a new version (default: the day before the "
+                        "workbook's start_date)")
     p.set_defaults(func=_cmd_plan)
 
     p = sub.add_parser("db", help="the operations record's database")
@@ -268,6 +351,25 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
                    help="refuse facts after this day (default: today)")
     p.set_defaults(func=_cmd_record)
+
+    p = sub.add_parser("diff", help="what changed between two stored plans (orders_changed.csv)")
+    _db_option(p)
+    p.add_argument("--from", dest="from_id", type=int, default=None, metavar="ID",
+                   help="the earlier plan version (default: the one before --to)")
+    p.add_argument("--to", dest="to_id", type=int, default=None, metavar="ID",
+                   help="the later plan version (default: the newest)")
+    p.add_argument("--out", required=True, help="output folder")
+    p.set_defaults(func=_cmd_diff)
+
+    p = sub.add_parser("review", help="plan against book against survey (plan_vs_actual.csv) and "
+                                      "the book-to-survey drift per store")
+    _db_option(p)
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--scenario", metavar="WORKBOOK", default=None,
+                   help="the workbook for the balance of past days (default: the newest plan's)")
+    p.add_argument("--until", type=_date, default=None, metavar="DATE",
+                   help="last day reviewed (default: the last recorded fact)")
+    p.set_defaults(func=_cmd_review)
 
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,

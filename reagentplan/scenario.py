@@ -205,6 +205,11 @@ class Scenario:
     source_name: str = ""
     lane_closures: tuple[LaneClosure, ...] = ()
     period_settings: pd.DataFrame | None = None  # first_date, last_date, key, value
+    #: Tonnes already moved in the first planned month before its first planned day, by
+    #: lane name (``SupplierLane.lane`` / ``BuyerLane.lane``) [t], from the operations
+    #: record; a lane not named moved none.  ``None`` = no record: the days before the
+    #: start are assumed to have used each contract at its even pace.
+    month_to_date: dict[str, float] | None = None
 
     @property
     def dates(self) -> pd.DatetimeIndex:
