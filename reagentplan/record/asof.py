@@ -58,11 +58,15 @@ def load_record(engine, until: dt.date | None = None) -> RecordFrames:
     with engine.connect() as conn:
         for name, table in FACT_TABLES.items():
             cols = [c for c in table.c if c.name not in ("id", "import_id")]
-            q = sa.select(*cols)
+            # dates as ISO text, parsed once by pandas; rows as plain tuples (both much
+            # faster than per-row conversion for years of daily rows)
+            q = sa.select(*[sa.type_coerce(c, sa.String).label("date") if c.name == "date" else c
+                            for c in cols])
             if until is not None and name != "orders":
                 q = q.where(table.c.date <= until)
-            frame = pd.DataFrame(conn.execute(q).all(), columns=[c.name for c in cols])
-            frame["date"] = pd.to_datetime(frame["date"])
+            rows = [tuple(r) for r in conn.execute(q)]
+            frame = pd.DataFrame.from_records(rows, columns=[c.name for c in cols])
+            frame["date"] = pd.to_datetime(frame["date"].astype(str).str[:10], format="%Y-%m-%d")
             frames[name] = frame
         last = conn.execute(sa.select(sa.func.max(Import.__table__.c.id))).scalar()
     return RecordFrames(frames["stock_surveys"], frames["arrivals"], frames["shipments"],
@@ -259,7 +263,10 @@ def asof_state(scenario: Scenario, record: RecordFrames, as_of: dt.date) -> AsOf
     surveys = _surveys_with_workbook(scenario, rec)
     opening: dict[str, OpeningStock] = {}
     before = surveys[surveys["date"] <= ts]
-    levels = book_levels(scenario, rec, as_of, first=as_of) if not before.empty else None
+    # only the latest survey of each store matters for the day's level
+    latest = rec.surveys.sort_values("date").drop_duplicates("store", keep="last")
+    levels = (book_levels(scenario, dataclasses.replace(rec, surveys=latest), as_of, first=as_of)
+              if not before.empty else None)
     for store, st in scenario.storage.items():
         row = None if levels is None else levels[(levels["store"] == store) & (levels["date"] == ts)]
         if row is None or row.empty or pd.isna(row["book_level_t"].iloc[0]):
