@@ -129,7 +129,26 @@ def _cmd_demo(args) -> int:
         run = run_plan(scenario, futures=args.futures, seed=0, time_limit=args.time_limit,
                        progress=True)
         written = write_run(run, tmp)
-    print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]))
+        reports = None
+        if args.weeks > 0:
+            from demo.record_demo import WEEKLY_HORIZON_DAYS, weekly_loop
+
+            weekly = tmp / "weekly"
+            weekly.mkdir()
+            wb = build_demo_workbook(weekly / "demo_weekly.xlsx",
+                                     horizon_days=WEEKLY_HORIZON_DAYS + 7 * args.weeks)
+            print(f"Weekly loop: {args.weeks} weeks of an invented record, re-planned each week...",
+                  file=sys.stderr)
+            reports = weekly_loop(wb, weekly, weeks=args.weeks, time_limit=args.time_limit)
+    print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]
+                        + (["weekly/"] if reports is not None else [])))
+    if reports is not None:
+        from demo.record_demo import describe_weeks
+
+        print()
+        print(describe_weeks(reports))
+        print(f"\nThe record is {out / 'weekly' / 'record.db'}; try: reagentplan review --db "
+              f"sqlite:///{out / 'weekly' / 'record.db'} --out {out / 'weekly' / 'review'}")
     print(f"\nCaution: {CAUTION}")
     return EXIT_OK
 
@@ -281,6 +300,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="reagentplan-demo", help="output folder (default: %(default)s)")
     p.add_argument("--futures", type=int, default=500, help="sampled futures (default %(default)s)")
     p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
+    p.add_argument("--weeks", type=int, default=8,
+                   help="weeks of the invented operations record run through the weekly re-plan "
+                        "(0 = none; default %(default)s)")
     p.set_defaults(func=_cmd_demo)
 
     p = sub.add_parser("template", help="write the blank, annotated scenario workbook")

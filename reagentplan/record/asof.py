@@ -428,12 +428,15 @@ def _histories(scenario: Scenario, rec: RecordFrames, ts: pd.Timestamp):
 # --------------------------------------------------------------------------- applied
 
 
-def apply_asof(scenario: Scenario, state: AsOfState) -> Scenario:
-    """The scenario planned from the record: first day ``as_of`` + 1 (same horizon
-    length), opening stock as initial levels, the stone's CaCO3, firm orders, the
-    month-to-date tonnes, and the histories extended (pure; returns a new Scenario)."""
+def apply_asof(scenario: Scenario, state: AsOfState, horizon_days: int | None = None) -> Scenario:
+    """The scenario planned from the record: first day ``as_of`` + 1 (the workbook's
+    horizon length unless ``horizon_days``), opening stock as initial levels, the stone's
+    CaCO3, firm orders, the month-to-date tonnes, and the histories extended (pure;
+    returns a new Scenario)."""
     start = state.as_of + dt.timedelta(days=1)
-    plant = dataclasses.replace(scenario.plant, start_date=start)
+    plant = dataclasses.replace(scenario.plant, start_date=start,
+                                horizon_days=horizon_days or scenario.plant.horizon_days)
+    end = start + dt.timedelta(days=plant.horizon_days - 1)
     storage = {k: Store(st.store, st.capacity_t, st.safety_t, state.opening[k].level_t if k in state.opening
                         else st.initial_t) for k, st in scenario.storage.items()}
     scrubber = scenario.scrubber
@@ -442,6 +445,7 @@ def apply_asof(scenario: Scenario, state: AsOfState) -> Scenario:
     gen = scenario.generation[scenario.generation["date"] >= pd.Timestamp(start)].reset_index(drop=True)
     return dataclasses.replace(
         scenario, plant=plant, storage=storage, scrubber=scrubber, generation=gen,
-        coal_blend=_blend_from(scenario.coal_blend, start), firm_orders=state.firm_orders,
+        coal_blend=_blend_from(scenario.coal_blend, start),
+        firm_orders=tuple(o for o in state.firm_orders if o.date <= end),
         generation_history=state.generation_history, coal_quality_history=state.coal_quality_history,
         month_to_date=dict(state.month_to_date))

@@ -153,7 +153,7 @@ def plans_in_force(engine) -> pd.DataFrame:
 # --------------------------------------------------------------------------- diff
 
 DIFF_COLUMNS = ["lane", "date", "loads_before", "loads_after", "order_by", "change", "date_before",
-                "direction", "material", "tonnes_before", "tonnes_after"]
+                "direction", "material", "tonnes_before", "tonnes_after", "booked"]
 
 
 def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
@@ -161,7 +161,8 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
 
     Compared per lane and day over the days both plans cover from the later plan's first
     day: a day with loads only in the later plan is ``added``, only in the earlier one
-    ``cancelled``, in both with other loads ``changed``; a cancelled and an added load of
+    ``cancelled``, in both with other loads ``changed`` (``booked``: the later plan's
+    loads that day are orders already booked in the record); a cancelled and an added load of
     one lane within `MOVE_WINDOW_DAYS` pair into ``moved`` (``date`` is the new day,
     ``date_before`` the old).  Landfill (tonnes, not loads) is left out.
     """
@@ -173,7 +174,8 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
         m = m[(m["kind"] != "landfill") & (m["date"] >= lo) & (m["date"] <= hi)]
         return (m.groupby(["lane", "date"], as_index=False)
                 .agg(loads=("loads", "sum"), tonnes=("tonnes", "sum"), order_by=("order_by", "first"),
-                     direction=("direction", "first"), material=("material", "first")))
+                     direction=("direction", "first"), material=("material", "first"),
+                     booked=("booked", "any")))
 
     a, b = loads(before), loads(after)
     m = a.merge(b, on=["lane", "date"], how="outer", suffixes=("_before", "_after"))
@@ -184,6 +186,7 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
     m["order_by"] = m["order_by_after"].fillna(m["order_by_before"])
     m["direction"] = m["direction_after"].fillna(m["direction_before"])
     m["material"] = m["material_after"].fillna(m["material_before"])
+    m["booked"] = m["booked_after"].fillna(False).astype(bool)
     m["change"] = np.where(m["loads_before"] == 0, "added",
                            np.where(m["loads_after"] == 0, "cancelled", "changed"))
     m["date_before"] = pd.NaT
@@ -217,7 +220,8 @@ def act_first(diff: pd.DataFrame, as_of: dt.date | None, within: int = ACT_WITHI
     if diff.empty or as_of is None:
         return diff.iloc[0:0]
     t1 = pd.Timestamp(as_of) + pd.Timedelta(days=within)
-    inbound = diff[(diff["direction"] == "in") & ((diff["order_by"] <= t1) | (diff["date"] <= t1))]
+    inbound = diff[(diff["direction"] == "in") & ((diff["order_by"] <= t1) | (diff["date"] <= t1))
+                   & ~(diff["booked"] & (diff["change"] == "added"))]  # booked already: nothing to place
     outbound = diff[(diff["direction"] == "out") & diff["change"].isin(["added", "cancelled"])
                     & (diff["date"] <= t1)]
     return pd.concat([inbound.sort_values(["order_by", "lane"]), outbound.sort_values(["date", "lane"])])
