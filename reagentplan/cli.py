@@ -66,7 +66,8 @@ def _cmd_plan(args) -> int:
         engine = connect(args.db)
         try:
             with staged_output(args.out) as tmp:
-                run = run_plan_from_record(args.workbook, engine, args.as_of, **options)
+                run = run_plan_from_record(args.workbook, engine, args.as_of,
+                                           horizon_days=args.horizon_days, **options)
                 written = write_run(run, tmp)
         finally:
             engine.dispose()
@@ -351,6 +352,9 @@ def build_parser() -> argparse.ArgumentParser:
                         "month-to-date contract tonnes, booked orders, history); the plan starts the "
                         "next day and is stored as a new version (default: the day before the "
                         "workbook's start_date)")
+    p.add_argument("--horizon-days", type=int, default=None, metavar="N",
+                   help="with --db: days planned from the day after --as-of (default: the workbook's "
+                        "horizon_days)")
     p.set_defaults(func=_cmd_plan)
 
     p = sub.add_parser("db", help="the operations record's database")

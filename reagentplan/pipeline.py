@@ -81,6 +81,12 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     from .record.versions import fingerprint, store_plan
     from .scenario import load_scenario
 
+    if horizon_days is not None and not 1 <= horizon_days <= 1096:
+        from .errors import Problem
+        from .record.db import RecordError
+
+        raise RecordError(Problem(None, None, "--horizon-days", f"found {horizon_days}",
+                                  "a whole number of days from 1 to 1096"), "The command")
     data = Path(workbook).read_bytes()
     scenario = scenario or load_scenario(workbook)
     if as_of is None:

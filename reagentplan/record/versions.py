@@ -230,9 +230,10 @@ def act_first(diff: pd.DataFrame, as_of: dt.date | None, within: int = ACT_WITHI
 def describe_diff(before: StoredPlan, after: StoredPlan, diff: pd.DataFrame, first: pd.DataFrame) -> str:
     lines = [f"Plan {before.id} (as of {before.as_of}) -> plan {after.id} (as of {after.as_of}): "
              f"{len(diff)} order line(s) changed"]
-    counts = diff["change"].value_counts()
-    if len(counts):
-        lines.append("  " + ", ".join(f"{n} {k}" for k, n in counts.items()))
+    for direction, label in (("in", "limestone orders"), ("out", "haul-outs")):
+        counts = diff.loc[diff["direction"] == direction, "change"].value_counts()
+        if len(counts):
+            lines.append(f"  {label}: " + ", ".join(f"{n} {k}" for k, n in counts.items()))
     if len(first):
         lines.append(f"Act on these first (within {ACT_WITHIN_DAYS} days of {after.as_of}):")
         for r in first.head(15).itertuples(index=False):
