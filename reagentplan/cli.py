@@ -5,6 +5,7 @@ print; bad input exits with code 2 and a message naming sheet, row and column.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -69,13 +70,30 @@ def _cmd_plan(args) -> int:
     from .scenario import load_scenario
     from .summary import describe_plan, describe_risk
 
-    scenario = load_scenario(args.workbook)
-    _warn(scenario)
-    run = run_plan(scenario, futures=args.futures, seed=args.seed, solver=args.solver,
+    options = dict(futures=args.futures, seed=args.seed, solver=args.solver,
                    time_limit=args.time_limit, firm_days=args.firm_days,
                    risk_level=args.risk_level / 100, progress=True)
-    with staged_output(args.out) as tmp:
-        written = write_run(run, tmp)
+    if args.db or args.as_of or os.environ.get("REAGENTPLAN_DB"):
+        from .pipeline import run_plan_from_record
+        from .record.db import connect
+        from .summary import describe_asof
+
+        engine = connect(args.db)
+        try:
+            with staged_output(args.out) as tmp:
+                run = run_plan_from_record(args.workbook, engine, args.as_of,
+                                           horizon_days=args.horizon_days, **options)
+                written = write_run(run, tmp)
+        finally:
+            engine.dispose()
+        _warn(run.plan.scenario)
+        print(describe_asof(run.summary_extra))
+    else:
+        scenario = load_scenario(args.workbook)
+        _warn(scenario)
+        run = run_plan(scenario, **options)
+        with staged_output(args.out) as tmp:
+            written = write_run(run, tmp)
     print(describe_plan(run.plan))
     print(describe_risk(run))
     for line in run.warnings:
@@ -133,8 +151,120 @@ def _cmd_demo(args) -> int:
         run = run_plan(scenario, futures=args.futures, seed=0, time_limit=args.time_limit,
                        progress=True)
         written = write_run(run, tmp)
-    print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]))
+        reports = None
+        if args.weeks > 0:
+            from demo.record_demo import WEEKLY_HORIZON_DAYS, weekly_loop
+
+            weekly = tmp / "weekly"
+            weekly.mkdir()
+            wb = build_demo_workbook(weekly / "demo_weekly.xlsx",
+                                     horizon_days=WEEKLY_HORIZON_DAYS + 7 * args.weeks)
+            print(f"Weekly loop: {args.weeks} weeks of an invented record, re-planned each week...",
+                  file=sys.stderr)
+            reports = weekly_loop(wb, weekly, weeks=args.weeks, time_limit=args.time_limit)
+    print(describe_demo(run, out, ["demo_station.xlsx"] + [p.name for p in written]
+                        + (["weekly/"] if reports is not None else [])))
+    if reports is not None:
+        from demo.record_demo import describe_weeks
+
+        print()
+        print(describe_weeks(reports))
+        print(f"\nThe record is {out / 'weekly' / 'record.db'}; try: reagentplan review --db "
+              f"sqlite:///{out / 'weekly' / 'record.db'} --out {out / 'weekly' / 'review'}")
     print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
+def _cmd_db_upgrade(args) -> int:
+    from .record.db import connect, upgrade
+
+    engine = connect(args.db)
+    before, after = upgrade(engine)
+    if before == after:
+        print(f"The database is already at the newest schema (revision {after}).")
+    else:
+        print(f"Upgraded the database from {'an empty one' if before is None else 'revision ' + before} "
+              f"to revision {after}.")
+    engine.dispose()
+    return EXIT_OK
+
+
+def _cmd_record(args) -> int:
+    from .record.db import connect
+    from .record.importer import describe_import, record_files
+    from .scenario import load_scenario
+
+    scenario = load_scenario(args.scenario) if args.scenario else None
+    engine = connect(args.db)
+    try:
+        result = record_files(engine, args.files, scenario=scenario, replace=args.replace,
+                              today=args.as_of)
+    finally:
+        engine.dispose()
+    print(describe_import(result))
+    if scenario is None:
+        print("(No --scenario given: names, lanes and load sizes were not checked against a workbook.)")
+    return EXIT_OK
+
+
+def _cmd_diff(args) -> int:
+    from .output import staged_output
+    from .output.record import write_diff
+    from .record.db import RecordError, connect
+    from .record.versions import act_first, describe_diff, diff_plans, load_plan, plan_ids
+    from .errors import Problem
+
+    engine = connect(args.db)
+    try:
+        ids = plan_ids(engine)
+        if len(ids) < 2 and (args.from_id is None or args.to_id is None):
+            raise RecordError(Problem(None, None, None, f"the record holds {len(ids)} plan version(s)",
+                                      "two plans to compare: run `reagentplan plan WORKBOOK --db URL "
+                                      "--as-of DATE` once more"), "The command")
+        to_id = args.to_id if args.to_id is not None else ids[-1]
+        from_id = args.from_id if args.from_id is not None else max(i for i in ids if i < to_id)
+        before, after = load_plan(engine, from_id), load_plan(engine, to_id)
+    finally:
+        engine.dispose()
+    diff = diff_plans(before, after)
+    first = act_first(diff, after.as_of)
+    with staged_output(args.out) as tmp:
+        written = write_diff(diff, tmp)
+    print(describe_diff(before, after, diff, first))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
+    return EXIT_OK
+
+
+def _cmd_review(args) -> int:
+    from .output import staged_output
+    from .output.record import write_review
+    from .record.asof import load_record
+    from .record.db import connect
+    from .record.review import describe_review, review
+    from .record.versions import load_plan, load_workbook_bytes, plan_ids
+    from .scenario import load_scenario
+
+    engine = connect(args.db)
+    try:
+        if args.scenario:
+            scenario = load_scenario(args.scenario)
+        else:
+            ids = plan_ids(engine)
+            if not ids:
+                from .errors import Problem
+                from .record.db import RecordError
+
+                raise RecordError(Problem(None, None, "--scenario", "no plan version in the record",
+                                          "--scenario WORKBOOK, or a plan made with --db first"), "The command")
+            latest = load_plan(engine, ids[-1])
+            scenario = load_scenario(load_workbook_bytes(engine, latest.workbook_sha256))
+        result = review(engine, scenario, load_record(engine), until=args.until)
+    finally:
+        engine.dispose()
+    with staged_output(args.out) as tmp:
+        written = write_review(result, tmp)
+    print(describe_review(result))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     return EXIT_OK
 
 
@@ -168,6 +298,21 @@ def _cmd_dashboard(args) -> int:
     return EXIT_OK
 
 
+def _date(text: str):
+    import datetime as dt
+
+    try:
+        return dt.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a date; expected YYYY-MM-DD") from None
+
+
+def _db_option(p, required: bool = False) -> None:
+    p.add_argument("--db", default=None, metavar="URL",
+                   help="the record: sqlite:///station.db or postgresql+psycopg://user@host/db "
+                        "(default: the environment variable REAGENTPLAN_DB)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="reagentplan",
@@ -181,6 +326,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="reagentplan-demo", help="output folder (default: %(default)s)")
     p.add_argument("--futures", type=int, default=500, help="sampled futures (default %(default)s)")
     p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
+    p.add_argument("--weeks", type=int, default=8,
+                   help="weeks of the invented operations record run through the weekly re-plan "
+                        "(0 = none; default %(default)s)")
     p.set_defaults(func=_cmd_demo)
 
     p = sub.add_parser("template", help="write the blank, annotated scenario workbook")
@@ -223,7 +371,56 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--risk-level", type=float, default=5.0,
                    help="accepted chance [%%] of dropping below safety or above capacity on a day "
                         "(default %(default)s)")
+    _db_option(p)
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="with --db: plan from the record's state at the end of DATE (opening stock, "
+                        "month-to-date contract tonnes, booked orders, history); the plan starts the "
+                        "next day and is stored as a new version (default: the day before the "
+                        "workbook's start_date)")
+    p.add_argument("--horizon-days", type=int, default=None, metavar="N",
+                   help="with --db: days planned from the day after --as-of (default: the workbook's "
+                        "horizon_days)")
     p.set_defaults(func=_cmd_plan)
+
+    p = sub.add_parser("db", help="the operations record's database")
+    dbsub = p.add_subparsers(dest="db_command", required=True, metavar="ACTION")
+    q = dbsub.add_parser("upgrade", help="create the record's tables or bring them to the newest schema")
+    _db_option(q)
+    q.set_defaults(func=_cmd_db_upgrade)
+
+    p = sub.add_parser("record", help="record stock surveys, arrivals, shipments, orders, "
+                                      "generation and lab results in the database")
+    p.add_argument("files", nargs="+", metavar="FILE",
+                   help=".xlsx with record sheets, or .csv named after one (arrivals.csv); several "
+                        "files are recorded together, all or none")
+    _db_option(p)
+    p.add_argument("--scenario", metavar="WORKBOOK", default=None,
+                   help="the station's scenario workbook: names, lanes and load sizes are checked "
+                        "against it")
+    p.add_argument("--replace", action="store_true",
+                   help="accept new values for facts already recorded (the old ones go to the audit trail)")
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="refuse facts after this day (default: today)")
+    p.set_defaults(func=_cmd_record)
+
+    p = sub.add_parser("diff", help="what changed between two stored plans (orders_changed.csv)")
+    _db_option(p)
+    p.add_argument("--from", dest="from_id", type=int, default=None, metavar="ID",
+                   help="the earlier plan version (default: the one before --to)")
+    p.add_argument("--to", dest="to_id", type=int, default=None, metavar="ID",
+                   help="the later plan version (default: the newest)")
+    p.add_argument("--out", required=True, help="output folder")
+    p.set_defaults(func=_cmd_diff)
+
+    p = sub.add_parser("review", help="plan against book against survey (plan_vs_actual.csv) and "
+                                      "the book-to-survey drift per store")
+    _db_option(p)
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--scenario", metavar="WORKBOOK", default=None,
+                   help="the workbook for the balance of past days (default: the newest plan's)")
+    p.add_argument("--until", type=_date, default=None, metavar="DATE",
+                   help="last day reviewed (default: the last recorded fact)")
+    p.set_defaults(func=_cmd_review)
 
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,

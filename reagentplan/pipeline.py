@@ -6,7 +6,9 @@ their own.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import datetime as dt
+from dataclasses import dataclass, field
+from pathlib import Path
 
 from .balance import balance_frame
 from .scenario import Scenario
@@ -29,6 +31,9 @@ class PlanRun:
     plan: PlanResult
     futures: object | None  # reagentplan.forecast.Futures, or None without futures
     risk: RiskResult | None = None
+    #: Keys added to ``summary.json`` (contract months; from the record: as_of,
+    #: opening_stock, plan_id, ...).
+    summary_extra: dict = field(default_factory=dict)
 
     @property
     def warnings(self) -> list[str]:
@@ -60,4 +65,49 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
     if fut is not None:
         so2 = {k: fut.flows[k] for k in SO2_FLOWS if k in fut.flows}
         risk = replay(plan, flows, so2=so2 if len(so2) == len(SO2_FLOWS) else None)
-    return PlanRun(plan, fut, risk)
+    from .schedule.lanes import contract_month_note
+
+    return PlanRun(plan, fut, risk, {"contract_months": contract_month_note(scenario)})
+
+
+def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = None, *,
+                         scenario: Scenario | None = None, horizon_days: int | None = None,
+                         **options) -> PlanRun:
+    """Plan a workbook from the operations record's state at the end of ``as_of``
+    (default: the day before the workbook's start) and store the plan as a new version.
+
+    The workbook gives what does not change week to week; the record gives the opening
+    stock, the month-to-date contract tonnes, the booked orders and the histories
+    (`reagentplan.record.asof`).  ``scenario`` is the workbook already loaded (else it
+    is read); ``horizon_days`` overrides the workbook's.  ``options`` are those of
+    `run_plan`.
+    """
+    from .output import run_summary
+    from .record.asof import apply_asof, asof_state, load_record
+    from .record.versions import fingerprint, store_plan
+    from .scenario import load_scenario
+
+    if horizon_days is not None and not 1 <= horizon_days <= 1096:
+        from .errors import Problem
+        from .record.db import RecordError
+
+        raise RecordError(Problem(None, None, "--horizon-days", f"found {horizon_days}",
+                                  "a whole number of days from 1 to 1096"), "The command")
+    data = Path(workbook).read_bytes()
+    scenario = scenario or load_scenario(workbook)
+    if as_of is None:
+        as_of = scenario.plant.start_date - dt.timedelta(days=1)
+    record = load_record(engine)
+    state = asof_state(scenario, record, as_of)
+    planned = apply_asof(scenario, state, horizon_days)
+    run = run_plan(planned, **options)
+    run.summary_extra.update(state.summary())
+    opts = {k: v for k, v in options.items() if k != "progress"} | {"horizon_days": horizon_days}
+    plan_id = store_plan(engine, summary=run_summary(run), movements=run.plan.movements,
+                         inventory=run.plan.inventory, workbook_bytes=data,
+                         workbook_name=Path(workbook).name, as_of=as_of,
+                         start_date=planned.plant.start_date, horizon_days=planned.plant.horizon_days,
+                         finger=fingerprint(data, as_of, state.last_import_id, opts),
+                         last_import_id=state.last_import_id)
+    run.summary_extra["plan_id"] = plan_id
+    return run

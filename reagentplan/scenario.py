@@ -207,6 +207,11 @@ class Scenario:
     period_settings: pd.DataFrame | None = None  # first_date, last_date, key, value
     #: Values that are possible but unusual (`reagentplan.schema.PLAUSIBLE`), located.
     warnings: tuple[InputWarning, ...] = ()
+    #: Tonnes already moved in the first planned month before its first planned day, by
+    #: lane name (``SupplierLane.lane`` / ``BuyerLane.lane``) [t], from the operations
+    #: record; a lane not named moved none.  ``None`` = no record: the days before the
+    #: start are assumed to have used each contract at its even pace.
+    month_to_date: dict[str, float] | None = None
 
     @property
     def dates(self) -> pd.DatetimeIndex:

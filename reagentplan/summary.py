@@ -153,3 +153,20 @@ def describe_warnings(warnings) -> str:
                                                          "them" if n != 1 else "it")]
     lines += [f"  - {w}" for w in warnings]
     return "\n".join(lines)
+
+
+def describe_asof(extra: dict) -> str:
+    """The record's state a plan started from (the ``summary.json`` keys), in words."""
+    lines = [f"Planned from the record as of {extra.get('as_of')} (plan version {extra.get('plan_id')}):"]
+    for store, o in extra.get("opening_stock", {}).items():
+        src = (f"survey of {o['survey_date']}" if o["survey_date"] else "workbook's initial level")
+        src += f", rolled {o['days_rolled']} day(s)" if o["days_rolled"] else ""
+        q = f", CaCO3 {o['caco3_pct']:.1f} %" if "caco3_pct" in o else ""
+        lines.append(f"  {store:<10} {o['level_t']:>12,.0f} t  ({src}{q})")
+    for lane, t in extra.get("month_to_date_t", {}).items():
+        lines.append(f"  this month so far: {lane} {t:,.0f} t")
+    if extra.get("contract_months"):
+        lines.append(f"  contract months: {extra['contract_months']}")
+    for a in extra.get("record_assumptions", []):
+        lines.append(f"  assumed: {a}")
+    return "\n".join(lines)

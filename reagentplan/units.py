@@ -82,6 +82,7 @@ VARIANTS: dict[str, Variant] = {
         _mass("max_t_per_day", "max_st_per_day"),
         _mass("airspace_t", "airspace_st"),
         _mass("tonnes", "short_tons"),
+        _mass("level_t", "level_st"),
         _price("price_per_t", "price_per_st"),
         _price("cost_per_t", "cost_per_st"),
         _price("shortage_penalty_per_t", "shortage_penalty_per_st"),

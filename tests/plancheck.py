@@ -19,9 +19,15 @@ def _closed(scn: Scenario, party: str, mode, day: dt.date) -> bool:
                and c.first_date <= day <= c.last_date for c in scn.lane_closures)
 
 
-def _share(scn: Scenario, month: pd.Period) -> float:
-    d = scn.dates
-    return float(((d.year == month.year) & (d.month == month.month)).sum()) / month.days_in_month
+def _max_share(scn: Scenario, month: pd.Period) -> float:
+    """Share of a calendar month's maximum open to the plan: the month's days from the
+    first planned day on (the days before it are assumed used at the even pace, or the
+    recorded month-to-date tonnes are taken off, below); a month ending after the horizon
+    keeps its whole maximum."""
+    first = pd.Timestamp(scn.plant.start_date)
+    if month == first.to_period("M"):
+        return (month.days_in_month - first.day + 1) / month.days_in_month
+    return 1.0
 
 
 def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
@@ -96,7 +102,7 @@ def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
     for key, left in firm_remaining.items():
         if left > 0:
             errors.append(f"firm order {key} missing {left} load(s)")
-    # monthly maxima (pro-rated by the share of each month in the horizon) and airspace
+    # monthly maxima (of the calendar month, less what went before the start) and airspace
     mv["month"] = mv["date"].dt.to_period("M")
     for (lane, month), g in mv.groupby(["lane", "month"]):
         rows = ([s for s in scn.suppliers if s.lane == lane] + [b for b in scn.buyers if b.lane == lane])
@@ -104,7 +110,10 @@ def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
             hi = row.max_t_per_month
             if hi is not None:
                 booked = g.loc[g["booked"], "tonnes"].sum()
-                if g["tonnes"].sum() > max(hi * _share(scn, month), booked) + 1e-6:
+                allowed = hi * _max_share(scn, month)
+                if scn.month_to_date is not None and month == pd.Timestamp(scn.plant.start_date).to_period("M"):
+                    allowed = max(hi - scn.month_to_date.get(lane, 0.0), 0.0)
+                if g["tonnes"].sum() > max(allowed, booked) + 1e-6:
                     errors.append(f"{lane} {month}: {g['tonnes'].sum():.0f} t above the monthly maximum")
     for d in scn.disposal:
         used = mv.loc[(mv["party"] == d.site) & (mv["material"] == d.material), "tonnes"].sum()

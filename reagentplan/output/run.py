@@ -53,6 +53,7 @@ def run_summary(run) -> dict:
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
         summary["futures"] = run.risk.n_futures
+    summary.update(getattr(run, "summary_extra", None) or {})
     return summary
 
 

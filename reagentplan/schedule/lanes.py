@@ -33,7 +33,8 @@ class Lane:
     cost_per_t : money per tonne moved, positive = the plant pays [money/t]
     cost_per_load : freight per load [money/load]
     lead_days : days from order to arrival (supply) [d]
-    month_min_t, month_max_t : pro-rated monthly limits per horizon month [t], NaN = none
+    month_min_t, month_max_t : each horizon month's contract limits for its planned days [t],
+        NaN = none (see `_monthly`)
     airspace_t : remaining airspace (landfill) [t], inf = unlimited
     why_closed : per day, the first reason the lane is shut ('' if open)
     """
@@ -70,14 +71,65 @@ def horizon_months(dates: pd.DatetimeIndex) -> tuple[np.ndarray, list[pd.Period]
     return index, months, share
 
 
+def month_span(dates: pd.DatetimeIndex) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Per horizon month: days planned, days of the month before the first planned day,
+    days after the last planned day, and days in the month [d]."""
+    _, months, _ = horizon_months(dates)
+    inside = np.array([(dates.to_period("M") == p).sum() for p in months], dtype=float)
+    dim = np.array([p.days_in_month for p in months], dtype=float)
+    before = np.zeros(len(months))
+    after = np.zeros(len(months))
+    before[0] = dates[0].day - 1
+    after[-1] = months[-1].days_in_month - dates[-1].day
+    return inside, before, after, dim
+
+
 def _monthly(limit: float | None, share: np.ndarray, months: list[pd.Period],
-             lane_months: frozenset[int] = frozenset(range(12))) -> np.ndarray:
-    """A monthly contract limit [t/month] pro-rated by the share of each month planned;
-    none in months the lane's row does not cover."""
+             lane_months: frozenset[int] = frozenset(range(12)), *, bound: str = "max",
+             span: tuple[np.ndarray, ...] | None = None, used_t: float | None = None) -> np.ndarray:
+    """A calendar month's contract limit [t/month] as it applies to the planned days of
+    each horizon month; none in months the lane's row does not cover.
+
+    The limit belongs to the calendar month.  In the first month, the tonnes already
+    moved before the first planned day count against the maximum and toward the minimum:
+    ``used_t`` when recorded [t], else assumed at the contract's even pace (limit × days
+    before / days in month).  What remains is the maximum of the month's rest; the
+    minimum of what remains is pro-rated over the days planned and the days after the
+    horizon (the month's rest lies partly beyond the plan), while the maximum is not
+    shrunk for days beyond the horizon: the plan may use all of it.  Without ``span``
+    both limits are pro-rated by ``share`` (the share of the month planned).
+    """
     if limit is None:
         return np.full(share.shape, np.nan)
     covered = np.array([p.month - 1 in lane_months for p in months])
-    return np.where(covered, limit * share, np.nan)
+    if span is None:
+        return np.where(covered, limit * share, np.nan)
+    inside, before, after, dim = span
+    used = limit * before / dim
+    if used_t is not None:
+        used[0] = used_t
+    rest = np.clip(limit - used, 0.0, None)
+    value = rest if bound == "max" else rest * inside / np.maximum(inside + after, 1.0)
+    return np.where(covered, value, np.nan)
+
+
+def contract_month_note(scenario: Scenario) -> str:
+    """How the first and last planned months' contract limits were set, in words."""
+    start = pd.Timestamp(scenario.plant.start_date)
+    end = pd.Timestamp(scenario.plant.end_date)
+    parts = []
+    if start.day > 1:
+        if scenario.month_to_date is None:
+            parts.append(f"{start:%B %Y} started before the plan: with no record of the tonnes already "
+                         f"moved in it, the {start.day - 1} day(s) before {start:%Y-%m-%d} are assumed to "
+                         "have used each contract at its even pace (limit x days / days in month)")
+        else:
+            parts.append(f"{start:%B %Y}: tonnes recorded from the 1st to {start - pd.Timedelta(days=1):%Y-%m-%d} "
+                         "count against each monthly maximum and toward each minimum")
+    if end.day < end.days_in_month:
+        parts.append(f"{end:%B %Y} ends after the plan: its monthly maximum is kept whole and its "
+                     "minimum pro-rated to the days planned")
+    return "; ".join(parts) if parts else "the plan covers whole calendar months"
 
 
 def quality_ok(lane: BuyerLane, balance: pd.DataFrame) -> tuple[np.ndarray, list[str]]:
@@ -128,6 +180,14 @@ def build_lanes(scenario: Scenario, balance: pd.DataFrame) -> list[Lane]:
     """All lanes of the scenario with their daily calendars and pro-rated limits."""
     dates = scenario.dates
     _, months, share = horizon_months(dates)
+    span = month_span(dates)
+    mtd = scenario.month_to_date
+
+    def limit(row, attr, bound):
+        used = None if mtd is None else float(mtd.get(row.lane, 0.0))
+        return _monthly(getattr(row, attr), share, months, row.months, bound=bound, span=span,
+                        used_t=used)
+
     lanes: list[Lane] = []
     for s in scenario.suppliers:
         open_, why = _calendar_why(scenario, s)
@@ -135,16 +195,16 @@ def build_lanes(scenario: Scenario, balance: pd.DataFrame) -> list[Lane]:
         why = ["lead time" if (lead[i] and open_[i]) else w for i, w in enumerate(why)]
         lanes.append(Lane(SUPPLY, "limestone", s.supplier, s.mode, s.lane, s.load_t,
                           s.max_loads_per_day, open_ & ~lead, s.price_per_t, s.freight_per_load,
-                          s.lead_days, _monthly(s.min_t_per_month, share, months, s.months),
-                          _monthly(s.max_t_per_month, share, months, s.months), np.inf, tuple(why), s))
+                          s.lead_days, limit(s, "min_t_per_month", "min"),
+                          limit(s, "max_t_per_month", "max"), np.inf, tuple(why), s))
     for b in scenario.buyers:
         open_, why = _calendar_why(scenario, b)
         q_ok, q_why = quality_ok(b, balance)
         why = [w or (q if not q_ok[i] else "") for i, (w, q) in enumerate(zip(why, q_why))]
         lanes.append(Lane(SALE, b.material, b.buyer, b.mode, b.lane, b.load_t, b.max_loads_per_day,
                           open_ & q_ok, -b.price_per_t, 0.0, 0,
-                          _monthly(b.min_t_per_month, share, months, b.months),
-                          _monthly(b.max_t_per_month, share, months, b.months), np.inf, tuple(why), b))
+                          limit(b, "min_t_per_month", "min"),
+                          limit(b, "max_t_per_month", "max"), np.inf, tuple(why), b))
     for d in scenario.disposal:
         open_, why = _calendar_why(scenario, d)
         cap = np.inf if d.max_t_per_day is None else d.max_t_per_day
