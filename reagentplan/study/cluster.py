@@ -131,7 +131,7 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
 
     n_workers = len(client.scheduler_info(n_workers=-1).get("workers", {})) or 1
     t0 = time.perf_counter()
-    shared_f = client.scatter(shared, broadcast=True)
+    shared_f = client.scatter(shared, broadcast=True, hash=False)
     shared_f.result()
     scatter = time.perf_counter() - t0
     info = StudyRun([], False, getattr(client.scheduler, "address", "?"), n_workers,
@@ -162,7 +162,7 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
     finally:
         bar.close()
         with contextlib.suppress(Exception):
-            client.cancel([shared_f])
+            shared_f.release()  # its own key (hash=False): no other study shares it
     info.rows = _ordered(cases, by_case, interrupted)
     info.interrupted, info.seconds = interrupted, time.perf_counter() - t0
     return info
