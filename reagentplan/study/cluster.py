@@ -20,7 +20,9 @@ from __future__ import annotations
 import contextlib
 import logging
 import os
+import signal
 import sys
+import threading
 import time
 import uuid
 from collections.abc import Callable, Iterator
@@ -72,9 +74,12 @@ def study_client(cluster: str = "local", workers: int | None = None, *,
 
     if cluster == "local":
         n = workers or default_workers()
-        local = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                             dashboard_address=":0" if dashboard else None,
-                             silence_logs=logging.ERROR)
+        # Ctrl-C in a terminal reaches the whole process group: the worker processes are
+        # started with SIGINT ignored, so only this process handles it (and closes them)
+        with _sigint_ignored():
+            local = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                                 dashboard_address=":0" if dashboard else None,
+                                 silence_logs=logging.ERROR)
         try:
             with Client(local) as client:
                 yield client
@@ -83,6 +88,20 @@ def study_client(cluster: str = "local", workers: int | None = None, *,
     else:
         with Client(cluster, timeout="20s") as client:
             yield client
+
+
+@contextlib.contextmanager
+def _sigint_ignored() -> Iterator[None]:
+    """SIGINT ignored while child processes are started (they inherit it); restored
+    after.  Only in the main thread, where signal handlers can be set."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    before = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, before)
 
 
 def dashboard_link(client) -> str | None:
