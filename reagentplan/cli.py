@@ -183,8 +183,13 @@ def _cmd_dashboard(args) -> int:
 
     what = args.workbook or "the demo station"
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
-    app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
-                     firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+    try:
+        app = create_app(args.workbook, futures=args.futures, seed=args.seed,
+                         time_limit=args.time_limit, firm_days=args.firm_days,
+                         demo_days=args.demo_days, password=password, study_dir=args.study)
+    except ValueError as exc:
+        print(f"--study: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
     print(f"Caution: {CAUTION}")
@@ -294,6 +299,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--demo-days", type=int, default=365,
                    help="days of the demo station when no workbook is given (default %(default)s)")
+    p.add_argument("--study", default=None, metavar="DIR",
+                   help="a folder written by 'reagentplan study', shown in the Studies tab")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 

@@ -93,4 +93,51 @@ def study_summary(frame: pd.DataFrame) -> dict:
     return {str(k): int(v) for k, v in counts.items()}
 
 
-__all__ = ["study_frame", "case_risk", "Winner", "pick_winner", "study_summary"]
+def read_study_table(source) -> tuple[pd.DataFrame, dict]:
+    """A study written by `reagentplan study`: its ``study.csv`` as a frame, and its
+    ``study.json`` (``{}`` when absent).  ``source`` is the output folder, the path of
+    a ``study.csv``, or the bytes of one (an upload).
+
+    Raises
+    ------
+    ValueError
+        Not a study table (the columns of DESIGN §7 are missing), or no such file.
+    """
+    import io
+    import json
+    import os
+    from pathlib import Path
+
+    meta: dict = {}
+    if isinstance(source, (bytes, bytearray)):
+        data = io.BytesIO(bytes(source))
+        name = "the file"
+    else:
+        path = Path(os.fspath(source))
+        if path.is_dir():
+            if (path / "study.json").is_file():
+                meta = json.loads((path / "study.json").read_text(encoding="utf-8"))
+            path = path / "study.csv"
+        if not path.is_file():
+            raise ValueError(f"{path} does not exist; expected the folder a study was written "
+                             "to (with its study.csv)")
+        data, name = path, path.name
+    try:
+        frame = pd.read_csv(data)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise ValueError(f"{name} could not be read as CSV ({type(exc).__name__})") from None
+    missing = [c for c in ("case", *RESULT_COLUMNS, "expected_cost") if c not in frame.columns]
+    if missing:
+        raise ValueError(f"{name} is not a study.csv: it has no column "
+                         + ", ".join(f"'{c}'" for c in missing))
+    return frame, meta
+
+
+def varied_columns(frame: pd.DataFrame) -> list[str]:
+    """The columns of the varied values: those between ``case`` and ``status``."""
+    cols = list(frame.columns)
+    return cols[cols.index("case") + 1:cols.index("status")]
+
+
+__all__ = ["study_frame", "case_risk", "Winner", "pick_winner", "study_summary",
+           "read_study_table", "varied_columns"]
