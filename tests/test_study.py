@@ -29,7 +29,8 @@ from reagentplan.risk import deterministic_flows
 from reagentplan.study.cluster import run_cases
 from reagentplan.study.grid import build_grid, parse_vary
 from reagentplan.study.results import pick_winner
-from reagentplan.study.run import CaseSettings, plan_case, replay_byproduct_heel, replay_costs
+from reagentplan.study.run import (CaseSettings, plan_case, replay_byproduct_heel,
+                                   replay_costs, replay_limestone_capped)
 from reagentplan.workbook import read_raw
 
 DAYS = 20
@@ -256,6 +257,20 @@ def test_haul_outs_do_not_take_the_heel():
     np.testing.assert_allclose(unshipped, [30.0])
     level0, _ = replay_byproduct_heel(100.0, np.array([[10.0, 10.0]]), np.array([80.0, 20.0]), 0.0)
     np.testing.assert_allclose(level0, [[30.0, 20.0]])
+
+
+def test_a_delivery_that_would_not_fit_is_called_off():
+    """A worked example: 40 t in a 100 t store, 80 t arrive on day 1 and 10 t are used
+    each day: 20 t do not fit (called off), day 1 ends at 90 t, day 2 at 80 t."""
+    level, unmet, refused = replay_limestone_capped(40.0, np.array([80.0, 0.0]),
+                                                    np.array([[10.0, 10.0]]), 100.0)
+    np.testing.assert_allclose(level, [[90.0, 80.0]])
+    np.testing.assert_allclose(refused, [20.0])
+    assert not unmet.any()
+    level, unmet, refused = replay_limestone_capped(15.0, np.array([0.0, 0.0]),
+                                                    np.array([[10.0, 10.0]]), 100.0)
+    np.testing.assert_allclose(level, [[5.0, 0.0]])
+    np.testing.assert_allclose(unmet, [[0.0, 5.0]])
 
 
 def test_the_winner_is_the_cheapest_within_the_risk_level():

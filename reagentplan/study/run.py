@@ -16,21 +16,28 @@ coal sources, blend, histories, start date or horizon) samples its futures again
 the worker with the same seed: the same random streams, so still common random
 numbers, at the cost of a forecast fit per case.
 
-**Cost per future.**  The plan's movements are held fixed, as in the risk replay.  A
-future's cost is the plan's movement costs (limestone price and freight, byproduct
-sales, landfill, contract shortfalls: booked, so the same in every future) plus, from
-the stores stepped through that future (`reagentplan.risk.replay_limestone`,
-`replay_byproduct`): the shortage penalty on every tonne-day below safety stock, the
-empty-store penalty on limestone demand not met, the overflow penalty on every
-tonne-day above capacity, and the end-of-horizon stock value, priced exactly as
-`reagentplan.schedule.evaluate.evaluate` prices the plan itself.  A byproduct haul-out
-takes at most what is above the store's safety stock (nobody ships the heel: in a
-future that made less gypsum the last trucks leave light or not at all), and the
-tonnes planned but not shipped are credited back at the plan's mean price of that
-store's haul-outs (sales revenue lost, landfill cost saved); they stay in the store
-and count in its end stock.  Replayed against the deterministic balance alone, a plan
-that keeps its own stores within their limits gives exactly its ``total_cost``
-(tested).
+**Cost per future.**  The plan's movements are held fixed, as in the risk replay, with
+two things a coordinator would do as the future unfolds (a plan held rigidly fixed for
+a year is otherwise priced by penalties no station would pay):
+
+- a limestone delivery never fills the store above its capacity: what would not fit
+  is called off and credited at the plan's mean delivered cost (price and freight per
+  tonne), `replay_limestone_capped`;
+- a byproduct haul-out takes at most what is above the store's safety stock (nobody
+  ships the heel: in a future that made less gypsum the last trucks leave light): the
+  tonnes not shipped are credited at the plan's mean money per tonne of that store's
+  haul-outs (sales revenue lost, landfill cost saved) and stay in the store,
+  `replay_byproduct_heel`.
+
+A future's cost is then the plan's movement costs (limestone price and freight,
+byproduct sales, landfill, contract shortfalls), less those credits, plus the shortage
+penalty on every tonne-day below safety stock, the empty-store penalty on limestone
+use not met, the overflow penalty on every tonne-day a byproduct store is above
+capacity, and the end-of-horizon stock value: priced as
+`reagentplan.schedule.evaluate.evaluate` prices the plan itself.  Replayed against the
+deterministic balance alone, a plan that keeps its own stores within their limits
+gives exactly its ``total_cost`` (tested).  The risk columns come from the same
+replay: a byproduct store over capacity is the overflow that cannot be called off.
 
 References
 ----------
@@ -52,7 +59,7 @@ import numpy as np
 
 from ..forecast.futures import DriverSamples, futures_from_drivers, sample_futures
 from ..pipeline import FUTURE_FLOWS, STORE_FLOWS, PlanRun, plan_with_futures
-from ..risk import replay_limestone, store_flows
+from ..risk import store_flows
 from ..schedule.evaluate import EMPTY_PENALTY_FACTOR
 from ..schedule.lanes import LANDFILL, SALE, SUPPLY, cheapest_delivered_cost, cheapest_disposal_cost
 from .grid import Case
@@ -110,6 +117,44 @@ def replay_byproduct_heel(initial_t: float, production_t: np.ndarray, departures
     return level.T, unshipped
 
 
+def replay_limestone_capped(initial_t: float, arrivals_t: np.ndarray, use_t: np.ndarray,
+                            capacity_t: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """End-of-day limestone [t] (F, D), use not met [t] (F, D), and tonnes not taken
+    per future [t] (F,), when a delivery never fills the store above its capacity [t]
+    (the coordinator calls off what would not fit).  With an initial level within
+    capacity and no delivery refused, the levels are those of
+    `reagentplan.risk.replay_limestone`."""
+    use = np.ascontiguousarray(np.asarray(use_t, dtype=np.float64).T)  # days x futures
+    level = np.empty_like(use)
+    unmet = np.zeros_like(use)
+    refused = np.zeros(use.shape[1])
+    x = np.full(use.shape[1], float(initial_t))
+    room = max(float(capacity_t), float(initial_t))
+    for d in range(use.shape[0]):
+        x += arrivals_t[d]
+        over = np.maximum(x - room, 0.0)
+        refused += over
+        x -= over
+        x -= use[d]
+        np.maximum(-x, 0.0, out=unmet[d])
+        np.maximum(x, 0.0, out=x)
+        level[d] = x
+    return level.T, unmet.T, refused
+
+
+def inbound_cost_per_t(result) -> float:
+    """The plan's mean delivered cost of limestone [money/t] (price and freight over
+    the planned tonnes); 0 with no deliveries."""
+    money = tonnes = 0.0
+    for lane in result.lanes:
+        if lane.kind == SUPPLY:
+            t = float(result.plan.tonnes(lane).sum())
+            money += lane.cost_per_t * t + lane.cost_per_load * float(
+                np.sum(result.plan.quantity[lane.name]))
+            tonnes += t
+    return money / tonnes if tonnes > 0 else 0.0
+
+
 def outbound_cost_per_t(result, store: str) -> float:
     """The plan's mean money per tonne hauled out of a byproduct store [money/t]
     (sales negative, landfill positive), weighted by the planned tonnes; 0 with none."""
@@ -144,7 +189,8 @@ def replay_costs(result, flows: dict[str, np.ndarray]) -> ReplayFigures:
         moved = store_flows(plan, lanes, store, n)
         f = np.asarray(flows[store], dtype=np.float64)
         if store == "limestone":
-            level, unmet = replay_limestone(st.initial_t, moved, f)
+            level, unmet, refused = replay_limestone_capped(st.initial_t, moved, f, st.capacity_t)
+            costs -= inbound_cost_per_t(result) * refused
             costs += EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum(axis=1)
             costs -= cheapest_delivered_cost(scn) * level[:, -1]
             if st.safety_t > 0:
@@ -265,5 +311,5 @@ def run_case(case: Case, shared: DriverSamples, settings: CaseSettings) -> dict:
 
 
 __all__ = ["CaseSettings", "ReplayFigures", "replay_costs", "replay_byproduct_heel",
-           "outbound_cost_per_t", "case_futures", "plan_case",
+           "outbound_cost_per_t", "replay_limestone_capped", "inbound_cost_per_t", "case_futures", "plan_case",
            "result_row", "failed_row", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]
