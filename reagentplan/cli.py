@@ -120,7 +120,7 @@ def _cmd_demo(args) -> int:
 
 def _cmd_study(args) -> int:
     from .output import staged_output, write_study
-    from .study.cluster import default_workers
+    from .study.cluster import StudyClusterError, default_workers
     from .study.run import CaseSettings
     from .study.study import describe_study, prepare_study, run_study, study_options_problems
 
@@ -152,6 +152,10 @@ def _cmd_study(args) -> int:
     except (OSError, TimeoutError) as exc:
         print(f"Could not reach the Dask scheduler at {args.cluster}: {exc}. Nothing was written.",
               file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except StudyClusterError as exc:
+        print(f"The Dask cluster at {args.cluster} cannot run the study: {exc}. Nothing was "
+              "written.", file=sys.stderr)
         return EXIT_BAD_INPUT
     with staged_output(args.out) as tmp:
         written = write_study(result, tmp)

@@ -298,6 +298,7 @@ def test_a_local_cluster_of_two_gives_what_a_serial_run_gives(grid, shared, clus
     serial = run_cases(tuple(reversed(grid.cases)), shared, settings, None, progress=False)
     dist = run_cases(grid.cases, shared, settings, cluster, progress=False)
     assert dist.workers == 2 and not dist.interrupted and dist.scatter_seconds > 0
+    assert dist.dashboard is None  # this cluster serves no dashboard, so none is named
     assert [r["case"] for r in dist.rows] == [1, 2, 3, 4]
     by_case = {r["case"]: r for r in _strip(serial.rows)}
     assert _strip(dist.rows) == [by_case[k] for k in (1, 2, 3, 4)]

@@ -104,13 +104,26 @@ def _sigint_ignored() -> Iterator[None]:
         signal.signal(signal.SIGINT, before)
 
 
+class StudyClusterError(RuntimeError):
+    """The cluster could not take the study (its workers cannot load the shared
+    futures: most often a different reagentplan on the workers)."""
+
+
 def dashboard_link(client) -> str | None:
-    """The Dask dashboard's address, or ``None`` when the cluster serves none."""
+    """The Dask dashboard's address, or ``None`` when the scheduler serves none."""
     try:
+        services = client.scheduler_info(n_workers=0).get("services", {})
+        if "dashboard" not in services:
+            return None
         link = client.dashboard_link
     except Exception:  # noqa: BLE001 - no dashboard (bokeh missing, or disabled)
         return None
     return link or None
+
+
+def _probe(shared) -> int:
+    """Run in a worker: the shared futures arrived and load (their number of futures)."""
+    return int(shared.n_futures)
 
 
 def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, settings: CaseSettings,
@@ -150,9 +163,18 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
 
     n_workers = len(client.scheduler_info(n_workers=-1).get("workers", {})) or 1
     t0 = time.perf_counter()
-    shared_f = client.scatter(shared, broadcast=True, hash=False)
-    shared_f.result()
-    scatter = time.perf_counter() - t0
+    try:
+        shared_f = client.scatter(shared, broadcast=True, hash=False)
+        shared_f.result()
+        scatter = time.perf_counter() - t0
+        client.submit(_probe, shared_f, pure=False).result()
+    except Exception as exc:  # noqa: BLE001 - whatever the workers answer, say it plainly
+        import reagentplan
+
+        raise StudyClusterError(
+            f"the workers could not load the shared futures ({type(exc).__name__}: {exc}); "
+            f"they need the same reagentplan as this machine (version "
+            f"{reagentplan.__version__}, from {os.path.dirname(reagentplan.__file__)})") from None
     info = StudyRun([], False, getattr(client.scheduler, "address", "?"), n_workers,
                     dashboard_link(client), scatter, 0.0)
     if on_start:
@@ -198,4 +220,5 @@ def _ordered(cases, by_case: dict[int, dict], interrupted: bool) -> list[dict]:
     return rows
 
 
-__all__ = ["StudyRun", "study_client", "run_cases", "dashboard_link", "default_workers", "NOT_RUN"]
+__all__ = ["StudyRun", "StudyClusterError", "study_client", "run_cases", "dashboard_link",
+           "default_workers", "NOT_RUN"]
