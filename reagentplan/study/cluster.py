@@ -112,13 +112,19 @@ class StudyClusterError(RuntimeError):
 def dashboard_link(client) -> str | None:
     """The Dask dashboard's address, or ``None`` when the scheduler serves none."""
     try:
-        services = client.scheduler_info(n_workers=0).get("services", {})
-        if "dashboard" not in services:
+        if not client.run_on_scheduler(_serves_dashboard):
             return None
         link = client.dashboard_link
     except Exception:  # noqa: BLE001 - no dashboard (bokeh missing, or disabled)
         return None
     return link or None
+
+
+def _serves_dashboard(dask_scheduler) -> bool:
+    """Run on the scheduler: whether its web server carries the Bokeh dashboard (it
+    serves only health and metrics without it)."""
+    apps = getattr(dask_scheduler.http_application, "applications", [])
+    return any("Bokeh" in type(a).__name__ for a in apps)
 
 
 def _probe(shared) -> int:
