@@ -129,6 +129,22 @@ def test_a_driver_input_is_resampled_not_shared():
     assert [c.scenario.coal_sources[0].sulfur_pct for c in g.cases] == [1.5, 2.5]
 
 
+def test_a_resampled_case_plans_as_the_plan_command_does(shared):
+    """A coal variant samples its own futures with the shared seed: its plan is
+    `run_plan` of that variant with the same seed and number of futures."""
+    from reagentplan.pipeline import run_plan
+    from reagentplan.study.run import run_case
+
+    g = _grid_of(_sheets(), ["coal_sources[Coal A].sulfur_pct=2.5"])
+    row = run_case(g.cases[0], shared, CaseSettings(time_limit=30))
+    assert row["futures"] == "resampled" and row["status"] == "optimal"
+    ref = run_plan(g.cases[0].scenario, futures=shared.n_futures, seed=shared.seed, time_limit=30)
+    assert row["total_cost"] == round(ref.plan.evaluation.total_cost, 2)
+    risk = ref.risk.frame
+    assert row["p_limestone_below_safety"] == pytest.approx(
+        risk.loc[risk["store"] == "limestone", "p_below_safety"].max(), abs=1 / shared.n_futures)
+
+
 def test_rows_of_several_lanes_are_refused_with_the_choices_named():
     s = _sheets()
     s["suppliers"].append(["Quarry Q", "truck", 25, 20, 1, "Mon-Fri", 20, 100, None, 5000])
