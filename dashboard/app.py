@@ -40,6 +40,7 @@ from .security import (DEFAULT_HOST, ORIGINS_ENV, LoginThrottle, install_basic_a
 from .store import PlanStore
 from .style import INDEX_STRING
 from .views import controls, coordinator, plant, sales
+from .views import study as study_view
 
 #: Largest request body the server takes [bytes]: a 10 MB upload as base64, and room.
 MAX_REQUEST_BYTES = 16 * 1024 * 1024
@@ -73,12 +74,16 @@ def _load(workbook, work_dir: Path, demo_days: int):
     return load_scenario(workbook), Path(workbook).name
 
 
-def build_layout(run, meta: dict, scenario_id: str, plan_id: str):
-    """The page, already filled with the startup plan (no round trip on first load)."""
+def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None):
+    """The page, already filled with the startup plan (no round trip on first load);
+    ``study`` is a ``(study.csv frame, study.json)`` pair to show in the study tab."""
     scn = run.plan.scenario
     tabs = [dcc.Tab(label=label, value=value, className="rp-tab", selected_className="rp-tab--selected",
                     children=view.layout(), id=f"tab-{value}")
             for value, label, view in TABS]
+    tabs.append(dcc.Tab(label="Studies", value="study", className="rp-tab", id="tab-study",
+                        selected_className="rp-tab--selected",
+                        children=study_view.layout(*(study or (None, None)))))
     page = html.Div(className="rp-page", children=[
         dcc.Store(id="scenario-id", data=scenario_id),
         dcc.Store(id="plan-id", data=plan_id),
@@ -119,7 +124,8 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
                risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,
-               throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES) -> Dash:
+               throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES,
+               study_dir: str | os.PathLike | None = None) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
@@ -139,11 +145,14 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         when not given.
     cache_bytes : most bytes of plans kept on disk (`CACHE_BYTES`); the oldest re-plans
         are dropped first, the startup plan is kept in memory.
+    study_dir : a folder written by `reagentplan study`, shown in the Studies tab.
 
     Raises
     ------
     reagentplan.errors.ScenarioError
         The workbook is bad (the CLI prints the report and exits with 2).
+    ValueError
+        ``study_dir`` holds no study.csv.
     """
     import diskcache
     import flask
@@ -157,6 +166,11 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         work.mkdir(parents=True, exist_ok=True)
     options = PlanOptions(futures=futures, seed=seed, solver=solver, time_limit=time_limit,
                           firm_days=firm_days, risk_level=risk_level)
+    study = None
+    if study_dir is not None:
+        from reagentplan.study.results import read_study_table
+
+        study = read_study_table(study_dir)
     t0 = time.perf_counter()
     if run is None:
         scenario, source = _load(workbook_bytes_or_path, work, demo_days)
@@ -187,8 +201,9 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     prefix = app.config.requests_pathname_prefix or "/"
     app.index_string = INDEX_STRING.replace(
         "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
-    app.layout = build_layout(run, meta, scenario_id, plan_id)
+    app.layout = build_layout(run, meta, scenario_id, plan_id, study)
     callbacks.register(app, store, options, manager)
+    study_view.register(app)
     app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=scenario_id,
                                       plan_id=plan_id, work_dir=work, startup_seconds=seconds,
                                       warnings=tuple(getattr(scenario, "warnings", ())),

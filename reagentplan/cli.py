@@ -268,6 +268,58 @@ def _cmd_review(args) -> int:
     return EXIT_OK
 
 
+def _cmd_study(args) -> int:
+    from .output import staged_output, write_study
+    from .study.cluster import StudyClusterError, default_workers
+    from .study.run import CaseSettings
+    from .study.study import describe_study, prepare_study, run_study, study_options_problems
+
+    problems = study_options_problems(args.cluster, args.workers, args.risk_level,
+                                      args.time_limit, args.case_timeout, args.max_cases)
+    if problems:
+        raise ScenarioError(problems)
+    grid, shared = prepare_study(args.workbook, args.vary, futures=args.futures, seed=args.seed,
+                                 max_cases=args.max_cases)
+    print(f"{len(grid.cases)} case(s) of {grid.base.plant.name}; {shared.n_futures} futures "
+          f"sampled once ({shared.nbytes / 2**20:.1f} MB, shared by every case)")
+    if args.cluster == "local":
+        print(f"Starting a local Dask cluster of {args.workers or default_workers()} worker "
+              "process(es)...")
+
+    def started(info):
+        where = "this process, one case after the other" if info.where == "serial" else info.where
+        print(f"Running on {where}" + (f" ({info.workers} workers)" if info.where != "serial" else ""))
+        if info.dashboard:
+            print(f"Dask dashboard: {info.dashboard}")
+        elif info.where != "serial":
+            print("Dask dashboard: none (install bokeh to see one)")
+
+    settings = CaseSettings(solver=args.solver, time_limit=args.time_limit, firm_days=args.firm_days,
+                            risk_level=args.risk_level / 100, case_timeout=args.case_timeout)
+    try:
+        result = run_study(grid, shared, settings, cluster=args.cluster, workers=args.workers,
+                           on_start=started)
+    except (OSError, TimeoutError) as exc:
+        print(f"Could not reach the Dask scheduler at {args.cluster}: {exc}. Nothing was written.",
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except StudyClusterError as exc:
+        print(f"The Dask cluster at {args.cluster} cannot run the study: {exc}. Nothing was "
+              "written.", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    with staged_output(args.out) as tmp:
+        written = write_study(result, tmp)
+    print(describe_study(result))
+    print(f"\nWrote {', '.join(p.name + ('/' if p.is_dir() else '') for p in written)} to {args.out}")
+    print(f"\nCaution: {CAUTION}")
+    if result.run.interrupted:
+        print("Interrupted: the finished cases are in study.csv; the others are marked 'not run'.",
+              file=sys.stderr)
+        return 130
+    planned = result.frame["status"].isin(("optimal", "feasible")).all()
+    return EXIT_OK if planned and result.winner.case is not None else EXIT_BREACH
+
+
 def _cmd_dashboard(args) -> int:
     import os
 
@@ -285,8 +337,13 @@ def _cmd_dashboard(args) -> int:
 
     what = args.workbook or "the demo station"
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
-    app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
-                     firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+    try:
+        app = create_app(args.workbook, futures=args.futures, seed=args.seed,
+                         time_limit=args.time_limit, firm_days=args.firm_days,
+                         demo_days=args.demo_days, password=password, study_dir=args.study)
+    except ValueError as exc:
+        print(f"--study: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     _warn(app.reagentplan)
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
@@ -422,6 +479,37 @@ def build_parser() -> argparse.ArgumentParser:
                    help="last day reviewed (default: the last recorded fact)")
     p.set_defaults(func=_cmd_review)
 
+    p = sub.add_parser("study", help="plans of many variants of one workbook, on Dask "
+                                     "distributed (study.csv, study.xlsx, winner/)")
+    p.add_argument("workbook")
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--vary", action="append", required=True, metavar="SPEC",
+                   help="sheet.key=V1,V2 or sheet[row name].column=V1,V2; several make the "
+                        "full grid")
+    p.add_argument("--futures", type=int, default=200,
+                   help="futures sampled once and shared by every case (default %(default)s)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the futures (default %(default)s)")
+    p.add_argument("--cluster", default="local",
+                   help="'local' (a LocalCluster on this machine, the default), the address of "
+                        "a running Dask scheduler (tcp://host:8786), or 'serial' (no Dask)")
+    p.add_argument("--workers", type=int, default=None,
+                   help="worker processes of the local cluster (default: one per core)")
+    p.add_argument("--time-limit", type=float, default=60.0,
+                   help="solver seconds per solve of a case (default %(default)s)")
+    p.add_argument("--case-timeout", type=float, default=None,
+                   help="wall-clock seconds after which a case is reported as timed out "
+                        "(default: none beyond the solver's time limit)")
+    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
+                   help="MIP solver (default %(default)s)")
+    p.add_argument("--firm-days", type=int, default=56,
+                   help="days planned one by one; weekly outlook after (default %(default)s)")
+    p.add_argument("--risk-level", type=float, default=5.0,
+                   help="accepted daily chance [%%] of limestone below safety or a store over "
+                        "capacity: it guards each plan and bounds the winner (default %(default)s)")
+    p.add_argument("--max-cases", type=int, default=500,
+                   help="refuse grids of more cases than this (default %(default)s)")
+    p.set_defaults(func=_cmd_study)
+
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,
                    help="scenario workbook (default: the demo station)")
@@ -439,6 +527,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--trusted-proxy", default=None, metavar="ADDRESS",
                    help="address of a TLS-terminating proxy in front of the dashboard; only its "
                         "X-Forwarded-For/-Host/-Proto headers are believed")
+    p.add_argument("--study", default=None, metavar="DIR",
+                   help="a folder written by 'reagentplan study', shown in the Studies tab")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 

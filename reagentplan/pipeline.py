@@ -24,6 +24,16 @@ STORE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": 
 SO2_FLOWS = ("so2_emitted_t", "so2_removed_t", "heat_input_gj", "generation_mwh")
 
 
+def _future_flows() -> tuple[str, ...]:
+    from .forecast.futures import FLOWS
+
+    return tuple(dict.fromkeys(FLOWS + SO2_FLOWS))
+
+
+#: Quantities of the balance kept per future for a plan and its risk.
+FUTURE_FLOWS = _future_flows()
+
+
 @dataclass
 class PlanRun:
     """A planned scenario: the plan, the futures it was guarded against, and its risk."""
@@ -47,16 +57,25 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
              progress: bool = False) -> PlanRun:
     """Sample ``futures`` futures (none when 0), plan against them, replay the plan
     against them (the risk)."""
-    balance = balance_frame(scenario)
     fut = None
-    flows = None
     if futures > 0:
         from .forecast import sample_futures
 
-        from .forecast.futures import FLOWS
+        fut = sample_futures(scenario, futures, seed=seed, progress=progress, keep=FUTURE_FLOWS)
+    return plan_with_futures(scenario, fut, solver=solver, time_limit=time_limit,
+                             firm_days=firm_days, risk_level=risk_level, progress=progress)
 
-        keep = tuple(dict.fromkeys(FLOWS + SO2_FLOWS))
-        fut = sample_futures(scenario, futures, seed=seed, progress=progress, keep=keep)
+
+def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_limit: float = 60.0,
+                      firm_days: int = 56, risk_level: float = 0.05,
+                      progress: bool = False) -> PlanRun:
+    """Plan ``scenario`` against futures already sampled (`reagentplan.forecast.Futures`
+    holding at least `FUTURE_FLOWS`, or ``None`` for none) and replay the plan against
+    them.  `run_plan` is this after sampling; a study calls it with futures shared
+    between its cases."""
+    balance = balance_frame(scenario)
+    flows = None
+    if fut is not None:
         flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
                  if store in scenario.storage and q in fut.flows}
     plan = make_plan(scenario, balance, flows=flows, risk_level=risk_level, firm_days=firm_days,

@@ -663,6 +663,18 @@ def load_scenario(source: str | os.PathLike | BinaryIO | bytes) -> Scenario:
     return _build(raw, os.path.basename(name))
 
 
+def scenario_from_raw(raw: dict[str, RawSheet], source_name: str = "") -> Scenario:
+    """Validate sheets already read by `reagentplan.workbook.read_raw` (or changed from
+    them, as a study's variants are) into a `Scenario`, exactly as `load_scenario` does.
+
+    Raises
+    ------
+    ScenarioError
+        As `load_scenario`.
+    """
+    return _build(raw, source_name)
+
+
 def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     out = _Collector()
     by_name = {k.strip().lower(): v for k, v in raw.items()}

@@ -388,3 +388,103 @@ def sample_futures(scenario: Scenario, n_futures: int = 1000, seed: int | None =
                 bar.update(1)
     return Futures(scenario.dates, flows, int(root.entropy), plan_basis(scenario),
                    tuple(model.notes(scenario)), model)
+
+
+# --------------------------------------------------------------------------- shared drivers
+
+
+#: The balance's drivers (`reagentplan.balance.Drivers`), in their order.
+DRIVER_NAMES = ("generation_mwh", "heat_input_gj", "coal_heat_gj", "sulfur_pct", "ash_pct",
+                "hhv_mj_per_kg", "chlorine_pct")
+
+
+@dataclass(frozen=True)
+class DriverSamples:
+    """Sampled futures of the balance's *drivers* (generation, heat input, coal quality),
+    before the balance: what several variants of one scenario can share (common random
+    numbers) while each runs its own balance (`futures_from_drivers`).
+
+    Attributes
+    ----------
+    dates : the D planned days.
+    drivers : name -> (F, D) array, or (1, D) for a driver that does not vary between
+        futures [MWh/d, GJ/d, %, MJ/kg], names as `DRIVER_NAMES`.
+    n_futures : F.
+    seed : entropy of the random streams (as `Futures.seed`).
+    basis, notes : as `Futures`.
+    """
+
+    dates: pd.DatetimeIndex
+    drivers: dict[str, np.ndarray]
+    n_futures: int
+    seed: int
+    basis: np.ndarray
+    notes: tuple[str, ...]
+
+    @property
+    def nbytes(self) -> int:
+        return int(sum(a.nbytes for a in self.drivers.values()))
+
+
+def sample_drivers(scenario: Scenario, n_futures: int = 1000, seed: int | None = 0,
+                   model: ForecastModel | None = None, dtype=np.float32) -> DriverSamples:
+    """The drivers of `sample_futures`' futures: the same random streams, blocks and
+    values, stopped before the balance.
+
+    ``futures_from_drivers(sample_drivers(s, n, seed), s)`` equals
+    ``sample_futures(s, n, seed)`` (tested).  Units as `reagentplan.balance.Drivers`
+    [MWh/d, GJ/d, %, MJ/kg].
+    """
+    _check_request(n_futures, seed)
+    dtype = np.dtype(dtype).type
+    n_futures = int(n_futures)
+    root = streams.root_sequence(seed)
+    if model is None:
+        model = fit_forecast(scenario)
+    prep = _prepare(scenario, model)
+    days = scenario.plant.horizon_days
+    parts: dict[str, list[np.ndarray]] = {name: [] for name in DRIVER_NAMES}
+    spans = []
+    for b, lo in enumerate(range(0, n_futures, BLOCK_FUTURES)):
+        hi = min(lo + BLOCK_FUTURES, n_futures)
+        block = _block_drivers(prep, hi - lo, root, b, dtype)
+        spans.append((lo, hi))
+        for name in DRIVER_NAMES:
+            parts[name].append(np.asarray(block[name]))
+    out: dict[str, np.ndarray] = {}
+    for name, blocks in parts.items():
+        if all(x.ndim == 1 for x in blocks):
+            # the same in every future (a dispatch plan, a source without spread): kept
+            # as one row, in the type the balance sees it in `sample_futures`
+            out[name] = blocks[0][None, :]
+            continue
+        full = np.empty((n_futures, days), dtype=dtype)
+        for (lo, hi), x in zip(spans, blocks):
+            full[lo:hi] = x.T if x.ndim == 2 else x[None, :]
+        out[name] = full
+    return DriverSamples(scenario.dates, out, n_futures, int(root.entropy), plan_basis(scenario),
+                         tuple(model.notes(scenario)))
+
+
+def futures_from_drivers(samples: DriverSamples, scenario: Scenario,
+                         keep: Sequence[str] = FLOWS, dtype=np.float32) -> Futures:
+    """Run sampled drivers through ``scenario``'s balance (its plant and scrubber
+    settings, `BalanceParams.from_scenario`): the `Futures` of that scenario under the
+    same sampled generation and coal quality [t/d, MWh/d, %].
+
+    ``scenario`` must plan the same days as the scenario the drivers were sampled from.
+    ``Futures.model`` is ``None`` (the drivers carry no fitted model).
+    """
+    if len(scenario.dates) != len(samples.dates) or not (scenario.dates == samples.dates).all():
+        raise ValueError("the drivers were sampled for other days than the scenario plans")
+    params = BalanceParams.from_scenario(scenario)
+    n, days = samples.n_futures, len(samples.dates)
+    flows = {k: np.empty((n, days), dtype=dtype) for k in keep}
+    d = samples.drivers
+    for a in range(0, n, CHUNK_FUTURES):
+        b = min(a + CHUNK_FUTURES, n)
+        part = Drivers(**{k: (v if v.shape[0] == 1 else v[a:b]) for k, v in d.items()})
+        res = _balance(part, params, flows)
+        for k, arr in flows.items():
+            arr[a:b] = res[k]
+    return Futures(samples.dates, flows, samples.seed, samples.basis, samples.notes, None)

@@ -1,0 +1,230 @@
+"""Running a study's cases on Dask distributed.
+
+``cluster="local"`` starts a `distributed.LocalCluster` of ``workers`` processes (one
+thread each: a case is one solve, and the solver and numpy would only fight over the
+cores); an address (``tcp://host:8786``) connects to a running scheduler, whose workers
+must have reagentplan installed.  ``cluster="serial"`` runs the cases one after the
+other in this process, without Dask (for debugging, and as the reference the tests
+compare a cluster's results with).
+
+The shared futures (`reagentplan.forecast.futures.DriverSamples`) are scattered once,
+to every worker (``broadcast=True``); each case is a task of `run_case` that refers to
+them, so they are not shipped again per case.  Results come back as they finish
+(``as_completed``, counted by a tqdm bar); a case that raises or times out comes back as
+a row with its status and the rest go on.  Ctrl-C cancels the cases not finished and
+returns those that are, marked ``interrupted``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import signal
+import sys
+import threading
+import time
+import uuid
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+from ..forecast.futures import DriverSamples
+from .grid import Case
+from .run import CaseSettings, failed_row, run_case
+
+#: Status of a case that Ctrl-C stopped before it finished.
+NOT_RUN = "not run"
+
+
+@dataclass
+class StudyRun:
+    """What came back from the cases.
+
+    Attributes
+    ----------
+    rows : one result row per case, in case order.
+    interrupted : Ctrl-C stopped the study; unfinished cases have status ``not run``.
+    where : ``serial``, ``local`` or the scheduler's address.
+    workers : number of workers that ran the cases.
+    dashboard : the Dask dashboard's address, when there is one.
+    scatter_seconds : time to ship the shared futures to every worker [s].
+    seconds : wall time from the first submission to the last result [s].
+    """
+
+    rows: list[dict]
+    interrupted: bool
+    where: str
+    workers: int
+    dashboard: str | None
+    scatter_seconds: float
+    seconds: float
+
+
+def default_workers() -> int:
+    """One worker per core [-]."""
+    return max(1, os.cpu_count() or 1)
+
+
+@contextlib.contextmanager
+def study_client(cluster: str = "local", workers: int | None = None, *,
+                 dashboard: bool = True) -> Iterator[object]:
+    """A `distributed.Client` for a study; the `LocalCluster` it started (if any) is
+    closed on exit.  ``cluster`` is ``local`` or a scheduler address."""
+    from distributed import Client, LocalCluster
+
+    if cluster == "local":
+        n = workers or default_workers()
+        # Ctrl-C in a terminal reaches the whole process group: the worker processes are
+        # started with SIGINT ignored, so only this process handles it (and closes them)
+        with _sigint_ignored():
+            local = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                                 dashboard_address=":0" if dashboard else None,
+                                 silence_logs=logging.ERROR)
+        try:
+            with Client(local) as client:
+                yield client
+        finally:
+            local.close()
+    else:
+        with Client(cluster, timeout="20s") as client:
+            yield client
+
+
+@contextlib.contextmanager
+def _sigint_ignored() -> Iterator[None]:
+    """SIGINT ignored while child processes are started (they inherit it); restored
+    after.  Only in the main thread, where signal handlers can be set."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    before = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, before)
+
+
+class StudyClusterError(RuntimeError):
+    """The cluster could not take the study (its workers cannot load the shared
+    futures: most often a different reagentplan on the workers)."""
+
+
+def dashboard_link(client) -> str | None:
+    """The Dask dashboard's address, or ``None`` when the scheduler serves none."""
+    try:
+        if not client.run_on_scheduler(_serves_dashboard):
+            return None
+        link = client.dashboard_link
+    except Exception:  # noqa: BLE001 - no dashboard (bokeh missing, or disabled)
+        return None
+    return link or None
+
+
+def _serves_dashboard(dask_scheduler) -> bool:
+    """Run on the scheduler: whether its web server carries the Bokeh dashboard (it
+    serves only health and metrics without it)."""
+    apps = getattr(dask_scheduler.http_application, "applications", [])
+    return any("Bokeh" in type(a).__name__ for a in apps)
+
+
+def _probe(shared) -> int:
+    """Run in a worker: the shared futures arrived and load (their number of futures)."""
+    return int(shared.n_futures)
+
+
+def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, settings: CaseSettings,
+              client=None, *, progress: bool = True, case_fn: Callable = run_case,
+              on_start: Callable[[StudyRun], None] | None = None) -> StudyRun:
+    """Run every case (`run_case`) against the shared futures; serially when ``client``
+    is ``None``.
+
+    ``on_start`` is called once the futures are on the workers (with the workers and
+    the dashboard filled in), before the first case runs.  Rows come back in case order
+    whatever order the cases finished in.
+    """
+    from tqdm import tqdm
+
+    by_case: dict[int, dict] = {}
+    interrupted = False
+    if client is None:
+        info = StudyRun([], False, "serial", 1, None, 0.0, 0.0)
+        if on_start:
+            on_start(info)
+        t0 = time.perf_counter()
+        bar = tqdm(total=len(cases), desc="cases", unit="case", file=sys.stderr,
+                   disable=not progress)
+        try:
+            for case in cases:
+                by_case[case.case] = case_fn(case, shared, settings)
+                bar.update(1)
+        except KeyboardInterrupt:
+            interrupted = True
+        finally:
+            bar.close()
+        info.rows = _ordered(cases, by_case, interrupted)
+        info.interrupted, info.seconds = interrupted, time.perf_counter() - t0
+        return info
+
+    from distributed import as_completed
+
+    n_workers = len(client.scheduler_info(n_workers=-1).get("workers", {})) or 1
+    t0 = time.perf_counter()
+    try:
+        shared_f = client.scatter(shared, broadcast=True, hash=False)
+        shared_f.result()
+        scatter = time.perf_counter() - t0
+        client.submit(_probe, shared_f, pure=False).result()
+    except Exception as exc:  # noqa: BLE001 - whatever the workers answer, say it plainly
+        import reagentplan
+
+        raise StudyClusterError(
+            f"the workers could not load the shared futures ({type(exc).__name__}: {exc}); "
+            f"they need the same reagentplan as this machine (version "
+            f"{reagentplan.__version__}, from {os.path.dirname(reagentplan.__file__)})") from None
+    info = StudyRun([], False, getattr(client.scheduler, "address", "?"), n_workers,
+                    dashboard_link(client), scatter, 0.0)
+    if on_start:
+        on_start(info)
+    token = uuid.uuid4().hex[:8]
+    t0 = time.perf_counter()
+    futures = {}
+    bar = tqdm(total=len(cases), desc="cases", unit="case", file=sys.stderr, disable=not progress)
+    try:
+        for case in cases:
+            f = client.submit(case_fn, case, shared_f, settings, key=f"study-{token}-case-{case.case}",
+                              pure=False, retries=0)
+            futures[f.key] = (f, case)
+        for f in as_completed([f for f, _ in futures.values()]):
+            case = futures[f.key][1]
+            try:
+                by_case[case.case] = f.result()
+            except Exception as exc:  # noqa: BLE001 - lost worker, unpicklable result...
+                by_case[case.case] = failed_row(case, "failed", f"{type(exc).__name__}: {exc}")
+            bar.update(1)
+    except KeyboardInterrupt:
+        interrupted = True
+        pending = [f for f, case in futures.values() if case.case not in by_case]
+        with contextlib.suppress(Exception):
+            client.cancel(pending, force=True)
+    finally:
+        bar.close()
+        with contextlib.suppress(Exception):
+            shared_f.release()  # its own key (hash=False): no other study shares it
+    info.rows = _ordered(cases, by_case, interrupted)
+    info.interrupted, info.seconds = interrupted, time.perf_counter() - t0
+    return info
+
+
+def _ordered(cases, by_case: dict[int, dict], interrupted: bool) -> list[dict]:
+    rows = []
+    for case in cases:
+        row = by_case.get(case.case)
+        if row is None:
+            row = failed_row(case, NOT_RUN, "stopped by Ctrl-C before it finished"
+                             if interrupted else "no result")
+        rows.append(row)
+    return rows
+
+
+__all__ = ["StudyRun", "StudyClusterError", "study_client", "run_cases", "dashboard_link",
+           "default_workers", "NOT_RUN"]
