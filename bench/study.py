@@ -1,10 +1,11 @@
 """Benchmark: a study of eight cases of the demo station on a Dask LocalCluster.
 
-Run:  python bench/study.py [--days 90] [--futures 200] [--repeat 2]
+Run:  python bench/study.py [--days 90] [--futures 200] [--repeat 3]
 
 Eight cases (2 contract sizes x 2 gypsum sheds x 2 removal settings) at 90 days with
 200 shared futures, run on a LocalCluster of 1 worker and of 2 (fresh clusters, the
-workers warmed up first so imports are not timed).  Prints:
+workers warmed up first so imports are not timed; both clusters stay up and their runs
+alternate, so other work on a shared machine falls on both alike).  Prints:
 
 - the wall time of the eight cases on 1 worker and on 2, and the speed-up
   (target >= 1.6 x on a 2-core machine);
@@ -15,7 +16,7 @@ workers warmed up first so imports are not timed).  Prints:
   same no-op task with the futures shipped inside every task instead.
 
 The machine is shared, so compare the ratios of one run; ``--repeat`` takes the best
-of several runs of each configuration.
+of several alternated runs of each configuration.
 """
 
 from __future__ import annotations
@@ -69,44 +70,52 @@ def rss_mb() -> float:
     return psutil.Process().memory_info().rss / 2**20
 
 
-def one_config(grid, shared, settings, workers: int, repeat: int) -> dict:
-    with study_client("local", workers, dashboard=False) as client:
-        client.run(warm_up)
-        best = None
+def shipping(client, grid, shared, settings) -> dict:
+    """Wall time [s] of the eight no-op cases: reading the scattered futures, with no
+    futures at all (a task's own cost), and with the futures inside every task."""
+    noop = min((run_cases(grid.cases, shared, settings, client, progress=False,
+                          case_fn=touch_shared) for _ in range(5)), key=lambda r: r.seconds)
+    bare, inline = [], []
+    for _ in range(5):
+        t0 = time.perf_counter()
+        client.gather([client.submit(no_futures, c, None, settings, pure=False)
+                       for c in grid.cases])
+        bare.append(time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        client.gather([client.submit(touch_shared, c, shared, settings, pure=False)
+                       for c in grid.cases])
+        inline.append(time.perf_counter() - t0)
+    return {"noop": noop.seconds, "bare": min(bare), "inline": min(inline)}
+
+
+def both_configs(grid, shared, settings, repeat: int) -> dict:
+    """Clusters of 1 and of 2 workers side by side, their runs alternated (1, 2, 1, 2,
+    ...) so that other work on a shared machine falls on both alike; the best of each."""
+    with study_client("local", 1, dashboard=False) as c1, \
+            study_client("local", 2, dashboard=False) as c2:
+        clients = {1: c1, 2: c2}
+        for c in clients.values():
+            c.run(warm_up)
+        best: dict[int, object] = {}
         for _ in range(repeat):
-            run = run_cases(grid.cases, shared, settings, client, progress=False)
-            if best is None or run.seconds < best.seconds:
-                best = run
-        memory = client.run(rss_mb)
-        # shipping the futures: a no-op case against the scattered copy, against a
-        # no-op case with no futures at all (a task's own cost) ...
-        noop = min((run_cases(grid.cases, shared, settings, client, progress=False,
-                              case_fn=touch_shared) for _ in range(5)), key=lambda r: r.seconds)
-        bare = []
-        for _ in range(5):
-            t0 = time.perf_counter()
-            client.gather([client.submit(no_futures, c, None, settings, pure=False)
-                           for c in grid.cases])
-            bare.append(time.perf_counter() - t0)
-        # ... and with the futures inside every task (no scatter)
-        inline = []
-        for _ in range(5):
-            t0 = time.perf_counter()
-            client.gather([client.submit(touch_shared, c, shared, settings, pure=False)
-                           for c in grid.cases])
-            inline.append(time.perf_counter() - t0)
-    bad = [r for r in best.rows if r["status"] not in ("optimal", "feasible")]
-    if bad:
-        raise SystemExit(f"cases without a plan: {bad}")
-    return {"run": best, "memory": memory, "noop": noop.seconds,
-            "bare": min(bare), "inline": min(inline)}
+            for w, c in clients.items():
+                run = run_cases(grid.cases, shared, settings, c, progress=False)
+                if w not in best or run.seconds < best[w].seconds:
+                    best[w] = run
+        out = {w: {"run": best[w], "memory": c.run(rss_mb)} for w, c in clients.items()}
+        out[2].update(shipping(c2, grid, shared, settings))
+    for w in out:
+        bad = [r for r in out[w]["run"].rows if r["status"] not in ("optimal", "feasible")]
+        if bad:
+            raise SystemExit(f"cases without a plan: {bad}")
+    return out
 
 
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--days", type=int, default=90)
     ap.add_argument("--futures", type=int, default=200)
-    ap.add_argument("--repeat", type=int, default=2)
+    ap.add_argument("--repeat", type=int, default=3)
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         book = build_demo_workbook(Path(tmp) / "demo.xlsx", horizon_days=args.days)
@@ -119,7 +128,7 @@ def main() -> None:
     print(f"demo station, {args.days} days, {len(grid.cases)} cases, {shared.n_futures} shared "
           f"futures ({shared.nbytes / 2**20:.2f} MB of drivers); grid + validation + sampling "
           f"{prep:.1f} s")
-    res = {w: one_config(grid, shared, settings, w, args.repeat) for w in (1, 2)}
+    res = both_configs(grid, shared, settings, args.repeat)
     t1, t2 = res[1]["run"].seconds, res[2]["run"].seconds
     case_s = statistics.median(r["case_seconds"] for r in res[1]["run"].rows)
     print(f"\n  1 worker : {t1:6.2f} s for {len(grid.cases)} cases "

@@ -78,9 +78,15 @@ def run_study(grid: Grid, shared: DriverSamples, settings: CaseSettings, *,
     if cluster == "serial":
         run = run_cases(grid.cases, shared, settings, None, progress=progress, on_start=on_start)
     else:
-        with study_client(cluster, workers, dashboard=dashboard) as client:
-            run = run_cases(grid.cases, shared, settings, client, progress=progress,
-                            on_start=on_start)
+        run = None
+        try:
+            with study_client(cluster, workers, dashboard=dashboard) as client:
+                run = run_cases(grid.cases, shared, settings, client, progress=progress,
+                                on_start=on_start)
+        except KeyboardInterrupt:  # a second Ctrl-C while the cluster closes
+            if run is None:
+                raise
+            run.interrupted = True
     frame = study_frame(grid, run.rows)
     labels = {c.case: c.label(grid.specs) for c in grid.cases}
     winner = pick_winner(frame, settings.risk_level, grid.base.plant.currency, labels)
@@ -90,12 +96,19 @@ def run_study(grid: Grid, shared: DriverSamples, settings: CaseSettings, *,
             note = "the study was interrupted, so the winner's plan folder was not written"
         else:
             case = next(c for c in grid.cases if c.case == winner.case)
-            winner_run = plan_case(case, shared, settings)
-            row = frame.loc[frame["case"] == winner.case].iloc[0]
-            again = round(winner_run.plan.evaluation.total_cost, 2)
-            if abs(again - float(row["total_cost"])) > 0.01:
-                note = (f"the winner re-planned here cost {again:,.2f}, not {row['total_cost']:,.2f} "
-                        "as in the study (the solver stopped at its time limit in one of the two)")
+            try:
+                winner_run = plan_case(case, shared, settings)
+            except KeyboardInterrupt:
+                run.interrupted = True
+                note = ("interrupted while the winner was planned again, so its plan folder "
+                        "was not written")
+            if winner_run is not None:
+                row = frame.loc[frame["case"] == winner.case].iloc[0]
+                again = round(winner_run.plan.evaluation.total_cost, 2)
+                if abs(again - float(row["total_cost"])) > 0.01:
+                    note = (f"the winner re-planned here cost {again:,.2f}, not "
+                            f"{row['total_cost']:,.2f} as in the study (the solver stopped at "
+                            "its time limit in one of the two)")
     return StudyResult(grid, shared, settings, run, frame, winner, winner_run, note)
 
 
