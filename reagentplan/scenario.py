@@ -558,6 +558,21 @@ def _read_table(raw: RawSheet, sheet: Sheet, out: _Collector,
     return records
 
 
+def read_table(raw: RawSheet, sheet: Sheet, boiler: str | None = None
+               ) -> tuple[list[dict[str, Any]], list[Problem], list[InputWarning]]:
+    """Parse any table sheet of `Field`s (the scenario's, the operations record's) with
+    the loader's own checks: ``(records, problems, warnings)``.
+
+    Each record maps field names to parsed values (metric) plus ``_row``, the Excel row;
+    rows come sorted by ``sheet.sort_by``; duplicates of ``sheet.key`` are problems naming
+    both rows; hard ranges (`Field.bounds`) give problems, usual ranges
+    (`reagentplan.schema.PLAUSIBLE`) warnings.
+    """
+    out = _Collector()
+    records = _read_table(raw, sheet, out, boiler)
+    return records, out.problems, out.warnings
+
+
 def _show(v: Any) -> str:
     if isinstance(v, dt.date):
         return f"{v:%Y-%m-%d}"

@@ -116,6 +116,10 @@ def read_raw(source: str | os.PathLike | BinaryIO | bytes) -> dict[str, RawSheet
         source.seek(0)
         data = source.read(MAX_FILE_BYTES + 1)
     _check_size(label, len(data))
+    if data[:8] == b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1":  # an OLE2 compound file
+        raise unreadable(label, "is an old-style .xls workbook or a password-protected one",
+                         "an unprotected .xlsx workbook (open it in Excel or LibreOffice, remove "
+                         "the password, and save it as Excel Workbook .xlsx)")
     if data[:4] != b"PK\x03\x04":
         raise unreadable(label, "is not an .xlsx workbook (it does not start as one; save .xls "
                                 "or .csv files as .xlsx first)")

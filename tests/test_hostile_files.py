@@ -157,6 +157,12 @@ def test_corrupted_member_is_reported_as_damaged(good):
     refused(bytes(bad), wbmod.UNREADABLE, "damaged")
 
 
+def test_an_xls_or_password_protected_workbook_is_named_as_such():
+    ole2 = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\0" * 600
+    text = refused(ole2, wbmod.UNREADABLE, "old-style .xls workbook or a password-protected one")
+    assert "remove the password" in text
+
+
 def test_a_zip_that_is_not_a_workbook(tmp_path):
     out = io.BytesIO()
     with zipfile.ZipFile(out, "w") as z:

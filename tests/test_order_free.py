@@ -92,3 +92,33 @@ def test_gaps_are_still_found_after_sorting():
         load_scenario(workbook_bytes(s))
     text = info.value.report()
     assert f"U1 has no rows for the 1 day(s) from {gone[0]:%Y-%m-%d}" in text
+
+
+def test_any_table_of_fields_gets_the_loaders_checks_through_read_table():
+    """The operations record's sheets use the same function: sorting, duplicates and
+    usual ranges by column name."""
+    import io
+
+    from openpyxl import Workbook
+
+    from reagentplan import schema
+    from reagentplan.scenario import read_table
+    from reagentplan.workbook import read_raw
+
+    sheet = schema.Sheet("lab_results", key=("date", "source"), sort_by=("date", "source"),
+                         fields=(schema.Field("date", "date"), schema.Field("source", "text"),
+                                 schema.Field("sulfur_pct", unit="%")))
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "lab_results"
+    for row in (["date", "source", "sulfur_pct"], [START, "B", 0.5], [START - dt.timedelta(days=1), "A", 9.0],
+                [START, "B", 0.6]):
+        ws.append(row)
+    buf = io.BytesIO()
+    wb.save(buf)
+    records, problems, warnings = read_table(read_raw(buf.getvalue())["lab_results"], sheet)
+    assert [r["_row"] for r in records] == [3, 2]
+    assert len(problems) == 1 and "a duplicate of row 2" in str(problems[0])
+    assert str(problems[0]).startswith("sheet 'lab_results', row 4")
+    [w] = warnings
+    assert str(w).startswith("sheet 'lab_results', row 3, column 'sulfur_pct': 9 %")

@@ -192,3 +192,16 @@ def test_a_sound_plan_has_an_empty_warning_list(tmp_path, minimal_path):
     assert main(["plan", str(minimal_path), "--out", str(out), "--futures", "0",
                  "--time-limit", "20"]) in (0, 1)
     assert json.loads((out / "summary.json").read_text())["warnings"] == []
+
+
+def test_the_dashboard_upload_names_the_unusual_values():
+    import base64
+
+    from dashboard.callbacks import parse_upload
+
+    s = minimal_sheets()
+    set_value(s, "scrubber", "removal_pct", None, 0.97)
+    url = "data:application/octet-stream;base64," + base64.b64encode(workbook_bytes(s)).decode()
+    scenario, message, ok = parse_upload({"filename": "fraction.xlsx", "contents": url})
+    assert ok and scenario.warnings
+    assert "1 value is unusual" in message and "did you mean 97 %?" in message
