@@ -540,7 +540,7 @@ def main(argv: list[str] | None = None) -> int:
         return args.func(args)
     except ScenarioError as exc:
         print(exc.report(), file=sys.stderr)
-        print("Nothing was written. Fix the cells named above and run again.", file=sys.stderr)
+        print(exc.fix_hint(), file=sys.stderr)
         return EXIT_BAD_INPUT
     except OSError as exc:
         print(f"Could not read or write a file: {exc}. Nothing was written.", file=sys.stderr)

@@ -26,6 +26,8 @@ class Problem:
 
 def location(sheet: str | None, row: int | None, column: str | None) -> str:
     """``sheet 'x', row 5, column 'y'`` as Excel shows it (``workbook`` for none)."""
+    if not sheet and row is None and column and column.startswith("--"):
+        return f"option '{column}'"
     where = []
     if sheet:
         where.append(f"sheet '{sheet}'")
@@ -71,15 +73,30 @@ class ScenarioError(Exception):
 
     MAX_SHOWN = 40
 
-    def __init__(self, problems: list[Problem] | Problem):
+    def __init__(self, problems: list[Problem] | Problem, title: str | None = None):
         if isinstance(problems, Problem):
             problems = [problems]
         self.problems = list(problems)
+        if title is None:
+            title = "The command line" if self.options_only else "The workbook"
+        self.title = title
         super().__init__(self.report())
+
+    @property
+    def options_only(self) -> bool:
+        """Every problem is one of a command-line option (``column`` = ``--name``)."""
+        return bool(self.problems) and all(
+            not p.sheet and p.row is None and (p.column or "").startswith("--")
+            for p in self.problems)
+
+    def fix_hint(self) -> str:
+        """The closing line the command prints under the report."""
+        what = "options" if self.options_only else "cells"
+        return f"Nothing was written. Fix the {what} named above and run again."
 
     def report(self) -> str:
         n = len(self.problems)
-        lines = [f"The workbook has {n} problem{'s' if n != 1 else ''}:"]
+        lines = [f"{self.title} has {n} problem{'s' if n != 1 else ''}:"]
         lines += [f"  - {p}" for p in self.problems[: self.MAX_SHOWN]]
         if n > self.MAX_SHOWN:
             lines.append(f"  ... and {n - self.MAX_SHOWN} more")

@@ -27,16 +27,7 @@ class RecordError(ScenarioError):
     """Bad input to the record (a file of facts, a database URL, a plan id)."""
 
     def __init__(self, problems, title: str = "The record"):
-        self.title = title
-        super().__init__(problems)
-
-    def report(self) -> str:
-        n = len(self.problems)
-        lines = [f"{self.title} has {n} problem{'s' if n != 1 else ''}:"]
-        lines += [f"  - {p}" for p in self.problems[: self.MAX_SHOWN]]
-        if n > self.MAX_SHOWN:
-            lines.append(f"  ... and {n - self.MAX_SHOWN} more")
-        return "\n".join(lines)
+        super().__init__(problems, title)
 
 
 def resolve_url(url: str | None) -> str:

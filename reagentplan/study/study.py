@@ -120,21 +120,29 @@ def describe_study(result: StudyResult) -> str:
              f"{result.shared.n_futures} shared futures, on {result.run.where} "
              f"({result.run.workers} worker{'s' if result.run.workers != 1 else ''}), "
              f"{result.run.seconds:.1f} s"]
-    head = f"  {'case':>4}  {'status':10} {'expected cost':>15} {'P90 cost':>15} {'risk':>7}  values"
+    head = (f"  {'case':>4}  {'status':10} {'expected cost':>15} {'P50 cost':>15} {'P90 cost':>15} "
+            f"{'risk':>7}  values")
     lines.append(head)
     for _, r in f.iterrows():
         risk = max(r["p_limestone_below_safety"] or 0, r["p_any_over_capacity"] or 0) \
             if r["status"] in ("optimal", "feasible") else None
         exp = "–" if pd.isna(r["expected_cost"]) else f"{r['expected_cost']:,.0f}"
+        p50 = "–" if pd.isna(r["cost_p50"]) else f"{r['cost_p50']:,.0f}"
         p90 = "–" if pd.isna(r["cost_p90"]) else f"{r['cost_p90']:,.0f}"
         rk = "–" if risk is None else f"{100 * risk:.1f} %"
         mark = "*" if r["case"] == result.winner.case else " "
-        lines.append(f" {mark}{int(r['case']):>4}  {str(r['status']):10} {exp:>15} {p90:>15} "
-                     f"{rk:>7}  {result.labels[int(r['case'])]}")
+        lines.append(f" {mark}{int(r['case']):>4}  {str(r['status']):10} {exp:>15} {p50:>15} "
+                     f"{p90:>15} {rk:>7}  {result.labels[int(r['case'])]}")
         if r["status"] not in ("optimal", "feasible") and r["message"]:
             lines.append(f"        {r['message']}")
-    lines.append(f"  (costs in {cur} over the horizon, mean and P90 over the futures; risk = the "
-                 "highest daily chance of limestone below safety or a store over capacity)")
+    lines.append(f"  (costs in {cur} over the horizon: the mean, P50 and P90 over the futures; "
+                 "risk = the highest daily chance of limestone below safety or a store over "
+                 "capacity)")
+    tail = f[(f["expected_cost"] > f["cost_p90"]) & f["status"].isin(("optimal", "feasible"))]
+    if len(tail):
+        lines.append("  An expected cost above the P90 means that a few futures cost far more than "
+                     "the rest (a store running empty or over capacity is priced at the "
+                     "workbook's penalties): judge those cases by their risk too.")
     lines.append("")
     lines.append(("Winner: " if result.winner.case is not None else "No winner: ")
                  + result.winner.reason + ".")
