@@ -8,7 +8,7 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from helpers import minimal_sheets, set_value, write_workbook
+from helpers import minimal_sheets, set_value, workbook_bytes, write_workbook
 from reagentplan import chemistry as chem
 from reagentplan.balance import (BalanceParams, Drivers, balance_frame, mass_balance,
                                  scenario_drivers)
@@ -206,3 +206,26 @@ def test_period_settings_change_purity_for_their_days(tmp_path):
     purity = frame["gypsum_purity_pct"].to_numpy()
     assert purity[0] == pytest.approx(94.73, abs=0.02)
     assert (purity[2:5] < 90).all() and purity[5] == pytest.approx(purity[0])
+
+
+def test_a_plan_over_the_permit_reports_it_as_a_breach():
+    """A removal typed as a fraction (0.97 for 97 %) puts every day over a 0.065 kg/GJ
+    limit: the breach names the permit, its dates and the SO2 over the limit, computed
+    here by hand from the balance (emitted − limit × heat input)."""
+    from reagentplan.schedule.permit import PERMIT, permit_breaches
+
+    s = minimal_sheets(days=10)
+    set_value(s, "plant", "so2_limit_kg_per_gj", None, 0.065)
+    set_value(s, "scrubber", "removal_pct", None, 60)
+    frame = balance_frame(load_scenario(workbook_bytes(s)))
+    assert frame["so2_over_limit"].all()
+    found = permit_breaches(frame, 60)
+    assert len(found) == 1 and found[0]["store"] == PERMIT
+    assert found[0]["first_date"] == f"{frame['date'].iloc[0]:%Y-%m-%d}"
+    assert found[0]["last_date"] == f"{frame['date'].iloc[-1]:%Y-%m-%d}"
+    by_hand = (frame["so2_emitted_t"] - 0.065 * frame["heat_input_gj"] / 1000).clip(lower=0).sum()
+    assert found[0]["tonnes"] == pytest.approx(by_hand, abs=0.1)
+    assert "60 % removal" in found[0]["cause"]
+    set_value(s, "scrubber", "removal_pct", None, 99)
+    set_value(s, "plant", "so2_limit_kg_per_gj", None, 5.0)
+    assert permit_breaches(balance_frame(load_scenario(workbook_bytes(s)))) == []

@@ -32,6 +32,10 @@ NOTE_FONT = Font(italic=True, color="555555")
 WATCH_FILL = PatternFill("solid", fgColor="F6E7B4")
 ALARM_FILL = PatternFill("solid", fgColor="E4A18B")
 OUTLOOK_FILL = PatternFill("solid", fgColor="EEF2F4")
+#: Plain headers of the Top risks sheet, in their order.
+TOP_RISK_HEADERS = {"store": "store", "what": "limit", "first_date": "from",
+                    "chance": "chance [%]", "remedy": "remedy",
+                    "chance_after": "chance after the remedy [%]"}
 #: Chart lines: the level in slate, safety stock in ochre, capacity in brick.
 LINE_COLOURS = ("2F4858", "C98B2B", "A8442A")
 
@@ -260,11 +264,18 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
         _line_chart(charts, f"{label} [t]", ws, 1, cols, n, f"A{row}", "t")
         row += 19
     if run.risk is not None and run.risk.top:
-        top = pd.DataFrame(run.risk.top)
+        top = pd.DataFrame(run.risk.top).rename(columns=TOP_RISK_HEADERS)
+        top = top[[c for c in TOP_RISK_HEADERS.values() if c in top.columns]]
         rws = wb.create_sheet("Top risks")
         _title(rws, "Where the plan is most likely to break a limit",
                f"Chance across {run.risk.n_futures} sampled futures with the plan held fixed.")
-        _frame_to_sheet(rws, top, start_row=4, widths={"remedy": 70, "store": 12})
+        _frame_to_sheet(rws, top, start_row=4,
+                        formats={"chance [%]": "0.0%", "chance after the remedy [%]": "0.0%"},
+                        widths={"remedy": 60, "store": 12, "limit": 18, "from": 12,
+                                "chance [%]": 12, "chance after the remedy [%]": 16})
+        for row in rws.iter_rows(min_row=5, max_row=4 + len(top)):
+            for cell in row:
+                cell.alignment = Alignment(wrap_text=True, vertical="top")
 
     # --- sales
     ws = wb.create_sheet("Sales")
@@ -337,7 +348,7 @@ def _assumptions(ws, run) -> None:
     ws.cell(r, 2, CAUTION).alignment = Alignment(wrap_text=True)
     ws.row_dimensions[r].height = 45
     r += 2
-    warnings = getattr(scn, "warnings", ())
+    warnings = [*getattr(scn, "warnings", ()), *getattr(run, "warnings", ())]
     ws.cell(r, 1, "Warnings: unusual inputs").font = Font(bold=True, color="9C2A00")
     if not warnings:
         ws.cell(r, 2, "none: every value is inside its usual range").font = NOTE_FONT
