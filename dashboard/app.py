@@ -60,12 +60,16 @@ def _load(workbook, work_dir: Path, demo_days: int):
     return load_scenario(workbook), Path(workbook).name
 
 
-def build_layout(run, meta: dict, scenario_id: str, plan_id: str):
-    """The page, already filled with the startup plan (no round trip on first load)."""
+def build_layout(run, meta: dict, scenario_id: str, plan_id: str, record_overview=None):
+    """The page, already filled with the startup plan (no round trip on first load);
+    with ``record_overview`` (a `reagentplan.record.overview.Overview`), a record tab."""
+    from .views import record as record_view
+
     scn = run.plan.scenario
+    all_tabs = TABS + ((("record", "Record & changes", record_view),) if record_overview is not None else ())
     tabs = [dcc.Tab(label=label, value=value, className="rp-tab", selected_className="rp-tab--selected",
                     children=view.layout(), id=f"tab-{value}")
-            for value, label, view in TABS]
+            for value, label, view in all_tabs]
     page = html.Div(className="rp-page", children=[
         dcc.Store(id="scenario-id", data=scenario_id),
         dcc.Store(id="plan-id", data=plan_id),
@@ -88,8 +92,8 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str):
         html.Div(f"reagentplan {__version__} · everything on this page is served from this "
                  "machine; nothing is fetched from elsewhere.", className="rp-foot"),
     ])
-    for _, _, view in TABS:
-        content = view.content(run)
+    for _, _, view in all_tabs:
+        content = view.content(record_overview if view is record_view else run)
         for key in view.OUTPUTS:
             prop = "figure" if key in view.FIGURE_OUTPUTS else "children"
             setattr(page[key], prop, content[key])
@@ -104,7 +108,8 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str):
 def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0,
                solver: str = "highs", time_limit: float = 60.0, firm_days: int = 56,
                risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
-               run=None, work_dir: str | os.PathLike | None = None) -> Dash:
+               run=None, work_dir: str | os.PathLike | None = None, db: str | None = None,
+               as_of=None) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
@@ -117,6 +122,10 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     run : an already planned `PlanRun` to start from instead (its scenario is used).
     work_dir : folder for the app's caches; a fresh temporary one (removed at exit)
         when not given.
+    db, as_of : the operations record (a database URL): the startup plan starts from its
+        state at the end of ``as_of`` (not stored as a version), and a record tab shows
+        the plan version in force, surveys, recorded movements against the plan, what
+        changed since the last plan and takes uploads of actuals.
 
     Raises
     ------
@@ -136,7 +145,30 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     options = PlanOptions(futures=futures, seed=seed, solver=solver, time_limit=time_limit,
                           firm_days=firm_days, risk_level=risk_level)
     t0 = time.perf_counter()
-    if run is None:
+    record_source = None
+    if db is not None:
+        from reagentplan.pipeline import run_plan_from_record
+        from reagentplan.record.db import connect
+
+        from .record_callbacks import RecordSource
+
+        scenario, source = _load(workbook_bytes_or_path, work, demo_days)
+        engine = connect(db)
+        try:
+            wb_path = workbook_bytes_or_path if isinstance(workbook_bytes_or_path, (str, os.PathLike)) \
+                else work / "demo_station.xlsx"
+            run = run or run_plan_from_record(wb_path, engine, as_of, scenario=scenario, store=False,
+                                              futures=futures, seed=seed, solver=solver,
+                                              time_limit=time_limit, firm_days=firm_days,
+                                              risk_level=risk_level)
+        finally:
+            engine.dispose()
+        import datetime as _dt
+
+        record_source = RecordSource(db, scenario, _dt.date.fromisoformat(run.summary_extra["as_of"]))
+        scenario = run.plan.scenario  # what-if re-plans start from the record's state too
+        source = f"{source} from the record as of {run.summary_extra.get('as_of')}"
+    elif run is None:
         scenario, source = _load(workbook_bytes_or_path, work, demo_days)
         run = options.run(scenario)
     else:
@@ -162,10 +194,16 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     prefix = app.config.requests_pathname_prefix or "/"
     app.index_string = INDEX_STRING.replace(
         "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
-    app.layout = build_layout(run, meta, scenario_id, plan_id)
+    app.layout = build_layout(run, meta, scenario_id, plan_id,
+                              record_source.overview() if record_source is not None else None)
     callbacks.register(app, store, options, manager)
+    if record_source is not None:
+        from .record_callbacks import register_record
+
+        register_record(app, record_source)
     app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=scenario_id,
-                                      plan_id=plan_id, work_dir=work, startup_seconds=seconds)
+                                      plan_id=plan_id, work_dir=work, startup_seconds=seconds,
+                                      record=record_source)
     return app
 
 

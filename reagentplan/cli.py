@@ -264,8 +264,14 @@ def _cmd_dashboard(args) -> int:
 
     what = args.workbook or "the demo station"
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
+    db = args.db or os.environ.get("REAGENTPLAN_DB")
+    if db is None and args.as_of is not None:
+        from .record.db import resolve_url
+
+        resolve_url(None)  # says that --as-of needs a database
     app = create_app(args.workbook, futures=args.futures, seed=args.seed, time_limit=args.time_limit,
-                     firm_days=args.firm_days, demo_days=args.demo_days, password=password)
+                     firm_days=args.firm_days, demo_days=args.demo_days, password=password,
+                     db=db, as_of=args.as_of)
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
     print(f"Caution: {CAUTION}")
@@ -411,6 +417,10 @@ def build_parser() -> argparse.ArgumentParser:
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--demo-days", type=int, default=365,
                    help="days of the demo station when no workbook is given (default %(default)s)")
+    _db_option(p)
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="with --db: plan from the record's state at the end of DATE (default: the "
+                        "day before the workbook's start_date) and show the record tab")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 
