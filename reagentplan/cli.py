@@ -78,6 +78,8 @@ def _cmd_plan(args) -> int:
         with staged_output(args.out) as tmp:
             written = write_run(run, tmp)
     print(describe_plan(run.plan))
+    if not (args.db or args.as_of or os.environ.get("REAGENTPLAN_DB")):
+        print(f"  contract months: {run.summary_extra.get('contract_months')}")
     print(describe_risk(run))
     print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     print(f"\nCaution: {CAUTION}")
@@ -201,7 +203,11 @@ def _cmd_diff(args) -> int:
                                       "two plans to compare: run `reagentplan plan WORKBOOK --db URL "
                                       "--as-of DATE` once more"), "The command")
         to_id = args.to_id if args.to_id is not None else ids[-1]
-        from_id = args.from_id if args.from_id is not None else max(i for i in ids if i < to_id)
+        earlier = [i for i in ids if i < to_id]
+        if args.from_id is None and not earlier:
+            raise RecordError(Problem(None, None, "--to", f"plan {to_id} is the first plan version",
+                                      "a later plan, or --from ID"), "The command")
+        from_id = args.from_id if args.from_id is not None else max(earlier)
         before, after = load_plan(engine, from_id), load_plan(engine, to_id)
     finally:
         engine.dispose()
@@ -440,6 +446,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("Interrupted; nothing was written.", file=sys.stderr)
         return 130
+    except Exception as exc:
+        if type(exc).__module__.startswith(("sqlalchemy", "psycopg", "alembic")):
+            first = (str(exc).strip().splitlines() or [""])[0]
+            print(f"The database refused the operation ({type(exc).__name__}: {first}). "
+                  "The transaction was rolled back; nothing was written.", file=sys.stderr)
+            return EXIT_BAD_INPUT
+        raise
 
 
 if __name__ == "__main__":
