@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import datetime as dt
 
-import pytest
 import sqlalchemy as sa
 
 from reagentplan.cli import main

@@ -12,7 +12,7 @@ import sqlalchemy as sa
 from reagentplan.cli import main
 from reagentplan.record.db import connect
 
-from record_data import D, day, record_sheets, scenario_path, write_record
+from record_data import day, record_sheets, scenario_path, write_record
 
 TODAY = "2030-03-03"  # the day before the minimal workbook's start
 

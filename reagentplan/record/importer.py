@@ -227,9 +227,7 @@ def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: _Colle
     lane_mode: list = [None] * len(frame)
     label: list = [""] * len(frame)
     for (p, m, mo, mat), idx in combos.groupby(["p", "m", "mo", "mat"], sort=False).indices.items():
-        first = frame.iloc[idx[0]]
         d = dt.date(2000, int(mo), 1)
-        rows = [(i, None, None) for i in idx]
         lane, problem = (resolve_out_lane(scenario, p, mat, m or None, d) if name == "shipments"
                          else resolve_supply_lane(scenario, p, m or None, d))
         if problem and problem[0] == "mode" and "several lanes" in problem[1]:
@@ -242,7 +240,6 @@ def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: _Colle
                 rows.append((i, one, prob))
         else:
             rows = [(i, lane, problem) for i in idx]
-        del first
         for i, one, prob in rows:
             if prob:
                 r = frame.iloc[i]
