@@ -179,7 +179,7 @@ def main() -> None:
             finally:
                 server.stop()
 
-        opts = dict(futures=args.futures, seed=0, time_limit=60.0)
+        opts = dict(futures=args.futures, time_limit=60.0)
 
         def best(fn, *a, **k):  # the least CPU of three runs: the machine is shared and noisy
             runs = [cpu_timed(fn, *a, **k) for _ in range(3)]

@@ -29,7 +29,7 @@ from reagentplan.record.importer import record_files
 from reagentplan.record.versions import act_first, diff_plans, load_plan
 from reagentplan.scenario import load_scenario
 
-SEED = 20270108
+RNG_STATE = 20270108
 #: Days each weekly re-plan covers [d].
 WEEKLY_HORIZON_DAYS = 90
 LATE_TRAIN_WEEK, LATE_DAYS = 3, 3
@@ -76,7 +76,7 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
     an invented record in ``folder`` (``record.db``, the weekly record files and diffs).
     The workbook's dispatch plan should cover the last re-plan (start + 7 x weeks +
     horizon), so no generation forecast is needed and the loop stays quick."""
-    rng = np.random.default_rng(SEED)
+    rng = np.random.default_rng(RNG_STATE)
     folder.mkdir(parents=True, exist_ok=True)
     engine = connect(f"sqlite:///{folder / 'record.db'}")
     upgrade(engine)
