@@ -74,13 +74,18 @@ def _load(workbook, work_dir: Path, demo_days: int):
     return load_scenario(workbook), Path(workbook).name
 
 
-def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None):
+def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None,
+                 record_overview=None):
     """The page, already filled with the startup plan (no round trip on first load);
-    ``study`` is a ``(study.csv frame, study.json)`` pair to show in the study tab."""
+    ``study`` is a ``(study.csv frame, study.json)`` pair to show in the study tab; with
+    ``record_overview`` (a `reagentplan.record.overview.Overview`), a record tab."""
+    from .views import record as record_view
+
     scn = run.plan.scenario
+    all_tabs = TABS + ((("record", "Record & changes", record_view),) if record_overview is not None else ())
     tabs = [dcc.Tab(label=label, value=value, className="rp-tab", selected_className="rp-tab--selected",
                     children=view.layout(), id=f"tab-{value}")
-            for value, label, view in TABS]
+            for value, label, view in all_tabs]
     tabs.append(dcc.Tab(label="Studies", value="study", className="rp-tab", id="tab-study",
                         selected_className="rp-tab--selected",
                         children=study_view.layout(*(study or (None, None)))))
@@ -106,8 +111,8 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None):
         html.Div(f"reagentplan {__version__} · everything on this page is served from this "
                  "machine; nothing is fetched from elsewhere.", className="rp-foot"),
     ])
-    for _, _, view in TABS:
-        content = view.content(run)
+    for _, _, view in all_tabs:
+        content = view.content(record_overview if view is record_view else run)
         for key in view.OUTPUTS:
             prop = "figure" if key in view.FIGURE_OUTPUTS else "children"
             setattr(page[key], prop, content[key])
@@ -125,7 +130,8 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,
                throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES,
-               study_dir: str | os.PathLike | None = None) -> Dash:
+               study_dir: str | os.PathLike | None = None, db: str | None = None,
+               as_of=None) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
@@ -146,6 +152,10 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     cache_bytes : most bytes of plans kept on disk (`CACHE_BYTES`); the oldest re-plans
         are dropped first, the startup plan is kept in memory.
     study_dir : a folder written by `reagentplan study`, shown in the Studies tab.
+    db, as_of : the operations record (a database URL): the startup plan starts from its
+        state at the end of ``as_of`` (not stored as a version), and a record tab shows
+        the plan version in force, surveys, recorded movements against the plan, what
+        changed since the last plan and takes uploads of actuals.
 
     Raises
     ------
@@ -172,7 +182,30 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
 
         study = read_study_table(study_dir)
     t0 = time.perf_counter()
-    if run is None:
+    record_source = None
+    if db is not None:
+        from reagentplan.pipeline import run_plan_from_record
+        from reagentplan.record.db import connect
+
+        from .record_callbacks import RecordSource
+
+        scenario, source = _load(workbook_bytes_or_path, work, demo_days)
+        engine = connect(db)
+        try:
+            wb_path = workbook_bytes_or_path if isinstance(workbook_bytes_or_path, (str, os.PathLike)) \
+                else work / "demo_station.xlsx"
+            run = run or run_plan_from_record(wb_path, engine, as_of, scenario=scenario, store=False,
+                                              futures=futures, seed=seed, solver=solver,
+                                              time_limit=time_limit, firm_days=firm_days,
+                                              risk_level=risk_level)
+        finally:
+            engine.dispose()
+        import datetime as _dt
+
+        record_source = RecordSource(db, scenario, _dt.date.fromisoformat(run.summary_extra["as_of"]))
+        scenario = run.plan.scenario  # what-if re-plans start from the record's state too
+        source = f"{source} from the record as of {run.summary_extra.get('as_of')}"
+    elif run is None:
         scenario, source = _load(workbook_bytes_or_path, work, demo_days)
         run = options.run(scenario)
     else:
@@ -201,13 +234,18 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     prefix = app.config.requests_pathname_prefix or "/"
     app.index_string = INDEX_STRING.replace(
         "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
-    app.layout = build_layout(run, meta, scenario_id, plan_id, study)
+    app.layout = build_layout(run, meta, scenario_id, plan_id, study,
+                              record_source.overview() if record_source is not None else None)
     callbacks.register(app, store, options, manager)
     study_view.register(app)
+    if record_source is not None:
+        from .record_callbacks import register_record
+
+        register_record(app, record_source)
     app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=scenario_id,
                                       plan_id=plan_id, work_dir=work, startup_seconds=seconds,
                                       warnings=tuple(getattr(scenario, "warnings", ())),
-                                      throttle=guard, origins=origins)
+                                      throttle=guard, origins=origins, record=record_source)
     return app
 
 

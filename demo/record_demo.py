@@ -29,9 +29,9 @@ from reagentplan.record.importer import record_files
 from reagentplan.record.versions import act_first, diff_plans, load_plan
 from reagentplan.scenario import load_scenario
 
-SEED = 20270108
-#: Days each weekly re-plan covers [d].
-WEEKLY_HORIZON_DAYS = 90
+RNG_STATE = 20270108
+#: Days each weekly re-plan covers, and of those planned day by day [d].
+WEEKLY_HORIZON_DAYS, WEEKLY_FIRM_DAYS = 60, 28
 LATE_TRAIN_WEEK, LATE_DAYS = 3, 3
 HIGH_SULFUR_WEEK, SULFUR_STEP_PCT = 4, 0.35
 SHORT_BUYER_WEEK, SHORT_BUYER, SHORT_SHARE = 5, "Larkspan Wallboard", 0.5
@@ -76,15 +76,16 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
     an invented record in ``folder`` (``record.db``, the weekly record files and diffs).
     The workbook's dispatch plan should cover the last re-plan (start + 7 x weeks +
     horizon), so no generation forecast is needed and the loop stays quick."""
-    rng = np.random.default_rng(SEED)
+    rng = np.random.default_rng(RNG_STATE)
     folder.mkdir(parents=True, exist_ok=True)
     engine = connect(f"sqlite:///{folder / 'record.db'}")
     upgrade(engine)
     scenario = load_scenario(workbook)
     start = scenario.plant.start_date
     as_of = start - dt.timedelta(days=1)
+    # daily for the first four weeks, weekly buckets after: the weekly loop stays quick
     opts = dict(futures=0, time_limit=time_limit, progress=progress, scenario=scenario,
-                horizon_days=horizon_days)
+                horizon_days=horizon_days, firm_days=WEEKLY_FIRM_DAYS)
     reports: list[WeekReport] = []
     try:
         # week 0: the trains the workbook lists as booked, and the opening survey

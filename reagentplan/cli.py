@@ -95,6 +95,8 @@ def _cmd_plan(args) -> int:
         with staged_output(args.out) as tmp:
             written = write_run(run, tmp)
     print(describe_plan(run.plan))
+    if not (args.db or args.as_of or os.environ.get("REAGENTPLAN_DB")):
+        print(f"  contract months: {run.summary_extra.get('contract_months')}")
     print(describe_risk(run))
     for line in run.warnings:
         print(f"Warning: {line}")
@@ -222,7 +224,11 @@ def _cmd_diff(args) -> int:
                                       "two plans to compare: run `reagentplan plan WORKBOOK --db URL "
                                       "--as-of DATE` once more"), "The command")
         to_id = args.to_id if args.to_id is not None else ids[-1]
-        from_id = args.from_id if args.from_id is not None else max(i for i in ids if i < to_id)
+        earlier = [i for i in ids if i < to_id]
+        if args.from_id is None and not earlier:
+            raise RecordError(Problem(None, None, "--to", f"plan {to_id} is the first plan version",
+                                      "a later plan, or --from ID"), "The command")
+        from_id = args.from_id if args.from_id is not None else max(earlier)
         before, after = load_plan(engine, from_id), load_plan(engine, to_id)
     finally:
         engine.dispose()
@@ -337,10 +343,16 @@ def _cmd_dashboard(args) -> int:
 
     what = args.workbook or "the demo station"
     print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
+    db = args.db or os.environ.get("REAGENTPLAN_DB")
+    if db is None and args.as_of is not None:
+        from .record.db import resolve_url
+
+        resolve_url(None)  # says that --as-of needs a database
     try:
         app = create_app(args.workbook, futures=args.futures, seed=args.seed,
                          time_limit=args.time_limit, firm_days=args.firm_days,
-                         demo_days=args.demo_days, password=password, study_dir=args.study)
+                         demo_days=args.demo_days, password=password, study_dir=args.study,
+                         db=db, as_of=args.as_of)
     except ValueError as exc:
         print(f"--study: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -529,6 +541,10 @@ def build_parser() -> argparse.ArgumentParser:
                         "X-Forwarded-For/-Host/-Proto headers are believed")
     p.add_argument("--study", default=None, metavar="DIR",
                    help="a folder written by 'reagentplan study', shown in the Studies tab")
+    _db_option(p)
+    p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
+                   help="with --db: plan from the record's state at the end of DATE (default: the "
+                        "day before the workbook's start_date) and show the record tab")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 
@@ -548,6 +564,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("Interrupted; nothing was written.", file=sys.stderr)
         return 130
+    except Exception as exc:
+        if type(exc).__module__.startswith(("sqlalchemy", "psycopg", "alembic")):
+            first = (str(exc).strip().splitlines() or [""])[0]
+            print(f"The database refused the operation ({type(exc).__name__}: {first}). "
+                  "The transaction was rolled back; nothing was written.", file=sys.stderr)
+            return EXIT_BAD_INPUT
+        raise
 
 
 if __name__ == "__main__":

@@ -91,15 +91,15 @@ def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_li
 
 def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = None, *,
                          scenario: Scenario | None = None, horizon_days: int | None = None,
-                         **options) -> PlanRun:
+                         store: bool = True, **options) -> PlanRun:
     """Plan a workbook from the operations record's state at the end of ``as_of``
     (default: the day before the workbook's start) and store the plan as a new version.
 
     The workbook gives what does not change week to week; the record gives the opening
     stock, the month-to-date contract tonnes, the booked orders and the histories
     (`reagentplan.record.asof`).  ``scenario`` is the workbook already loaded (else it
-    is read); ``horizon_days`` overrides the workbook's.  ``options`` are those of
-    `run_plan`.
+    is read); ``horizon_days`` overrides the workbook's; ``store`` = False plans without
+    storing a version (the dashboard's view).  ``options`` are those of `run_plan`.
     """
     from .output import run_summary
     from .record.asof import apply_asof, asof_state, load_record
@@ -121,6 +121,9 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     planned = apply_asof(scenario, state, horizon_days)
     run = run_plan(planned, **options)
     run.summary_extra.update(state.summary())
+    if not store:
+        run.summary_extra["plan_id"] = None
+        return run
     opts = {k: v for k, v in options.items() if k != "progress"} | {"horizon_days": horizon_days}
     plan_id = store_plan(engine, summary=run_summary(run), movements=run.plan.movements,
                          inventory=run.plan.inventory, workbook_bytes=data,

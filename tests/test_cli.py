@@ -111,3 +111,7 @@ def test_demo_runs(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "cost of the reorder-point policy" in text and "Caution" in text
     assert "limestone trains / trucks booked" in text
+    # the weekly loop through the invented record: eight weeks, each re-planned
+    assert "Weekly loop" in text and "week 8 as of" in text and "late train" in text
+    assert (out / "weekly" / "record.db").exists()
+    assert (out / "weekly" / "orders_changed_week_8.csv").exists()

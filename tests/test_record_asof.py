@@ -7,7 +7,6 @@ from __future__ import annotations
 import datetime as dt
 import json
 
-import numpy as np
 import pandas as pd
 import pytest
 from molmass import Formula

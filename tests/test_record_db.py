@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import datetime as dt
 
-import pytest
 import sqlalchemy as sa
 
 from reagentplan.cli import main
@@ -71,3 +70,38 @@ def test_no_database_given(monkeypatch, capsys):
     monkeypatch.delenv("REAGENTPLAN_DB", raising=False)
     assert main(["db", "upgrade"]) == 2
     assert "REAGENTPLAN_DB" in capsys.readouterr().err
+
+
+def test_shipped_old_schema_file_is_upgraded_and_used(tmp_path, capsys):
+    """tests/fixtures/record_rev0001.db was made by schema revision 0001 (facts only):
+    `db upgrade` adds the plan tables, keeps its facts, and the record plans from them."""
+    import shutil
+    from pathlib import Path
+
+    from record_data import scenario_path
+
+    db = tmp_path / "old.db"
+    shutil.copy(Path(__file__).with_name("fixtures") / "record_rev0001.db", db)
+    url = f"sqlite:///{db}"
+    engine = connect(url)
+    assert current_revision(engine) == "0001"
+    engine.dispose()
+    assert main(["record", str(tmp_path / "x.csv"), "--db", url]) == 2  # not upgraded yet
+    assert "db upgrade" in capsys.readouterr().err
+    assert main(["db", "upgrade", "--db", url]) == 0
+    assert "from revision 0001 to revision 0002" in capsys.readouterr().out
+    engine = connect(url)
+    with engine.connect() as conn:
+        rows = conn.execute(sa.text("SELECT store, level_t FROM stock_surveys ORDER BY store")).all()
+        who = conn.execute(sa.text("SELECT recorded_by FROM imports")).scalar()
+    engine.dispose()
+    assert [tuple(r) for r in rows] == [("gypsum", 900.0), ("limestone", 2500.0)] and who == "coordinator"
+    wb = scenario_path(tmp_path)
+    out = tmp_path / "plan"
+    assert main(["plan", str(wb), "--db", url, "--as-of", "2030-03-03", "--out", str(out),
+                 "--futures", "0"]) in (0, 1)
+    import json
+
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["opening_stock"]["limestone"]["survey_date"] == "2030-02-25"
+    assert summary["plan_id"] == 1

@@ -87,3 +87,43 @@ def test_two_imports_at_once_on_one_sqlite_file_both_land(tmp_path):
     outs = [p.communicate(timeout=180) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], outs
     assert _count(url) == 2 * 10 * 1000
+
+
+def test_sigkill_during_the_copy_into_postgresql_leaves_it_as_it_was(pg_server, tmp_path):
+    """The client killed while its COPY runs: the server rolls the transaction back."""
+    import psycopg
+
+    url = pg_server.new_database()
+    assert main(["db", "upgrade", "--db", url]) == 0
+    small = tmp_path / "first" / "generation_history.csv"
+    small.parent.mkdir()
+    assert main(["record", str(_generation_csv(small, 2, 30)), "--db", url]) == 0
+    big = _generation_csv(tmp_path / "generation_history.csv", 20, 3650, dt.date(2016, 1, 1))
+    dbname = url.rsplit("/", 1)[1]
+    watch = psycopg.connect(f"host=127.0.0.1 port={pg_server.port} user=postgres dbname={dbname}",
+                            autocommit=True)
+    proc = subprocess.Popen(_cmd("record", str(big), "--db", url), stdout=subprocess.DEVNULL,
+                            stderr=subprocess.DEVNULL)
+    killed = False
+    deadline = time.monotonic() + 120
+    try:
+        while time.monotonic() < deadline and proc.poll() is None:
+            busy = watch.execute("SELECT count(*) FROM pg_stat_activity WHERE datname = %s AND "
+                                 "state = 'active' AND query ILIKE 'COPY%%'", (dbname,)).fetchone()[0]
+            if busy:
+                os.kill(proc.pid, signal.SIGKILL)
+                killed = True
+                break
+            time.sleep(0.002)
+        proc.wait(timeout=60)
+        assert killed and proc.returncode == -signal.SIGKILL, "the import ended before it could be killed"
+        for _ in range(500):  # the server notices the lost client and ends its backend
+            if not watch.execute("SELECT count(*) FROM pg_stat_activity WHERE datname = %s AND pid <> "
+                                 "pg_backend_pid()", (dbname,)).fetchone()[0]:
+                break
+            time.sleep(0.01)
+    finally:
+        watch.close()
+    assert _count(url) == 60
+    assert main(["record", str(big), "--db", url]) == 0
+    assert _count(url) == 60 + 20 * 3650

@@ -12,7 +12,7 @@ import sqlalchemy as sa
 from reagentplan.cli import main
 from reagentplan.record.db import connect
 
-from record_data import D, day, record_sheets, scenario_path, write_record
+from record_data import day, record_sheets, scenario_path, write_record
 
 TODAY = "2030-03-03"  # the day before the minimal workbook's start
 
@@ -169,6 +169,17 @@ def test_survey_above_capacity_is_recorded_and_flagged(db, tmp_path, capsys):
     out = capsys.readouterr().out
     assert "above the capacity 5000 t" in out and "row 2" in out
     assert counts(db)["stock_surveys"] == 1
+
+
+def test_a_lab_result_typed_as_a_fraction_is_recorded_with_a_warning(db, tmp_path, capsys):
+    """The same usual ranges as the workbook (`reagentplan.schema.PLAUSIBLE`): sulfur
+    0.021 % where 2.1 % was meant is possible, so it is recorded, and flagged."""
+    sheets = {"coal_quality_history": [["date", "source", "sulfur_pct", "ash_pct", "hhv_mj_per_kg"],
+                                       [day(1), "Coal A", 0.021, 10.2, 24.8]]}
+    assert record(db, write_record(sheets, tmp_path / "lab.xlsx")) == 0
+    out = capsys.readouterr().out
+    assert "warning:" in out and "sheet 'coal_quality_history', row 2, column 'sulfur_pct'" in out
+    assert counts(db)["coal_quality_history"] == 1
 
 
 def test_unknown_sheet_and_unknown_column(db, tmp_path, capsys):

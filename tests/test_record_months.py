@@ -8,7 +8,6 @@ from __future__ import annotations
 import dataclasses
 import datetime as dt
 
-import numpy as np
 import pytest
 
 from reagentplan.scenario import load_scenario

@@ -65,9 +65,9 @@ class ImportResult:
 # --------------------------------------------------------------------------- reading
 
 
-def _csv_sheet(path: Path, label: str) -> RawSheet:
+def _csv_sheet(data: bytes, label: str) -> RawSheet:
     try:
-        text = path.read_text(encoding="utf-8-sig")
+        text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise RecordError(Problem(label, None, None, "the file is not UTF-8 text",
                                   "a CSV file saved as UTF-8"), "The record file") from None
@@ -86,24 +86,31 @@ def _csv_sheet(path: Path, label: str) -> RawSheet:
     return sheet
 
 
-def read_record_file(path: str | Path) -> tuple[dict[str, RawSheet], bytes]:
-    """The record sheets of one file, keyed by sheet name, and the file's bytes.
+def read_record_file(path: str | Path | tuple[str, bytes]) -> tuple[dict[str, RawSheet], bytes]:
+    """The record sheets of one file (a path, or ``(name, bytes)`` of an upload), keyed
+    by sheet name, and the file's bytes.
 
     Raises `RecordError` for a missing file, an unknown sheet or CSV name."""
-    path = Path(path)
     names = list(RECORD_SHEETS)
-    if not path.is_file():
-        raise RecordError(Problem(None, None, None, f"{path} does not exist",
-                                  "an .xlsx with record sheets or a .csv named after one"), "The record file")
-    data = path.read_bytes()
+    upload = isinstance(path, tuple)
+    if upload:
+        name, data = path
+        path = Path(Path(name).name or "upload.xlsx")
+    else:
+        path = Path(path)
+        if not path.is_file():
+            raise RecordError(Problem(None, None, None, f"{path} does not exist",
+                                      "an .xlsx with record sheets or a .csv named after one"),
+                              "The record file")
+        data = path.read_bytes()
     if path.suffix.lower() == ".csv":
         stem = path.stem.strip().lower()
         if stem not in RECORD_SHEETS:
             raise RecordError(Problem(path.name, None, None, f"a CSV named '{path.name}'{_did_you_mean(stem, names)}",
                                       "a CSV named after a record sheet: " + ", ".join(f"{n}.csv" for n in names)),
                               "The record file")
-        return {stem: _csv_sheet(path, path.name)}, data
-    raw = read_raw(path)
+        return {stem: _csv_sheet(data, path.name)}, data
+    raw = read_raw(data if upload else path)
     out = _Collector()
     sheets = {}
     for title, sheet in raw.items():
@@ -153,6 +160,8 @@ def parse_record(raws: list[tuple[str, dict[str, RawSheet]]], scenario: Scenario
         _check_frame(name, frame, scenario, today, out, warnings)
     if out.problems:
         raise RecordError(out.problems, "The record file")
+    # values possible but unusual (the loader's usual ranges, `reagentplan.schema.PLAUSIBLE`)
+    warnings = [str(w) for w in out.warnings] + warnings
     return frames, warnings
 
 
@@ -220,9 +229,7 @@ def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: _Colle
     lane_mode: list = [None] * len(frame)
     label: list = [""] * len(frame)
     for (p, m, mo, mat), idx in combos.groupby(["p", "m", "mo", "mat"], sort=False).indices.items():
-        first = frame.iloc[idx[0]]
         d = dt.date(2000, int(mo), 1)
-        rows = [(i, None, None) for i in idx]
         lane, problem = (resolve_out_lane(scenario, p, mat, m or None, d) if name == "shipments"
                          else resolve_supply_lane(scenario, p, m or None, d))
         if problem and problem[0] == "mode" and "several lanes" in problem[1]:
@@ -235,7 +242,6 @@ def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: _Colle
                 rows.append((i, one, prob))
         else:
             rows = [(i, lane, problem) for i in idx]
-        del first
         for i, one, prob in rows:
             if prob:
                 r = frame.iloc[i]
@@ -426,21 +432,23 @@ def _key_text(name: str, row) -> str:
     return ", ".join(f"{k} {_show(_plain(row[k]))}" for k in RECORD_SHEETS[name].key)
 
 
-def record_files(engine, paths: list[str | Path], *, scenario: Scenario | None = None,
+def record_files(engine, paths: list[str | Path | tuple[str, bytes]], *, scenario: Scenario | None = None,
                  replace: bool = False, today: dt.date | None = None,
                  who: str | None = None) -> ImportResult:
     """Record one or more files in one transaction (all of them or nothing).
 
-    Raises `RecordError` for bad input or conflicts (nothing written)."""
+    ``paths`` are files, or ``(name, bytes)`` of uploads.  Raises `RecordError` for bad
+    input or conflicts (nothing written)."""
     require_current(engine)
     raws, blobs = [], []
-    for p in paths:
+    names = [Path(p[0] if isinstance(p, tuple) else p).name for p in paths]
+    for p, n in zip(paths, names):
         sheets, data = read_record_file(p)
-        raws.append((Path(p).name, sheets))
+        raws.append((n, sheets))
         blobs.append(data)
     frames, warnings = parse_record(raws, scenario, today)
     digest = hashlib.sha256(b"".join(blobs)).hexdigest()
-    file_name = ", ".join(Path(p).name for p in paths)
+    file_name = ", ".join(names)
     result = ImportResult({n: SheetCount() for n in ORDER if n in frames}, warnings)
     with write_transaction(engine) as conn:
         plans = {}

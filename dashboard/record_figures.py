@@ -1,0 +1,54 @@
+"""Figures of the record tab: pure functions of `reagentplan.record.overview` frames."""
+
+from __future__ import annotations
+
+import pandas as pd
+import plotly.graph_objects as go
+
+from .figures import TEMPLATE, empty_figure
+from .style import MUTED, STORE_COLOURS, STORE_LABELS
+
+SURVEY = "#222222"
+
+
+def record_store_figure(pva: pd.DataFrame, store: str) -> go.Figure:
+    """A store's past: the level in the plan in force each day, the book level rolled
+    from the surveys, and the surveyed levels as points."""
+    label = STORE_LABELS.get(store, store)
+    p = pva[pva["store"] == store]
+    if p.empty:
+        return empty_figure(f"No record for the {label.lower()} yet", 300, label)
+    colour = STORE_COLOURS.get(store, "#446")
+    fig = go.Figure()
+    if p["planned_level_t"].notna().any():
+        fig.add_trace(go.Scatter(x=p["date"], y=p["planned_level_t"], mode="lines", name="plan in force",
+                                 line=dict(color=colour, width=2.2),
+                                 hovertemplate="planned %{y:,.0f} t<extra></extra>"))
+    fig.add_trace(go.Scatter(x=p["date"], y=p["book_level_t"], mode="lines", name="book (rolled from surveys)",
+                             line=dict(color=MUTED, width=1.6, dash="dash"),
+                             hovertemplate="book %{y:,.0f} t<extra></extra>"))
+    s = p[p["surveyed_level_t"].notna()]
+    fig.add_trace(go.Scatter(x=s["date"], y=s["surveyed_level_t"], mode="markers", name="surveyed",
+                             marker=dict(color=SURVEY, size=9, symbol="diamond"),
+                             hovertemplate="surveyed %{y:,.0f} t<extra></extra>"))
+    fig.update_layout(template=TEMPLATE, title=f"{label}: plan, book and survey [t]", height=320,
+                      hovermode="x unified", margin=dict(t=58, r=30))
+    return fig
+
+
+def weekly_figure(weekly: pd.DataFrame) -> go.Figure:
+    """Recorded tonnes in and out per week against the plan in force."""
+    if weekly.empty:
+        return empty_figure("No arrivals or shipments recorded yet", 300)
+    fig = go.Figure()
+    for (direction, material), g in weekly.groupby(["direction", "material"]):
+        name = f"{material.replace('_', ' ')} {'in' if direction == 'in' else 'out'}"
+        colour = STORE_COLOURS.get(material, "#446")
+        fig.add_trace(go.Bar(x=g["week"], y=g["recorded_t"], name=f"{name}: recorded", marker_color=colour,
+                             hovertemplate="recorded %{y:,.0f} t<extra></extra>"))
+        fig.add_trace(go.Scatter(x=g["week"], y=g["planned_t"], name=f"{name}: planned", mode="markers+lines",
+                                 line=dict(color=colour, dash="dot"), marker=dict(symbol="line-ew-open", size=14),
+                                 hovertemplate="planned %{y:,.0f} t<extra></extra>"))
+    fig.update_layout(template=TEMPLATE, title="Recorded against the plan in force, per week [t]", height=340,
+                      barmode="group", hovermode="x unified", margin=dict(t=58, r=30))
+    return fig

@@ -1,0 +1,90 @@
+"""The record: the plan version in force, plan against book against survey, recorded
+movements against the plan, what changed since the last plan, and uploads of actuals
+(through `reagentplan record`'s own validation and conflict handling)."""
+
+from __future__ import annotations
+
+import pandas as pd
+from dash import dcc, html
+
+from .. import record_figures
+from .common import GRAPH_CONFIG, card, fmt_date, fmt_t, table
+
+IN_FORCE = "record-in-force"
+STORES = "record-stores"
+WEEKLY = "record-weekly"
+CHANGES = "record-changes"
+DRIFT = "record-drift"
+UPLOAD = "record-upload"
+REPLACE = "record-replace"
+UPLOAD_MESSAGE = "record-upload-message"
+OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT)
+FIGURE_OUTPUTS = (WEEKLY,)
+
+
+def layout():
+    return html.Div(className="rp-view", children=[
+        html.P("What happened against what was planned: surveys (points), the book level rolled "
+               "from them, the plan in force each day; recorded arrivals and shipments per week; "
+               "what changed between the last two plans. Record actuals here or with "
+               "`reagentplan record`: the same checks, the same conflict rules.", className="rp-view-intro"),
+        html.Div(id=IN_FORCE, className="rp-headlines"),
+        html.Div(className="rp-grid", children=[
+            card(dcc.Upload(id=UPLOAD, className="rp-upload", multiple=False, accept=".xlsx,.csv",
+                            children=html.Div(["Drop a record file (.xlsx with record sheets, or "
+                                               "arrivals.csv, ...) or ", html.A("choose one")])),
+                 dcc.Checklist(id=REPLACE, options=[{"label": " replace values already recorded "
+                                                     "(old values kept in the audit trail)", "value": "replace"}],
+                               value=[]),
+                 html.Div(id=UPLOAD_MESSAGE, className="rp-msg"),
+                 title="Record actuals", wide=True),
+        ]),
+        html.Div(id=STORES, className="rp-grid"),
+        html.Div(className="rp-grid", style={"marginTop": "14px"}, children=[
+            card(dcc.Graph(id=WEEKLY, config=GRAPH_CONFIG, className="rp-graph"), wide=True),
+            card(html.Div(id=CHANGES), title="Changed since the last plan", wide=True),
+            card(html.Div(id=DRIFT), title="Book against survey (the balance's drift)", wide=True),
+        ]),
+    ])
+
+
+def content(ov) -> dict:
+    f = ov.in_force
+    if f is None:
+        head = html.Div("No plan version in the record yet: run `reagentplan plan WORKBOOK --db URL "
+                        "--as-of DATE`.", className="rp-headline")
+    else:
+        head = html.Div(className="rp-headline", id="record-plan-in-force", children=[
+            html.Div(f"Plan version {f['id']} in force", className="store"),
+            html.Div(f"as of {fmt_date(f['as_of'])}, {f['horizon_days']} days from {fmt_date(f['start_date'])}",
+                     className="when"),
+            html.Div(f"made {f['created_at']:%Y-%m-%d %H:%M} UTC; total cost {fmt_t(f['total_cost'])}",
+                     className="detail")])
+    pva = ov.review.plan_vs_actual
+    stores = [card(dcc.Graph(id=f"record-store-{s}", config=GRAPH_CONFIG, className="rp-graph",
+                             figure=record_figures.record_store_figure(pva, s)))
+              for s in ("limestone", "gypsum", "fly_ash", "bottom_ash")
+              if not pva.empty and s in set(pva["store"])]
+    if ov.compared is None:
+        changes = html.Div("One plan version or none: nothing to compare yet.", className="rp-empty")
+    else:
+        a, b = ov.compared
+        counts = ov.changes.groupby(["direction", "change"]).size() if len(ov.changes) else pd.Series(dtype=int)
+        summary = "; ".join(f"{'orders' if d == 'in' else 'haul-outs'} {c}: {n}" for (d, c), n in counts.items())
+        changes = html.Div([
+            html.Div(f"Plan {a} → plan {b}: {summary or 'no order changed'}.", id="record-change-summary"),
+            html.H5("Act on these first (this week)"),
+            table(ov.act_first, [
+                ("change", "Change", str, False), ("lane", "Lane", str, False),
+                ("date", "Day", fmt_date, False), ("loads_before", "Loads before", str, True),
+                ("loads_after", "Loads after", str, True), ("order_by", "Order by", fmt_date, False)],
+                empty="Nothing to place, cancel or move this week.", table_id="record-act-first", limit=15)])
+    drift = table(ov.review.by_store, [
+        ("store", "Store", str, False), ("surveys", "Surveys", str, True),
+        ("mean_drift_t", "Mean book − survey [t]", fmt_t, True),
+        ("mean_abs_drift_t", "Mean |book − survey| [t]", fmt_t, True),
+        ("drift_t_per_day", "Drift [t/day]", lambda x: f"{x:+,.1f}", True),
+        ("drift_pct_of_flow", "% of tonnes used or made", lambda x: f"{x:+.1f} %", True)],
+        empty="No store has two surveys yet.", table_id="record-drift-table")
+    return {IN_FORCE: [head], STORES: stores, WEEKLY: record_figures.weekly_figure(ov.weekly),
+            CHANGES: changes, DRIFT: drift}

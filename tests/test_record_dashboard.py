@@ -1,0 +1,92 @@
+"""The dashboard with the record: the record tab (plan in force, surveys as points,
+recorded movements against the plan, changes since the last plan) and uploads of
+actuals through the record's own path (same validation, same conflicts)."""
+
+from __future__ import annotations
+
+import base64
+import datetime as dt
+
+import sqlalchemy as sa
+
+from dashboard.app import create_app
+from dashboard.record_callbacks import record_upload
+from dashboard.views import record as R
+from reagentplan.cli import main
+from reagentplan.record.db import connect
+
+from helpers import START
+from record_data import day, record_sheets, scenario_path, write_record
+
+AS_OF = START - dt.timedelta(days=1)
+
+
+def _upload(text: str, name: str) -> dict:
+    return {"filename": name,
+            "contents": "data:text/csv;base64," + base64.b64encode(text.encode()).decode()}
+
+
+def _count(url: str, table: str) -> int:
+    engine = connect(url)
+    with engine.connect() as conn:
+        n = conn.execute(sa.text(f"SELECT COUNT(*) FROM {table}")).scalar()
+    engine.dispose()
+    return n
+
+
+def _find(component, prop_id: str):
+    if getattr(component, "id", None) == prop_id:
+        return component
+    children = getattr(component, "children", None)
+    if children is None:
+        return None
+    for child in children if isinstance(children, (list, tuple)) else [children]:
+        if hasattr(child, "to_plotly_json"):
+            hit = _find(child, prop_id)
+            if hit is not None:
+                return hit
+    return None
+
+
+def test_record_tab_and_uploads(tmp_path):
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    wb = scenario_path(tmp_path)
+    assert main(["db", "upgrade", "--db", url]) == 0
+    assert main(["record", str(write_record(record_sheets(), tmp_path / "w.xlsx")), "--db", url,
+                 "--scenario", str(wb), "--as-of", f"{AS_OF}"]) == 0
+    for as_of in (AS_OF - dt.timedelta(days=3), AS_OF):
+        assert main(["plan", str(wb), "--db", url, "--as-of", f"{as_of}", "--out",
+                     str(tmp_path / f"p{as_of}"), "--futures", "0"]) in (0, 1)
+    app = create_app(str(wb), db=url, futures=0, time_limit=20, work_dir=tmp_path / "app")
+    layout = app.layout
+    head = _find(layout, "record-plan-in-force")
+    assert head is not None and "Plan version 2 in force" in str(head.children)
+    fig = _find(layout, "record-store-limestone").figure
+    surveyed = [t for t in fig.data if t.name == "surveyed"][0]
+    assert list(surveyed.y) == [2500.0]  # the recorded survey, as a point
+    assert [t.name for t in fig.data][:2] == ["plan in force", "book (rolled from surveys)"]
+    assert _find(layout, "record-change-summary") is not None
+    weekly = _find(layout, R.WEEKLY).figure
+    assert any(t.name == "limestone in: recorded" for t in weekly.data)
+    source = app.reagentplan.record
+    # a good upload lands, through the record's own path
+    msg, ok = record_upload(source, _upload(f"date,store,level_t\n{AS_OF},gypsum,1300\n",
+                                            "stock_surveys.csv"), False)
+    assert ok and "1 added" in msg
+    assert _count(url, "stock_surveys") == 3
+    # the same again: nothing new
+    msg, ok = record_upload(source, _upload(f"date,store,level_t\n{AS_OF},gypsum,1300\n",
+                                            "stock_surveys.csv"), False)
+    assert ok and "Nothing new" in msg
+    # a conflict is refused whole and named, then accepted with replace
+    conflict = _upload(f"date,store,level_t\n{AS_OF},gypsum,1250\n", "stock_surveys.csv")
+    msg, ok = record_upload(source, conflict, False)
+    assert not ok and "row 2" in msg and "1300" in msg and "1250" in msg and "Nothing was recorded" in msg
+    msg, ok = record_upload(source, conflict, True)
+    assert ok and "1 replaced" in msg
+    assert _count(url, "replaced_values") == 1
+    # bad input: named like the command line, nothing written
+    msg, ok = record_upload(source, _upload(f"date,supplier,loads,tonnes,ticket\n{day(3)},Quarry W,1,990,X1\n",
+                                            "arrivals.csv"), False)
+    assert not ok and "sheet 'arrivals.csv', row 2, column 'supplier'" in msg and "did you mean 'Quarry Q'" in msg
+    assert _count(url, "arrivals") == 2
