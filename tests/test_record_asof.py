@@ -94,6 +94,24 @@ def test_opening_stock_rolled_forward_by_hand(recorded):
     assert set(labs["date"]) == {pd.Timestamp(day(1)), pd.Timestamp(day(4))}
     assert planned.storage["limestone"].initial_t == state.opening["limestone"].level_t
     assert planned.scrubber.limestone_caco3_pct == state.opening_caco3_pct
+    # shipments and arrivals were recorded after the surveys: nothing assumed about them
+    assert not any("none assumed" in a for a in state.assumptions)
+
+
+def test_a_roll_with_no_movements_recorded_says_so(db_url, tmp_path):
+    """Only a survey: the book rolls production forward with no haul-outs, and says so."""
+    assert main(["db", "upgrade", "--db", db_url]) == 0
+    wb = scenario_path(tmp_path)
+    full = record_sheets()
+    sheets = {k: full[k] for k in ("stock_surveys", "generation_history")}
+    assert main(["record", str(write_record(sheets, tmp_path / "s.xlsx")), "--db", db_url,
+                 "--as-of", f"{AS_OF}"]) == 0
+    engine = connect(db_url)
+    state = asof_state(load_scenario(wb), load_record(engine), AS_OF)
+    engine.dispose()
+    said = [a for a in state.assumptions if "none assumed" in a]
+    assert any(a.startswith("gypsum: no shipments recorded") for a in said)
+    assert any(a.startswith("limestone: no arrivals recorded") for a in said)
 
 
 def test_plan_from_the_record_diff_and_review(recorded, tmp_path, capsys):
@@ -138,7 +156,10 @@ def test_plan_from_the_record_diff_and_review(recorded, tmp_path, capsys):
     assert len(moved) == 1
     assert moved["date"].iloc[0] == pd.Timestamp(START + dt.timedelta(days=6))
     assert moved["date_before"].iloc[0] == pd.Timestamp(START + dt.timedelta(days=3))
-    assert "Act on these first" in printed and "Quarry Q rail" in printed
+    # the move came from the record (PO-1 re-booked for a later day): nothing to act on
+    assert "came from orders booked, moved or cancelled in the record" in printed
+    act = printed.split("Act on these first", 1)[1] if "Act on these first" in printed else ""
+    assert "move   Quarry Q rail" not in act
     assert main(["review", "--db", url, "--out", str(tmp_path / "review")]) == 0
     pva = pd.read_csv(tmp_path / "review" / "plan_vs_actual.csv", parse_dates=["date"])
     assert list(pva.columns[:5]) == ["date", "store", "planned_level_t", "book_level_t", "surveyed_level_t"]

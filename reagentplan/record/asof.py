@@ -280,6 +280,16 @@ def asof_state(scenario: Scenario, record: RecordFrames, as_of: dt.date) -> AsOf
         if is_workbook:
             assumptions.append(f"{store}: never surveyed; rolled from the workbook's initial level on "
                                f"{sdate:%Y-%m-%d}")
+        days = int((ts - sdate).days)
+        if days > 0:
+            moved = (rec.arrivals if store == "limestone"
+                     else rec.shipments[rec.shipments["material"] == store])
+            moved = moved[(moved["date"] > sdate) & (moved["date"] <= ts)]
+            if moved.empty:
+                what = "arrivals" if store == "limestone" else "shipments"
+                assumptions.append(f"{store}: no {what} recorded from {sdate + pd.Timedelta(days=1):%Y-%m-%d} "
+                                   f"to {as_of:%Y-%m-%d}; none assumed in the book level (record them "
+                                   "if there were any)")
         if level < 0:
             assumptions.append(f"{store}: the book level rolled to {level:.0f} t; taken as 0 t (survey it)")
             level = 0.0

@@ -153,7 +153,7 @@ def plans_in_force(engine) -> pd.DataFrame:
 # --------------------------------------------------------------------------- diff
 
 DIFF_COLUMNS = ["lane", "date", "loads_before", "loads_after", "order_by", "change", "date_before",
-                "direction", "material", "tonnes_before", "tonnes_after", "booked"]
+                "direction", "material", "tonnes_before", "tonnes_after", "booked", "booked_before"]
 
 
 def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
@@ -187,6 +187,7 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
     m["direction"] = m["direction_after"].fillna(m["direction_before"])
     m["material"] = m["material_after"].fillna(m["material_before"])
     m["booked"] = m["booked_after"].fillna(False).astype(bool)
+    m["booked_before"] = m["booked_before"].fillna(False).astype(bool)
     m["change"] = np.where(m["loads_before"] == 0, "added",
                            np.where(m["loads_after"] == 0, "cancelled", "changed"))
     m["date_before"] = pd.NaT
@@ -204,7 +205,7 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
                 cancelled.remove(c)
                 c["change"] = "_paired"
                 r.update(change="moved", date_before=c["date"], loads_before=c["loads_before"],
-                         tonnes_before=c["tonnes_before"])
+                         tonnes_before=c["tonnes_before"], booked_before=c["booked_before"])
         rows += [r for r in g if r["change"] != "_paired"]
     out = pd.DataFrame(rows, columns=list(m.columns))
     out = out[DIFF_COLUMNS].sort_values(["date", "lane"]).reset_index(drop=True)
@@ -216,12 +217,18 @@ def diff_plans(before: StoredPlan, after: StoredPlan) -> pd.DataFrame:
 def act_first(diff: pd.DataFrame, as_of: dt.date | None, within: int = ACT_WITHIN_DAYS) -> pd.DataFrame:
     """The lines to act on this week: inbound orders whose order-by day falls within
     ``within`` days of the later plan's as-of day (to place, cancel or move), then
-    haul-outs added or cancelled in those days."""
+    haul-outs added or cancelled in those days.
+
+    A change the record itself made (an order booked, moved or cancelled there: booked
+    in the later plan for an added or moved line, in the earlier one for a cancelled
+    line) is already known to the coordinator and is left out."""
     if diff.empty or as_of is None:
         return diff.iloc[0:0]
     t1 = pd.Timestamp(as_of) + pd.Timedelta(days=within)
+    recorded = ((diff["booked"] & diff["change"].isin(["added", "moved"]))
+                | (diff["booked_before"] & (diff["change"] == "cancelled")))
     inbound = diff[(diff["direction"] == "in") & ((diff["order_by"] <= t1) | (diff["date"] <= t1))
-                   & ~(diff["booked"] & (diff["change"] == "added"))]  # booked already: nothing to place
+                   & ~recorded]
     outbound = diff[(diff["direction"] == "out") & diff["change"].isin(["added", "cancelled"])
                     & (diff["date"] <= t1)]
     return pd.concat([inbound.sort_values(["order_by", "lane"]), outbound.sort_values(["date", "lane"])])
@@ -246,6 +253,11 @@ def describe_diff(before: StoredPlan, after: StoredPlan, diff: pd.DataFrame, fir
             lines.append(f"  ... and {len(first) - 15} more in orders_changed.csv")
     else:
         lines.append("Nothing to place, cancel or move this week.")
+    known = int(((diff["booked"] & diff["change"].isin(["added", "moved"]))
+                 | (diff["booked_before"] & (diff["change"] == "cancelled"))).sum()) if len(diff) else 0
+    if known:
+        lines.append(f"({known} change(s) came from orders booked, moved or cancelled in the record "
+                     "itself: nothing to do for them.)")
     dt_cost = after.summary.get("total_cost", 0) - before.summary.get("total_cost", 0)
     lines.append(f"Total cost {before.summary.get('total_cost', 0):,.0f} -> "
                  f"{after.summary.get('total_cost', 0):,.0f} ({dt_cost:+,.0f}).")
