@@ -68,6 +68,27 @@ def describe_balance(s: Scenario, frame: pd.DataFrame) -> str:
     return "\n".join(out)
 
 
+#: Cost items that are the workbook's penalty weights, not money paid: the price the plan
+#: puts on a tonne below safety stock, above capacity, short of the scrubber's need or
+#: shipped off-spec.  Everything else (stone, freight, sales, landfill, contract
+#: shortfalls at the contract's own rate, end-stock value) is cash.
+PENALTY_ITEMS = ("shortage_penalty", "overflow_penalty", "empty_penalty", "quality_penalty")
+
+
+def cost_split(costs: dict[str, float]) -> tuple[float, float]:
+    """(cash, penalty weights) of a plan's cost items [money]."""
+    penalty = sum(v for k, v in costs.items() if k in PENALTY_ITEMS)
+    return sum(costs.values()) - penalty, penalty
+
+
+def describe_breach(b: dict) -> str:
+    """One breach in words: what, where, when, how much and why."""
+    unit = "t SO2 over the limit" if b["store"] == "so2_permit" else "t"
+    when = (b["first_date"] if b["first_date"] == b["last_date"]
+            else f"{b['first_date']} to {b['last_date']}")
+    return f"{b['store']}: {b['kind']} {when}, {b['tonnes']:,.1f} {unit}; cause: {b['cause']}"
+
+
 def describe_plan(result) -> str:
     """The plan against the baseline, the bookings and the breaches, for the terminal."""
     s = result.summary()
@@ -77,6 +98,10 @@ def describe_plan(result) -> str:
              f"{(s['gap'] or 0) * 100:.2f} %, {s['solve_seconds']:.1f} s)",
              f"  total cost {s['total_cost']:>14,.0f} {cur}   (reorder-point baseline "
              f"{s['baseline_total_cost']:,.0f} {cur}; both include the end-stock value)"]
+    cash, pen = cost_split(s["costs"])
+    bcash, bpen = cost_split(s["baseline_costs"])
+    lines.append(f"    of which cash {cash:,.0f} {cur} and penalty weights {pen:,.0f} {cur} "
+                 f"(baseline: cash {bcash:,.0f}, penalty weights {bpen:,.0f})")
     inbound = mv[mv["direction"] == "in"]
     for lane, g in inbound.groupby("lane"):
         lines.append(f"  {lane:40} {int(g['loads'].sum()):>5} loads {g['tonnes'].sum():>12,.0f} t")
@@ -87,8 +112,7 @@ def describe_plan(result) -> str:
     if s["breaches"]:
         lines.append(f"  {len(s['breaches'])} limit(s) broken:")
         for b in s["breaches"][:8]:
-            lines.append(f"    - {b['store']}: {b['kind']} {b['first_date']} to {b['last_date']}, "
-                         f"{b['tonnes']:,.0f} t; cause: {b['cause']}")
+            lines.append(f"    - {describe_breach(b)}")
     else:
         lines.append("  no limit broken in the planned (median) case")
     return "\n".join(lines)
@@ -119,12 +143,17 @@ def describe_demo(run, out, files: list[str]) -> str:
     trains = int(inbound.loc[inbound["lane"].str.contains(" rail"), "loads"].sum())
     trucks = int(inbound.loc[inbound["lane"].str.contains(" truck"), "loads"].sum())
     saving = s["baseline_total_cost"] - s["total_cost"]
+    cash, pen = cost_split(s["costs"])
+    bcash, bpen = cost_split(s["baseline_costs"])
     lines = [f"Demo station: {plan.scenario.plant.name}, {plan.scenario.plant.horizon_days} days "
              f"from {plan.scenario.plant.start_date:%Y-%m-%d}",
              "",
              f"  {'cost of the plan':34} {s['total_cost']:>14,.0f} {cur}",
              f"  {'cost of the reorder-point policy':34} {s['baseline_total_cost']:>14,.0f} {cur}",
              f"  {'saving':34} {saving:>14,.0f} {cur}",
+             f"  {'  of which cash':34} {bcash - cash:>14,.0f} {cur}",
+             f"  {'  of which penalty weights':34} {bpen - pen:>14,.0f} {cur}"
+             "   (the workbook's price on a tonne below safety or over capacity)",
              f"  {'limestone trains / trucks booked':34} {trains:>8} / {trucks}",
              ""]
     out_rows = mv[mv["direction"] == "out"]
@@ -136,6 +165,10 @@ def describe_demo(run, out, files: list[str]) -> str:
         lines.append(f"  {material:12} {sold:>12,.0f} {land:>15,.0f}")
     lines.append("")
     lines.append(f"  limits broken in the planned case: {len(s['breaches'])}")
+    for b in s["breaches"][:5]:
+        lines.append(f"    - {describe_breach(b)}")
+    if len(s["breaches"]) > 5:
+        lines.append(f"    ... and {len(s['breaches']) - 5} more in summary.json")
     lines.append(describe_risk(run))
     lines.append("")
     lines.append(f"Files in {out}: {', '.join(files)}")

@@ -29,8 +29,15 @@ def run_warnings(run) -> list[dict]:
 def plan_summary(result) -> dict:
     """A `PlanResult`'s summary with the scenario's ``warnings`` (a list, empty when
     every value is usual)."""
+    from ..summary import cost_split
+
     summary = result.summary()
     summary["warnings"] = input_warnings(result.scenario)
+    for key, costs in (("", summary.get("costs")), ("baseline_", summary.get("baseline_costs"))):
+        if costs:
+            cash, penalty = cost_split(costs)
+            summary[f"{key}cash_cost"] = round(cash, 2)
+            summary[f"{key}penalty_cost"] = round(penalty, 2)
     return summary
 
 
