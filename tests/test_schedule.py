@@ -121,7 +121,7 @@ def test_demo_baseline_also_keeps_the_rules(demo_path):
 
     mv = movements_frame(scn, r.lanes, r.baseline, 56)
     inv = inventory_frame(scn, r.baseline_evaluation)
-    errors = check_plan(scn, mv.astype({"date": str}), r.balance, inv, r.baseline_evaluation.breaches)
+    errors = check_plan(scn, mv.astype({"date": str}), r.baseline_balance, inv, r.baseline_evaluation.breaches)
     assert errors == []
 
 

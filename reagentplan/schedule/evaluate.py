@@ -88,7 +88,7 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     month_index, months, _ = horizon_months(scenario.dates)
     costs = dict.fromkeys(["limestone_purchase", "freight", "byproduct_sales", "landfill",
                            "shortage_penalty", "overflow_penalty", "empty_penalty",
-                           "contract_penalty", "end_stock_value"], 0.0)
+                           "contract_penalty", "quality_penalty", "end_stock_value"], 0.0)
     month_totals: dict[str, np.ndarray] = {}
     breaches: list[dict] = []
     for lane in lanes:
@@ -99,6 +99,12 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             costs["freight"] += float(lane.cost_per_load * q.sum())
         elif lane.kind == SALE:
             costs["byproduct_sales"] += float(lane.cost_per_t * t.sum())
+            bad = off_spec_days(lane, balance) & (t > 0)
+            if bad.any():
+                costs["quality_penalty"] += float(p.overflow_penalty_per_t * t[bad].sum())
+                for a, b in _runs(bad):
+                    breaches.append(_breach(f"{lane.name} (quality)", scenario.dates, a, b,
+                                            t[a:b + 1].sum(), "shipped outside the buyer's limits"))
         else:
             costs["landfill"] += float(lane.cost_per_t * t.sum())
         totals = np.bincount(month_index, weights=t, minlength=len(months))
@@ -122,12 +128,26 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
     for a, b in _runs(unmet > 1e-6):
         breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
-    end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    if scenario.quality_coupled:
+        from .model import end_caco3_value
+
+        caco3_end = float(balance["limestone_caco3_pct"].iloc[-1]) / 100
+        end_value = -end_caco3_value(scenario, None) * levels["limestone"][-1] * caco3_end
+    else:
+        end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in levels:
             end_value += cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
     costs["end_stock_value"] = float(end_value)
     return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals)
+
+
+def off_spec_days(lane: Lane, balance: pd.DataFrame) -> np.ndarray:
+    """Days on which the day's product breaks one of a buyer's quality limits [bool]."""
+    from .lanes import quality_ok
+
+    ok, _why = quality_ok(lane.source, balance)
+    return ~ok
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:

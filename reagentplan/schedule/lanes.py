@@ -80,8 +80,11 @@ def _monthly(limit: float | None, share: np.ndarray, months: list[pd.Period],
     return np.where(covered, limit * share, np.nan)
 
 
-def quality_ok(lane: BuyerLane, balance: pd.DataFrame) -> tuple[np.ndarray, list[str]]:
-    """Days on which the day's product meets the buyer's limits, and the failing limit."""
+def quality_ok(lane: BuyerLane, balance: pd.DataFrame, *, purity: bool = True) -> tuple[np.ndarray, list[str]]:
+    """Days on which the day's product meets the buyer's limits, and the failing limit.
+
+    ``purity`` false leaves the gypsum purity out: with stone of several qualities the
+    purity follows the plan's own silo, and the model (`quality.py`) decides it."""
     n = len(balance)
     ok = np.ones(n, dtype=bool)
     why = [""] * n
@@ -95,7 +98,7 @@ def quality_ok(lane: BuyerLane, balance: pd.DataFrame) -> tuple[np.ndarray, list
                   ("max_so3_pct", "fly_ash_so3_pct", "SO3", 1)]
     for attr, column, label, sign in checks:
         limit = getattr(lane, attr)
-        if limit is None:
+        if limit is None or (attr == "min_purity_pct" and not purity):
             continue
         value = balance[column].to_numpy(dtype=float)
         # a day with no product (NaN) has nothing of its own to fail: stock from earlier days
@@ -139,7 +142,7 @@ def build_lanes(scenario: Scenario, balance: pd.DataFrame) -> list[Lane]:
                           _monthly(s.max_t_per_month, share, months, s.months), np.inf, tuple(why), s))
     for b in scenario.buyers:
         open_, why = _calendar_why(scenario, b)
-        q_ok, q_why = quality_ok(b, balance)
+        q_ok, q_why = quality_ok(b, balance, purity=not scenario.quality_coupled)
         why = [w or (q if not q_ok[i] else "") for i, (w, q) in enumerate(zip(why, q_why))]
         lanes.append(Lane(SALE, b.material, b.buyer, b.mode, b.lane, b.load_t, b.max_loads_per_day,
                           open_ & q_ok, -b.price_per_t, 0.0, 0,

@@ -76,7 +76,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                firm: dict[str, tuple[np.ndarray, np.ndarray]], guard: dict[str, np.ndarray],
                *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
                gap: float = 1e-5, hint: DailyPlan | None = None,
-               progress: bool = False) -> SolveOutcome:
+               progress: bool = False, chem=None, around: DailyPlan | None = None) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -84,8 +84,12 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     n = len(scenario.dates)
     t0 = time.perf_counter()
     periods = build_periods(scenario.dates, firm_days)
+    lin = None
+    if chem is not None:
+        lin = chem.linearisation(lanes, around if around is not None else hint, periods,
+                                 _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
-                           hint, progress=progress, label=f"plan ({solver})")
+                           hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
     if len(periods) < n:
         daily = [(d, d) for d in range(n)]
@@ -93,13 +97,27 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                               if b > a] for lane in lanes}
         left = max(time_limit - (time.perf_counter() - t0), 5.0)
         try:
+            lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
-                                    plan, totals, progress=progress, label="outlook to days")
+                                    plan, totals, progress=progress, label="outlook to days",
+                                    chem=chem, lin=lin2)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
     return SolveOutcome(plan, solver, first["status"], first["objective"], first["bound"],
                         first["gap"], time.perf_counter() - t0)
+
+
+def _silo_floor(scenario: Scenario) -> float:
+    """Smallest silo CaCO3 [t] the linearisation divides by (a tenth of the safety stock,
+    at least 1 t), so a nearly empty silo does not blow up the first-order term."""
+    return max(0.1 * scenario.storage["limestone"].safety_t, 1.0)
+
+
+def end_caco3_value(scenario: Scenario, chem) -> float:
+    """Money per tonne of CaCO3 left in the silo at the end [money/t]: the cheapest
+    delivered cost of a tonne of CaCO3 over the supply lanes."""
+    return min(s.delivered_cost_per_t / (scenario.stone_caco3_pct(s) / 100) for s in scenario.suppliers)
 
 
 class SolveProgress:
@@ -168,7 +186,7 @@ class SolveProgress:
 
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
-                   label: str = "solving") -> dict:
+                   label: str = "solving", chem=None, lin=None) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
     dates = scenario.dates
     n = len(dates)
@@ -208,6 +226,30 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                             if ub[k] > 0 else None for k in range(P)]
             unit_cost = lane.cost_per_t
         cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
+
+    # ---- stone quality: the silo's stone per CaCO3, u, per period (quality.py)
+    u_var, quality_rows = None, []
+    if chem is not None:
+        u_top = 2.0 * chem.u_hi
+        u_var = [m.add_variable(lb=0.5 * chem.u_lo, ub=u_top, name=f"u[{k}]") for k in range(P)]
+        for lane in lanes:
+            limit = getattr(lane.source, "min_purity_pct", None)
+            if lane.kind != SALE or lane.material != "gypsum" or limit is None:
+                continue
+            u_max = chem.u_max(limit)
+            for k, v in enumerate(x[lane.name]):
+                if v is None:
+                    continue
+                a, b = periods[k]
+                um = float(np.min(u_max[a:b + 1]))
+                if um >= u_top:
+                    continue
+                if um < chem.u_lo:
+                    v.upper_bound = 0.0
+                    continue
+                z = m.add_binary_variable(name=f"q[{lane.name},{k}]")
+                m.add_linear_constraint(v <= v.upper_bound * z)
+                quality_rows.append((k, um, z))
 
     def tonnes(lane: Lane, k: int):
         v = x[lane.name][k]
@@ -256,6 +298,14 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             flow = per_period(balance[PRODUCTION[store]].to_numpy(float))
             ins = []
             outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
+        flow_expr = None
+        if chem is not None and store == "gypsum":
+            # wet cake = (cake without stone inerts + scrubber CaCO3 need × (u − 1)) / (1 − moisture)
+            base = per_period(chem.cake_base * chem.wet_factor)
+            slope = per_period(chem.need_gypsum * chem.wet_factor)
+            flow_expr = [float(base[k]) + float(slope[k]) * (u_var[k] - 1.0) for k in range(P)]
+            flow = per_period(chem.cake_base * chem.wet_factor + chem.need_gypsum * chem.wet_factor
+                              * (chem.u_hi - 1.0))  # for the bounds below: the most it can make
         if solver == "cp-sat":
             # CP-SAT scales the model to integers: an equality with a fractional constant
             # has no solution there, so it plans whole tonnes (rounded cumulatively, so the
@@ -276,13 +326,31 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         prev = round(st.initial_t) if solver == "cp-sat" else st.initial_t
         margin = 3.0 if solver == "cp-sat" else 0.0  # room for the rounding to whole tonnes
         safety, capacity = st.safety_t + margin, st.capacity_t - margin
+        if chem is not None and store == "limestone":
+            need_k = per_period(chem.need)
+            u_lin, j_lin = lin
+            prev_j = st.initial_t * chem.initial_caco3
         for k in range(P):
             level = m.add_variable(lb=0, ub=most, name=f"I[{store},{k}]")
             moved = sum((tonnes(l, k) for l in ins), 0.0) - sum((tonnes(l, k) for l in outs), 0.0)
-            if store == "limestone":
+            if store == "limestone" and chem is not None:
+                # the well-mixed silo, linearised at (u_lin, j_lin): u = I'/J' after deliveries
+                caco3_in = sum((chem.lane_caco3[l.name] * tonnes(l, k) for l in ins), 0.0)
+                i_after, j_after = prev + moved, prev_j + caco3_in
+                m.add_linear_constraint(u_var[k] == float(u_lin[k]) + (i_after - float(u_lin[k]) * j_after)
+                                        * (1.0 / float(j_lin[k])))
+                unmet = m.add_variable(lb=0, ub=max(float(need_k.sum()), 1.0), name=f"unmet[{k}]")
+                m.add_linear_constraint(level == i_after - float(need_k[k]) * u_var[k] + float(u_lin[k]) * unmet)
+                j_level = m.add_variable(lb=0, ub=most, name=f"J[{k}]")
+                m.add_linear_constraint(j_level == j_after - float(need_k[k]) + unmet)
+                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * float(u_lin[k]) * unmet)
+                prev_j = j_level
+            elif store == "limestone":
                 unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
                 m.add_linear_constraint(level == prev + moved + float(flow[k]) + unmet)
                 cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * unmet)
+            elif flow_expr is not None:
+                m.add_linear_constraint(level == prev + moved + flow_expr[k])
             else:
                 m.add_linear_constraint(level == prev + moved + float(flow[k]))
             w = days_in[k]
@@ -302,9 +370,15 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                     m.add_linear_constraint(level - gs <= capacity - float(g_end[k]))
                     cost_terms.append(GUARD_WEIGHT * pen.overflow_penalty_per_t * w * gs)
             prev = level
+        if store == "limestone" and chem is not None:
+            end_value.append(-end_caco3_value(scenario, chem) * prev_j)
+            continue
         value = (-cheapest_delivered_cost(scenario) if store == "limestone"
                  else cheapest_disposal_cost(scenario, store))
         end_value.append(value * prev)
+    for k, um, z in quality_rows:
+        # a gypsum sale in period k needs the silo's u at most u_max (purity at the limit)
+        m.add_linear_constraint(u_var[k] <= um + (2.0 * chem.u_hi - um) * (1 - z))
     # firm orders are constants of the plan: their cost is part of the objective
     booked = 0.0
     for lane in lanes:

@@ -3,6 +3,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -16,6 +17,12 @@ from .causes import explain
 from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads
 from .model import SolveOutcome, solve_plan
+from .quality import SiloChemistry
+
+#: Successive linear solves of the silo's mix at most (`quality.py`).
+MAX_SILO_ITERATIONS = 4
+#: The mix has settled when no day's CaCO3 moves more than this [%-points] between solves.
+SILO_TOLERANCE_PCT = 0.05
 
 DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
 
@@ -54,6 +61,8 @@ class PlanResult:
     outcome: SolveOutcome
     breaches: list[dict]
     firm_days: int
+    baseline_balance: pd.DataFrame | None = None
+    iterations: list[dict] | None = None
 
     @property
     def movements(self) -> pd.DataFrame:
@@ -78,6 +87,7 @@ class PlanResult:
             "firm_days": self.firm_days,
             "breaches": self.breaches,
             "baseline_breaches": len(self.baseline_evaluation.breaches),
+            "silo_iterations": self.iterations or [],
             "caution": CAUTION,
         }
 
@@ -100,22 +110,53 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         balance = balance_frame(scenario)
     lanes = build_lanes(scenario, balance)
     firm = firm_loads(scenario, lanes)
-    base = baseline_plan(scenario, balance, lanes, firm)
-    base_ev = evaluate(scenario, balance, lanes, base)
     guard = guard_margins(balance, flows, risk_level)
+    chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
+    base = baseline_plan(scenario, balance, lanes, firm, chem=chem)
+    base_bal = balance if chem is None else chem.plan_balance(scenario, lanes, base)
+    base_ev = evaluate(scenario, base_bal, lanes, base)
+    t0 = time.perf_counter()
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit, gap=gap, hint=base, progress=progress)
-    ev = evaluate(scenario, balance, lanes, outcome.plan)
+                         time_limit=time_limit, gap=gap, hint=base, progress=progress, chem=chem)
+    plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
+    ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
+    iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
+                   "solve_seconds": round(outcome.solve_seconds, 3), "max_caco3_change_pct": None}]
+    if chem is not None:
+        # successive linear solves: linearise the silo at the last plan until its mix settles
+        last = outcome.plan
+        best = (ev.total_cost, outcome, plan_bal, ev)
+        for it in range(2, MAX_SILO_ITERATIONS + 1):
+            left = time_limit - (time.perf_counter() - t0)
+            if left < 1.0:
+                break
+            nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
+                             time_limit=left, gap=gap, hint=best[1].plan, progress=progress, chem=chem,
+                             around=last)
+            bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
+            ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
+            change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
+                                         - chem.plan_balance(scenario, lanes, last)["limestone_caco3_pct"].to_numpy())))
+            iterations.append({"iteration": it, "total_cost": round(ev_n.total_cost, 2), "gap": nxt.gap,
+                               "solve_seconds": round(nxt.solve_seconds, 3),
+                               "max_caco3_change_pct": round(change, 4)})
+            if ev_n.total_cost < best[0] - 1e-6:
+                best = (ev_n.total_cost, nxt, bal_n, ev_n)
+            last = nxt.plan
+            if change < SILO_TOLERANCE_PCT:
+                break
+        _, outcome, plan_bal, ev = best
+        outcome.solve_seconds = time.perf_counter() - t0
     chosen = outcome.plan
     if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
-        # the outlook weeks, once spread to days, priced dearer than the warm start:
-        # keep the warm start (the baseline), which the model's solution had to beat
-        chosen, ev = base, evaluate(scenario, balance, lanes, base)
-        outcome.status += " (baseline kept: the spread outlook priced dearer)"
+        # the outlook weeks, once spread to days (or the silo, replayed exactly), priced
+        # dearer than the warm start: keep the warm start (the baseline)
+        chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
+        outcome.status += " (baseline kept: the replayed plan priced dearer)"
     base_ev.breaches = explain(scenario, lanes, base, base_ev)
     breaches = explain(scenario, lanes, chosen, ev)
-    return PlanResult(scenario, balance, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days)
+    return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
+                      firm_days, base_bal, iterations)
 
 
 def movements_frame(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, firm_days: int) -> pd.DataFrame:

@@ -1,0 +1,145 @@
+"""Stone quality in the plan: the well-mixed silo between the quarries and the scrubber.
+
+The scrubber needs so many tonnes of CaCO3 a day (`caco3_need_t`: SO2 and HCl removed ×
+stoichiometry), whatever the stone.  Which stone is in the silo sets how many tonnes of
+stone carry that CaCO3 and how much inert material the stone brings into the gypsum.
+With ``u`` = tonnes of stone per tonne of CaCO3 in the silo (1 / CaCO3 fraction), every
+quantity of the day is linear in ``u``:
+
+- stone drawn = need × u;
+- dry gypsum cake = cake without stone inerts + scrubber need × (u − 1);
+- a buyer's purity limit p holds when u ≤ 1 + (CaSO4·2H2O / p − cake without inerts) /
+  scrubber need.
+
+Only ``u`` itself is not linear in the decisions: u = silo tonnes / silo CaCO3 after the
+day's deliveries (a pooling problem, Haverly 1978).  The plan linearises it around the
+silo of a known plan (first the reorder-point baseline, then each solve's own plan:
+successive linear programming, Haverly's recursion with a first-order term) and solves
+again until the silo's mix settles; every candidate is then replayed exactly
+(`reagentplan.balance.silo_replay` and the full balance at the replayed mix) and priced
+by `evaluate`, and the cheapest replayed plan is kept.  The linear model is an
+approximation; the replay is the truth that the outputs show.
+
+References
+----------
+Haverly, C. A. (1978), "Studies of the behavior of recursion for the pooling problem",
+ACM SIGMAP Bulletin 25:19-28.
+Lasdon, L. S., Waren, A. D., Sarkar, S. and Palacios, F. (1979), "Solving the pooling
+problem using generalized reduced gradient and successive linear programming
+algorithms", ACM SIGMAP Bulletin 27:9-15.
+Srivastava, R. K. and Jozewicz, W. (2001), J. Air & Waste Manage. Assoc. 51:1676-1688
+(cake composition).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..balance import balance_frame, silo_replay
+from ..scenario import Scenario
+from .lanes import SUPPLY, Lane
+
+#: Points of purity [%-points] the linear model keeps above a buyer's limit, so that the
+#: linearisation's error does not put a shipment on the wrong side of the limit.
+PURITY_MARGIN_PCT = 0.03
+
+
+@dataclass
+class SiloChemistry:
+    """Per-day chemistry of a scenario that does not depend on the stone [t/d], the
+    stone of each supply lane [-] and the initial silo.
+
+    need : CaCO3 needed (scrubber, HCl, injection) [t]
+    need_gypsum : the part whose stone inerts report to the gypsum (scrubber, HCl) [t]
+    cake_base : dry cake without the stone's inerts [t]
+    gypsum_pure : CaSO4·2H2O in the cake [t]
+    wet_factor : wet cake per dry [-] (1 / (1 − moisture))
+    lane_caco3 : CaCO3 fraction per supply lane name [-]
+    lane_mgco3 : MgCO3 fraction per supply lane name [-]
+    """
+
+    need: np.ndarray
+    need_gypsum: np.ndarray
+    cake_base: np.ndarray
+    gypsum_pure: np.ndarray
+    wet_factor: np.ndarray
+    lane_caco3: dict[str, float]
+    lane_mgco3: dict[str, float]
+    initial_t: float
+    initial_caco3: float
+    u_lo: float
+    u_hi: float
+
+    @classmethod
+    def from_balance(cls, scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane]) -> "SiloChemistry":
+        c0 = balance["limestone_caco3_pct"].to_numpy(float) / 100
+        need = balance["caco3_need_t"].to_numpy(float)
+        scrub = (balance["limestone_scrubber_t"] + balance["limestone_hcl_t"]).to_numpy(float)
+        if scenario.plant.boiler == "cfb":
+            scrub = np.zeros_like(scrub)
+        dry = balance["gypsum_dry_t"].to_numpy(float)
+        inerts = balance["gypsum_inerts_t"].to_numpy(float)
+        purity = np.nan_to_num(balance["gypsum_purity_pct"].to_numpy(float)) / 100
+        wet = balance["gypsum_wet_t"].to_numpy(float)
+        lane_c = {l.name: scenario.stone_caco3_pct(l.source) / 100 for l in lanes if l.kind == SUPPLY}
+        lane_mg = {l.name: (l.source.mgco3_pct or 0.0) / 100 for l in lanes if l.kind == SUPPLY}
+        c_init = scenario.scrubber.limestone_caco3_pct / 100
+        allc = list(lane_c.values()) + [c_init]
+        return cls(need, scrub * c0, dry - inerts, purity * dry,
+                   np.where(dry > 0, wet / np.where(dry > 0, dry, 1.0), 1.0),
+                   lane_c, lane_mg, scenario.storage["limestone"].initial_t, c_init,
+                   1 / max(allc), 1 / min(allc))
+
+    # ---------------------------------------------------------------- replay
+
+    def replay(self, lanes: list[Lane], plan) -> dict:
+        """The exact well-mixed silo under a plan's deliveries (`silo_replay`)."""
+        n = len(self.need)
+        arr, comp = np.zeros(n), np.zeros((n, 2))
+        for lane in lanes:
+            if lane.kind != SUPPLY:
+                continue
+            t = plan.tonnes(lane)
+            arr += t
+            comp[:, 0] += t * self.lane_caco3[lane.name]
+            comp[:, 1] += t * self.lane_mgco3[lane.name]
+        init_mg = 0.0
+        return silo_replay(self.initial_t, [self.initial_caco3, init_mg], arr, comp, self.need)
+
+    def plan_balance(self, scenario: Scenario, lanes: list[Lane], plan) -> pd.DataFrame:
+        """The daily balance at the stone the plan puts in the silo, with the silo's
+        CaCO3 [%] (``limestone_caco3_pct``) and MgCO3 [%] (``limestone_mgco3_pct``)."""
+        r = self.replay(lanes, plan)
+        frame = balance_frame(scenario, caco3_pct=100 * r["frac"][:, 0])
+        frame["limestone_mgco3_pct"] = 100 * r["frac"][:, 1]
+        return frame
+
+    # ---------------------------------------------------------------- linear model
+
+    def u_max(self, min_purity_pct: float) -> np.ndarray:
+        """Most stone per CaCO3 [t/t] that keeps the day's gypsum at a purity [%]
+        (+ `PURITY_MARGIN_PCT`); +inf on days without gypsum."""
+        p = (min_purity_pct + PURITY_MARGIN_PCT) / 100
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = 1 + (self.gypsum_pure / p - self.cake_base) / self.need_gypsum
+        return np.where(self.need_gypsum > 1e-9, out, np.inf)
+
+    def linearisation(self, lanes: list[Lane], plan, periods: list[tuple[int, int]],
+                      floor_t: float) -> tuple[np.ndarray, np.ndarray]:
+        """Per period, the silo's stone per CaCO3 ``u`` [t/t] and its CaCO3 after the
+        period's deliveries [t] under a known plan: the point the model linearises at."""
+        r = self.replay(lanes, plan)
+        u, j = np.empty(len(periods)), np.empty(len(periods))
+        level = np.r_[self.initial_t, r["level_t"]]
+        frac = r["frac"][:, 0]
+        for k, (a, b) in enumerate(periods):
+            stock = level[b + 1] + r["stone_t"][a:b + 1].sum()
+            u[k] = float(np.mean(1 / frac[a:b + 1]))
+            j[k] = max(stock / u[k], floor_t)
+        return u, j
+
+
+__all__ = ["SiloChemistry", "PURITY_MARGIN_PCT"]
