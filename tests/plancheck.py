@@ -111,6 +111,15 @@ def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
         used = mv.loc[(mv["party"] == d.site) & (mv["material"] == d.material), "tonnes"].sum()
         if d.airspace_t is not None and used > d.airspace_t + 1e-6:
             errors.append(f"{d.site} {d.material}: {used:.0f} t above the airspace")
+    # train sets: trains of the lanes sharing a set, in every rolling window
+    for ts in scn.train_sets:
+        names = {sp.lane for sp in scn.suppliers if sp.train_set == ts.train_set}
+        per_day = (mv[mv["lane"].isin(names)].groupby("date")["loads"].sum()
+                   .reindex(bal.index, fill_value=0).to_numpy(float))
+        for a in range(len(per_day)):
+            if per_day[a:a + ts.window_days].sum() > ts.max_trains:
+                errors.append(f"train set {ts.train_set}: {per_day[a:a + ts.window_days].sum():.0f} trains "
+                              f"in the {ts.window_days} days from {bal.index[a]:%Y-%m-%d}")
     # stone quality: the well-mixed silo replayed from the deliveries, and every buyer's
     # purity limit on every shipping day at the gypsum that silo makes
     if any(sp.caco3_pct is not None for sp in scn.suppliers):

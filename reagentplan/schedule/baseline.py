@@ -24,7 +24,7 @@ import pandas as pd
 
 from ..scenario import Scenario
 from .evaluate import PRODUCTION, DailyPlan, off_spec_days
-from .lanes import LANDFILL, SALE, SUPPLY, Lane, horizon_months
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, horizon_months, train_set_room
 
 #: Days of average use kept above safety stock at the arrival of an order.
 TRIGGER_DAYS = 5.0
@@ -68,9 +68,6 @@ def baseline_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     return DailyPlan(qty, booked)
 
 
-#: Days ahead of a delivery over which the coordinator looks for a board plant whose
-#: purity limit the silo's mix must keep (common practice, no source).
-QUALITY_LOOKAHEAD_DAYS = 14
 #: Points of purity [%-points] the coordinator keeps above a buyer's limit.
 QUALITY_MARGIN_PCT = 0.3
 
@@ -80,24 +77,28 @@ def _limestone_by_quality(scenario, lanes, supply, qty, month_index, chem) -> No
 
     Same triggers as `_limestone`, with the use in tonnes of stone at the silo's
     projected mix (the silo replayed with every load booked so far).  The lanes are tried
-    from the cheapest delivered cost per tonne of CaCO3 up; a lane is passed over when
-    its load would bring the silo's mix on the arrival day below the CaCO3 that keeps the
-    gypsum at the purity limit (+ `QUALITY_MARGIN_PCT`) of a gypsum buyer that takes
-    gypsum in the coming `QUALITY_LOOKAHEAD_DAYS` days.  When no open lane keeps it, the
-    best stone that can be booked is taken.
+    from the cheapest delivered cost per tonne of CaCO3 up.  A lane is passed over when
+    its load would bring the silo's mix, on any day from its arrival until the silo has
+    turned over once (days of stock at the coming use), below the CaCO3 that keeps the
+    gypsum at the purity limit (+ `QUALITY_MARGIN_PCT`) of every gypsum buyer taking
+    gypsum that day.  Days no stone can save (an oxidation upset) are not counted.  When
+    no lane that can deliver now keeps the mix, the coordinator waits for one, unless the
+    silo would fall below safety stock (+ the use until the next arrival): then the best
+    stone that can be booked is taken.
     """
     st = scenario.storage["limestone"]
+    all_lanes = lanes
     n = len(chem.need)
     lanes_c = sorted(supply, key=lambda l: (l.cost_per_t + l.cost_per_load / l.load_t) / chem.lane_caco3[l.name])
     buyers = [l for l in lanes if l.kind == SALE and getattr(l.source, "min_purity_pct", None) is not None]
-    # the lowest CaCO3 fraction the silo may hold on a day to keep the strictest buyer taking gypsum soon
+    best = max(chem.lane_caco3.values())
+    # the lowest CaCO3 fraction the silo may hold on a day to keep every buyer taking gypsum
     c_min = np.zeros(n)
     for b in buyers:
         u_max = chem.u_max(b.source.min_purity_pct + QUALITY_MARGIN_PCT - 0.03)
-        need_c = np.where(np.isfinite(u_max) & (u_max > 0), 1 / np.where(u_max > 0, u_max, 1), 0.0)
-        opens = b.open.astype(float)
-        soon = np.array([opens[d:d + QUALITY_LOOKAHEAD_DAYS].any() for d in range(n)])
-        c_min = np.maximum(c_min, np.where(soon, need_c, 0.0))
+        need_c = np.where(u_max > 0, 1 / np.where(u_max > 0, u_max, 1), np.inf)
+        need_c = np.where(need_c > best, 0.0, need_c)  # no stone helps: not the stone's fault
+        c_min = np.maximum(c_min, np.where(b.open, need_c, 0.0))
     plan = DailyPlan(qty, {})
     state = {}
 
@@ -112,6 +113,8 @@ def _limestone_by_quality(scenario, lanes, supply, qty, month_index, chem) -> No
     def can_book(lane: Lane, day: int) -> bool:
         if day >= n or not lane.open[day] or qty[lane.name][day] >= lane.max_per_day:
             return False
+        if not train_set_room(scenario, all_lanes, qty, lane, day):
+            return False
         k = month_index[day]
         cap = lane.month_max_t[k]
         return np.isnan(cap) or _month_used(qty[lane.name], lane.load_t, month_index, k) + lane.load_t <= cap + 1e-6
@@ -122,12 +125,14 @@ def _limestone_by_quality(scenario, lanes, supply, qty, month_index, chem) -> No
         return state["cum"][nxt + 1] - state["cum"][day + 1]
 
     def keeps_quality(lane: Lane, day: int) -> bool:
-        if c_min[day] <= 0:
+        turnover = int(np.ceil(state["level"][day] / max(np.mean(state["use"][day:day + 28]), 1e-9)))
+        window = slice(day, min(n, day + turnover + 1))
+        if not (c_min[window] > 0).any() or chem.lane_caco3[lane.name] >= c_min[window].max():
             return True
         qty[lane.name][day] += 1
-        frac = chem.replay(lanes, plan)["frac"][day, 0]
+        frac = chem.replay(lanes, plan)["frac"][window, 0]
         qty[lane.name][day] -= 1
-        return frac >= c_min[day]
+        return bool((frac >= c_min[window] - 1e-9).all())
 
     for order_day in range(n):
         while True:
@@ -137,7 +142,12 @@ def _limestone_by_quality(scenario, lanes, supply, qty, month_index, chem) -> No
                 break
             pick = next(((l, d) for l, d in due if keeps_quality(l, d)), None)
             if pick is None:
-                pick = max(due, key=lambda ld: chem.lane_caco3[ld[0].name])
+                # no stone that keeps the gypsum can come now: buy the best stone only if
+                # the silo would otherwise fall below safety stock (+ cover), else wait
+                urgent = [(l, d) for l, d in due if state["level"][d] < st.safety_t + cover(l, d)]
+                if not urgent:
+                    break
+                pick = max(urgent, key=lambda ld: chem.lane_caco3[ld[0].name])
             lane, day = pick
             qty[lane.name][day] += 1
             refresh()
@@ -161,6 +171,7 @@ def _month_used(qty: np.ndarray, load: float, month_index: np.ndarray, k: int) -
 
 def _limestone(scenario, balance, lanes, qty, month_index, firm) -> None:
     st = scenario.storage["limestone"]
+    all_lanes = lanes
     use = balance["limestone_t"].to_numpy(float)
     n = len(use)
     trigger = st.safety_t + TRIGGER_DAYS * _forward_mean(use, USE_WINDOW_DAYS)
@@ -173,6 +184,8 @@ def _limestone(scenario, balance, lanes, qty, month_index, firm) -> None:
 
     def can_book(lane: Lane, day: int) -> bool:
         if day >= n or not lane.open[day] or qty[lane.name][day] >= lane.max_per_day:
+            return False
+        if not train_set_room(scenario, all_lanes, qty, lane, day):
             return False
         k = month_index[day]
         cap = lane.month_max_t[k]

@@ -34,7 +34,7 @@ import pandas as pd
 from ortools.math_opt.python import mathopt
 
 from ..scenario import Scenario
-from .evaluate import EMPTY_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, PRODUCTION, DailyPlan
+from .evaluate import EMPTY_PENALTY_FACTOR, PRODUCTION, DailyPlan, shortfall_rate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 
 #: Weight of a guarded (worse-future) shortfall against a planned one: the plan first keeps
@@ -75,8 +75,9 @@ class SolveOutcome:
 def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                firm: dict[str, tuple[np.ndarray, np.ndarray]], guard: dict[str, np.ndarray],
                *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-               gap: float = 1e-5, hint: DailyPlan | None = None,
-               progress: bool = False, chem=None, around: DailyPlan | None = None) -> SolveOutcome:
+               gap: float = 5e-4, hint: DailyPlan | None = None,
+               progress: bool = False, chem=None, around: DailyPlan | None = None,
+               scale: float | None = None, fixed: dict | None = None) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -89,7 +90,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
         lin = chem.linearisation(lanes, around if around is not None else hint, periods,
                                  _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
-                           hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin)
+                           hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
+                           scale=scale, fixed=fixed)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
     if len(periods) < n:
         daily = [(d, d) for d in range(n)]
@@ -100,7 +102,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
             lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
                                     plan, totals, progress=progress, label="outlook to days",
-                                    chem=chem, lin=lin2)
+                                    chem=chem, lin=lin2, fixed=fixed)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
@@ -186,7 +188,8 @@ class SolveProgress:
 
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
-                   label: str = "solving", chem=None, lin=None) -> dict:
+                   label: str = "solving", chem=None, lin=None, scale: float | None = None,
+                   fixed: dict | None = None) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
     dates = scenario.dates
     n = len(dates)
@@ -225,31 +228,41 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             x[lane.name] = [m.add_variable(lb=0, ub=float(ub[k]), name=f"t[{lane.name},{k}]")
                             if ub[k] > 0 else None for k in range(P)]
             unit_cost = lane.cost_per_t
+        if fixed and lane.name in fixed:
+            # decided already (the stone of a plan whose byproducts are being re-planned)
+            q = per_period(np.asarray(fixed[lane.name], float) - f_loads)
+            for k, v in enumerate(x[lane.name]):
+                if v is not None:
+                    v.lower_bound = v.upper_bound = float(max(q[k], 0.0))
         cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
 
-    # ---- stone quality: the silo's stone per CaCO3, u, per period (quality.py)
-    u_var, quality_rows = None, []
+    # ---- stone quality: gypsum sales that need the silo's stone good enough (quality.py)
+    quality_rows = []
     if chem is not None:
-        u_top = 2.0 * chem.u_hi
-        u_var = [m.add_variable(lb=0.5 * chem.u_lo, ub=u_top, name=f"u[{k}]") for k in range(P)]
         for lane in lanes:
             limit = getattr(lane.source, "min_purity_pct", None)
             if lane.kind != SALE or lane.material != "gypsum" or limit is None:
                 continue
+            # one decision per buyer and month: ship it, and keep the silo's stone good
+            # enough in every period it is shipped, or not
             u_max = chem.u_max(limit)
+            z_month = {}
             for k, v in enumerate(x[lane.name]):
                 if v is None:
                     continue
                 a, b = periods[k]
                 um = float(np.min(u_max[a:b + 1]))
-                if um >= u_top:
+                if um >= chem.u_hi:
                     continue
                 if um < chem.u_lo:
                     v.upper_bound = 0.0
                     continue
-                z = m.add_binary_variable(name=f"q[{lane.name},{k}]")
-                m.add_linear_constraint(v <= v.upper_bound * z)
-                quality_rows.append((k, um, z))
+                j = int(period_month[k])
+                if j not in z_month:
+                    z_month[j] = m.add_binary_variable(name=f"q[{lane.name},{j}]")
+                m.add_linear_constraint(v <= v.upper_bound * z_month[j])
+                quality_rows.append((k, um, z_month[j]))
+    silo_after = {}
 
     def tonnes(lane: Lane, k: int):
         v = x[lane.name][k]
@@ -283,13 +296,54 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             if not np.isnan(lo) and lo > 0:
                 short = m.add_variable(lb=0, ub=lo, name=f"cshort[{lane.name},{j}]")
                 m.add_linear_constraint(total + short >= lo)
-                cost_terms.append(CONTRACT_PENALTY_PER_T * short)
+                cost_terms.append(shortfall_rate(lane) * short)
+            n_tier = getattr(lane.source, "tier_loads_per_month", None)
+            if lane.kind == SUPPLY and n_tier is not None:
+                # freight tier: loads above n_tier in the month at the tier rate.  extra is
+                # the loads above the tier; z = 1 only when the month reaches it
+                loads = sum((x[lane.name][k] for k in ks if x[lane.name][k] is not None), 0.0)
+                loads = loads + float(sum(firm.get(lane.name, (np.zeros(n, int), None))[0][pid == k].sum()
+                                          for k in ks))
+                most_loads = float(sum(x[lane.name][k].upper_bound for k in ks if x[lane.name][k] is not None))
+                most_loads += float(sum(firm.get(lane.name, (np.zeros(n, int), None))[0][pid == k].sum() for k in ks))
+                if most_loads > n_tier:
+                    extra = m.add_variable(lb=0, ub=most_loads - n_tier, name=f"tier[{lane.name},{j}]")
+                    z = m.add_binary_variable(name=f"tierz[{lane.name},{j}]")
+                    m.add_linear_constraint(extra <= (most_loads - n_tier) * z)
+                    m.add_linear_constraint(extra <= loads - n_tier + (n_tier + 0.0) * (1 - z))
+                    cost_terms.append((float(lane.source.tier_freight_per_load) - lane.cost_per_load) * extra)
+    # ---- train sets: at most max_trains arrivals of the set's lanes in any window_days days
+    for ts in scenario.train_sets:
+        members = [l for l in lanes if l.kind == SUPPLY and getattr(l.source, "train_set", None) == ts.train_set]
+        if not members:
+            continue
+        starts = np.array([a for a, _ in periods])
+        ends = np.array([b for _, b in periods])
+        seen = set()
+        for d in range(n):
+            inside = tuple(np.flatnonzero((starts >= d) & (ends <= d + ts.window_days - 1)))
+            if not inside or inside in seen:
+                continue
+            seen.add(inside)
+            terms = [x[l.name][k] for l in members for k in inside if x[l.name][k] is not None]
+            booked_loads = float(sum(firm.get(l.name, (np.zeros(n, int), None))[0][starts[k]:ends[k] + 1].sum()
+                                     for l in members for k in inside))
+            if terms:
+                m.add_linear_constraint(sum(terms, 0.0) <= max(ts.max_trains, booked_loads) - booked_loads)
+        for k, (a, b) in enumerate(periods):  # a bucket longer than the window
+            length = b - a + 1
+            if length > ts.window_days:
+                terms = [x[l.name][k] for l in members if x[l.name][k] is not None]
+                if terms:
+                    m.add_linear_constraint(sum(terms, 0.0) <= ts.max_trains * int(np.ceil(length / ts.window_days)))
         if lane.kind == LANDFILL and np.isfinite(lane.airspace_t):
             m.add_linear_constraint(sum((v for v in x[lane.name] if v is not None), 0.0) <= lane.airspace_t)
 
     # ---- stores
     end_value = []
-    for store, st in scenario.storage.items():
+    silo_inerts: list = []
+    # limestone first: the gypsum made depends on the stone the silo feeds
+    for store, st in sorted(scenario.storage.items(), key=lambda kv: kv[0] != "limestone"):
         if store == "limestone":
             flow = -per_period(balance["limestone_t"].to_numpy(float))
             ins = [l for l in lanes if l.kind == SUPPLY]
@@ -300,17 +354,13 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
         flow_expr = None
         if chem is not None and store == "gypsum":
-            # wet cake = (cake without stone inerts + scrubber CaCO3 need × (u − 1)) / (1 − moisture)
+            # wet cake = (cake without stone inerts + the inerts drawn with the scrubber's
+            # share of the CaCO3) / (1 − moisture); the inerts drawn come from the silo
             base = per_period(chem.cake_base * chem.wet_factor)
-            slope = per_period(chem.need_gypsum * chem.wet_factor)
-            flow_expr = [float(base[k]) + float(slope[k]) * (u_var[k] - 1.0) for k in range(P)]
+            share = per_period(chem.need_gypsum * chem.wet_factor) / np.maximum(per_period(chem.need), 1e-9)
+            flow_expr = [float(base[k]) + float(share[k]) * silo_inerts[k] for k in range(P)]
             flow = per_period(chem.cake_base * chem.wet_factor + chem.need_gypsum * chem.wet_factor
                               * (chem.u_hi - 1.0))  # for the bounds below: the most it can make
-        if solver == "cp-sat":
-            # CP-SAT scales the model to integers: an equality with a fractional constant
-            # has no solution there, so it plans whole tonnes (rounded cumulatively, so the
-            # horizon total stays within half a tonne)
-            flow = np.diff(np.round(np.cumsum(flow)), prepend=0.0)
         g = guard.get(store)
         g_end = np.zeros(P) if g is None else np.array([g[b] for _, b in periods])
         # finite bounds everywhere (CP-SAT needs them; they also tighten the others)
@@ -330,20 +380,25 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             need_k = per_period(chem.need)
             u_lin, j_lin = lin
             prev_j = st.initial_t * chem.initial_caco3
+            silo_inerts.clear()
         for k in range(P):
             level = m.add_variable(lb=0, ub=most, name=f"I[{store},{k}]")
             moved = sum((tonnes(l, k) for l in ins), 0.0) - sum((tonnes(l, k) for l in outs), 0.0)
             if store == "limestone" and chem is not None:
-                # the well-mixed silo, linearised at (u_lin, j_lin): u = I'/J' after deliveries
+                # the well-mixed silo: tonnes I and CaCO3 J after the period's deliveries;
+                # the CaCO3 drawn is the need, the inerts drawn with it need × (I' − J')/J',
+                # with that ratio fixed at the last plan's replayed silo (Haverly's recursion)
                 caco3_in = sum((chem.lane_caco3[l.name] * tonnes(l, k) for l in ins), 0.0)
                 i_after, j_after = prev + moved, prev_j + caco3_in
-                m.add_linear_constraint(u_var[k] == float(u_lin[k]) + (i_after - float(u_lin[k]) * j_after)
-                                        * (1.0 / float(j_lin[k])))
+                rho = float(u_lin[k]) - 1.0
+                inerts = float(need_k[k]) * rho
                 unmet = m.add_variable(lb=0, ub=max(float(need_k.sum()), 1.0), name=f"unmet[{k}]")
-                m.add_linear_constraint(level == i_after - float(need_k[k]) * u_var[k] + float(u_lin[k]) * unmet)
+                m.add_linear_constraint(level == i_after - float(need_k[k]) - inerts + (1.0 + rho) * unmet)
                 j_level = m.add_variable(lb=0, ub=most, name=f"J[{k}]")
                 m.add_linear_constraint(j_level == j_after - float(need_k[k]) + unmet)
-                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * float(u_lin[k]) * unmet)
+                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * (1.0 + rho) * unmet)
+                silo_inerts.append(inerts)
+                silo_after[k] = (i_after, j_after, most)
                 prev_j = j_level
             elif store == "limestone":
                 unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
@@ -377,8 +432,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                  else cheapest_disposal_cost(scenario, store))
         end_value.append(value * prev)
     for k, um, z in quality_rows:
-        # a gypsum sale in period k needs the silo's u at most u_max (purity at the limit)
-        m.add_linear_constraint(u_var[k] <= um + (2.0 * chem.u_hi - um) * (1 - z))
+        # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
+        # (the purity limit): I' − u_max J' ≤ 0, exact in the silo's own tonnes
+        i_after, j_after, most_t = silo_after[k]
+        m.add_linear_constraint(i_after - um * j_after <= (chem.u_hi - um) * most_t * (1 - z))
     # firm orders are constants of the plan: their cost is part of the objective
     booked = 0.0
     for lane in lanes:
@@ -390,6 +447,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     # ---- solve
     params = mathopt.SolveParameters(time_limit=dt.timedelta(seconds=time_limit),
                                      relative_gap_tolerance=gap, threads=2 if solver != "highs" else None)
+    if scale:
+        # the gap is relative to the plan's whole cost (with its constants), which solvers
+        # that drop the objective's offset cannot see: give it as an absolute gap too
+        params.absolute_gap_tolerance = 0.5 * gap * abs(scale)
     if solver == "cp-sat":
         params.cp_sat.mip_max_bound = 1e9
     model_params = None

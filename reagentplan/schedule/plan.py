@@ -14,13 +14,13 @@ from ..balance import balance_frame
 from ..scenario import Scenario
 from .baseline import baseline_plan
 from .causes import explain
-from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate
-from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads
+from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import SolveOutcome, solve_plan
 from .quality import SiloChemistry
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
-MAX_SILO_ITERATIONS = 4
+MAX_SILO_ITERATIONS = 5
 #: The mix has settled when no day's CaCO3 moves more than this [%-points] between solves.
 SILO_TOLERANCE_PCT = 0.05
 
@@ -88,6 +88,9 @@ class PlanResult:
             "breaches": self.breaches,
             "baseline_breaches": len(self.baseline_evaluation.breaches),
             "silo_iterations": self.iterations or [],
+            "shortfalls": self.evaluation.shortfalls,
+            "baseline_shortfalls": self.baseline_evaluation.shortfalls,
+            "saving_by_cause": saving_by_cause(self.evaluation.costs, self.baseline_evaluation.costs),
             "caution": CAUTION,
         }
 
@@ -95,7 +98,7 @@ class PlanResult:
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-              gap: float = 1e-5, progress: bool = False) -> PlanResult:
+              gap: float = 5e-4, progress: bool = False) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -115,9 +118,14 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     base = baseline_plan(scenario, balance, lanes, firm, chem=chem)
     base_bal = balance if chem is None else chem.plan_balance(scenario, lanes, base)
     base_ev = evaluate(scenario, base_bal, lanes, base)
+    # the money the plan moves (every cost line of the baseline, in absolute value): the
+    # scale of the absolute gap a solve may stop at, so a plan whose costs and revenues
+    # nearly cancel is not chased to a relative gap of a number near zero
+    gross = sum(abs(v) for v in base_ev.costs.values())
     t0 = time.perf_counter()
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit, gap=gap, hint=base, progress=progress, chem=chem)
+                         time_limit=time_limit / (MAX_SILO_ITERATIONS if chem is not None else 1), gap=gap, hint=base, progress=progress, chem=chem,
+                         scale=gross)
     plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
     iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
@@ -131,8 +139,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             if left < 1.0:
                 break
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                             time_limit=left, gap=gap, hint=best[1].plan, progress=progress, chem=chem,
-                             around=last)
+                             time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
+                             around=last, scale=gross)
             bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
@@ -146,6 +154,24 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             if change < SILO_TOLERANCE_PCT:
                 break
         _, outcome, plan_bal, ev = best
+        # the stone chosen, the byproducts planned again against the gypsum that stone
+        # makes (exact: its silo is now known), so no shipment rests on the linearisation
+        lanes_x = build_lanes(scenario, plan_bal, exact_quality=True)
+        fixed = {l.name: outcome.plan.quantity[l.name] for l in lanes if l.kind == SUPPLY}
+        left = max(time_limit - (time.perf_counter() - t0), 5.0)
+        try:
+            pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
+                             solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
+                             scale=gross, fixed=fixed)
+            ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
+            iterations.append({"iteration": "byproducts at the chosen stone",
+                               "total_cost": round(ev_p.total_cost, 2), "gap": pol.gap,
+                               "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": 0.0})
+            if ev_p.total_cost <= ev.total_cost + 1e-6:
+                pol.status = outcome.status if pol.status == "optimal" else pol.status
+                outcome, ev = pol, ev_p
+        except RuntimeError:
+            pass
         outcome.solve_seconds = time.perf_counter() - t0
     chosen = outcome.plan
     if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
@@ -159,16 +185,33 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                       firm_days, base_bal, iterations)
 
 
+#: The causes a saving is split by, and the cost lines of `evaluate` in each.
+SAVING_CAUSES = {"stone": ("limestone_purchase", "end_stock_value"), "freight": ("freight",),
+                 "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill",),
+                 "penalties": ("shortage_penalty", "overflow_penalty", "empty_penalty",
+                               "contract_penalty", "quality_penalty")}
+
+
+def saving_by_cause(plan_costs: dict, baseline_costs: dict) -> dict:
+    """What the plan saves against the baseline [money], by cause: stone (purchase less the
+    value of the stone left at the end), freight, byproduct sales, landfill, penalties
+    (including take-or-pay shortfalls)."""
+    return {cause: round(sum(baseline_costs[k] - plan_costs[k] for k in keys), 2)
+            for cause, keys in SAVING_CAUSES.items()}
+
+
 def movements_frame(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, firm_days: int) -> pd.DataFrame:
     """One row per lane and day with something moving (DESIGN §6 ``movements.csv``)."""
     dates = scenario.dates
+    month_index, _, _ = horizon_months(dates)
     rows = []
     for lane in lanes:
         q = plan.quantity[lane.name]
         booked = plan.booked.get(lane.name)
+        freight = freight_by_day(lane, q, month_index) if lane.load_t else np.zeros(len(q))
         for d in np.flatnonzero(q > 1e-9):
             tonnes = float(q[d] * lane.load_t) if lane.load_t else float(q[d])
-            cost = tonnes * lane.cost_per_t + (float(q[d]) * lane.cost_per_load if lane.load_t else 0.0)
+            cost = tonnes * lane.cost_per_t + float(freight[d])
             order_by = dates[d] - pd.Timedelta(days=lane.lead_days) if lane.kind == SUPPLY else pd.NaT
             rows.append({
                 "date": dates[d], "material": lane.material,
