@@ -90,6 +90,7 @@ class Evaluation:
     breaches: list[dict]
     month_totals: dict[str, np.ndarray]    # lane -> tonnes per horizon month
     shortfalls: list[dict] = field(default_factory=list)  # take-or-pay shortfalls paid at the contract's rate
+    end_parts: dict = field(default_factory=dict)  # end_stock_value split: limestone credit, byproduct charge
 
 
 def store_levels(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
@@ -187,11 +188,15 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
         end_value = -end_caco3_value(scenario, None) * levels["limestone"][-1] * caco3_end
     else:
         end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    end_parts = {"limestone": float(end_value), "byproducts": 0.0}
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in levels:
-            end_value += cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
+            charge = cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
+            end_value += charge
+            end_parts["byproducts"] += float(charge)
     costs["end_stock_value"] = float(end_value)
-    return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals, shortfalls)
+    return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals, shortfalls,
+                      end_parts)
 
 
 def off_spec_days(lane: Lane, balance: pd.DataFrame) -> np.ndarray:

@@ -77,7 +77,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
                gap: float = 5e-4, hint: DailyPlan | None = None,
                progress: bool = False, chem=None, around: DailyPlan | None = None,
-               scale: float | None = None, fixed: dict | None = None) -> SolveOutcome:
+               scale: float | None = None, fixed: dict | None = None,
+               to_days: bool = True) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -93,7 +94,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
                            scale=scale, fixed=fixed)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
-    if len(periods) < n:
+    if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
         totals = {lane.name: [(a, b, first["qty"][lane.name][k]) for k, (a, b) in enumerate(periods)
                               if b > a] for lane in lanes}

@@ -90,7 +90,7 @@ class PlanResult:
             "silo_iterations": self.iterations or [],
             "shortfalls": self.evaluation.shortfalls,
             "baseline_shortfalls": self.baseline_evaluation.shortfalls,
-            "saving_by_cause": saving_by_cause(self.evaluation.costs, self.baseline_evaluation.costs),
+            "saving_by_cause": saving_by_cause(self.evaluation, self.baseline_evaluation),
             "caution": CAUTION,
         }
 
@@ -115,6 +115,11 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     firm = firm_loads(scenario, lanes)
     guard = guard_margins(balance, flows, risk_level)
     chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
+    solver_note = ""
+    if chem is not None and solver == "cp-sat":
+        # CP-SAT takes integer models only (MathOpt scales continuous ones); the silo's
+        # tonnes of CaCO3 and inerts do not scale, so the mixed-integer solver plans them
+        solver, solver_note = "scip", " (cp-sat cannot take the silo's mix; solved with scip)"
     base = baseline_plan(scenario, balance, lanes, firm, chem=chem)
     base_bal = balance if chem is None else chem.plan_balance(scenario, lanes, base)
     base_ev = evaluate(scenario, base_bal, lanes, base)
@@ -125,7 +130,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     t0 = time.perf_counter()
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                          time_limit=time_limit / (MAX_SILO_ITERATIONS if chem is not None else 1), gap=gap, hint=base, progress=progress, chem=chem,
-                         scale=gross)
+                         scale=gross, to_days=chem is None)
     plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
     iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
@@ -140,7 +145,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                 break
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                              time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
-                             around=last, scale=gross)
+                             around=last, scale=gross, to_days=False)
             bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
@@ -173,6 +178,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         except RuntimeError:
             pass
         outcome.solve_seconds = time.perf_counter() - t0
+    outcome.status += solver_note
     chosen = outcome.plan
     if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
         # the outlook weeks, once spread to days (or the silo, replayed exactly), priced
@@ -185,18 +191,25 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                       firm_days, base_bal, iterations)
 
 
-#: The causes a saving is split by, and the cost lines of `evaluate` in each.
-SAVING_CAUSES = {"stone": ("limestone_purchase", "end_stock_value"), "freight": ("freight",),
-                 "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill",),
+#: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock
+#: left at the end goes with what it is: limestone with the stone, byproducts with landfill.
+SAVING_CAUSES = {"stone": ("limestone_purchase", "end:limestone"), "freight": ("freight",),
+                 "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill", "end:byproducts"),
                  "penalties": ("shortage_penalty", "overflow_penalty", "empty_penalty",
                                "contract_penalty", "quality_penalty")}
 
 
-def saving_by_cause(plan_costs: dict, baseline_costs: dict) -> dict:
+def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
     """What the plan saves against the baseline [money], by cause: stone (purchase less the
-    value of the stone left at the end), freight, byproduct sales, landfill, penalties
-    (including take-or-pay shortfalls)."""
-    return {cause: round(sum(baseline_costs[k] - plan_costs[k] for k in keys), 2)
+    value of the limestone left at the end), freight, byproduct sales, landfill (with the
+    byproducts left at the end at their landfill cost), penalties (with take-or-pay
+    shortfalls)."""
+    def line(ev: Evaluation, key: str) -> float:
+        if key.startswith("end:"):
+            return ev.end_parts.get(key[4:], 0.0)
+        return ev.costs[key]
+
+    return {cause: round(sum(line(baseline, k) - line(plan, k) for k in keys), 2)
             for cause, keys in SAVING_CAUSES.items()}
 
 

@@ -146,4 +146,42 @@ class SiloChemistry:
         return u, j
 
 
-__all__ = ["SiloChemistry", "PURITY_MARGIN_PCT"]
+
+
+def stone_frame(scenario: Scenario, balance: pd.DataFrame) -> pd.DataFrame:
+    """Per day: the silo's CaCO3 [%] (and MgCO3 [%] where given), the gypsum's purity [%]
+    and each purity-limited gypsum buyer's limit [%] (NaN out of its season)."""
+    out = pd.DataFrame({"date": balance["date"].to_numpy(),
+                        "silo_caco3_pct": balance["limestone_caco3_pct"].to_numpy(float),
+                        "gypsum_purity_pct": balance["gypsum_purity_pct"].to_numpy(float)})
+    if "limestone_mgco3_pct" in balance:
+        out["silo_mgco3_pct"] = balance["limestone_mgco3_pct"].to_numpy(float)
+    for b in scenario.buyers:
+        if b.material == "gypsum" and b.min_purity_pct is not None:
+            season = np.isin(pd.DatetimeIndex(out["date"]).month - 1, sorted(b.months))
+            out[f"{b.buyer} min purity [%]"] = np.where(season, b.min_purity_pct, np.nan)
+    return out
+
+
+def deliveries_quality_frame(scenario: Scenario, lanes: list[Lane], movements: pd.DataFrame) -> pd.DataFrame:
+    """Each limestone delivery with its stone's CaCO3 [%], its delivered cost per tonne of
+    CaCO3 [money/t] and ``chosen_for_quality``: true when a lane of lower-grade stone that
+    is cheaper per tonne of CaCO3 was open that day, so the plan paid for the better stone."""
+    supply = {l.name: l for l in lanes if l.kind == SUPPLY}
+    per_caco3 = {n: (l.cost_per_t + l.cost_per_load / l.load_t) / (scenario.stone_caco3_pct(l.source) / 100)
+                 for n, l in supply.items()}
+    start = pd.Timestamp(scenario.plant.start_date)
+    rows = []
+    for r in movements[(movements["material"] == "limestone") & (movements["direction"] == "in")].itertuples():
+        lane = supply[r.lane]
+        c = scenario.stone_caco3_pct(lane.source)
+        d = (pd.Timestamp(r.date) - start).days
+        cheaper = [n for n, l in supply.items() if n != r.lane and l.open[d]
+                   and scenario.stone_caco3_pct(l.source) < c and per_caco3[n] < per_caco3[r.lane]]
+        rows.append({"date": r.date, "lane": r.lane, "party": r.party, "tonnes": r.tonnes, "caco3_pct": c,
+                     "cost_per_t_caco3": round(per_caco3[r.lane], 3), "chosen_for_quality": bool(cheaper),
+                     "instead_of": ", ".join(cheaper)})
+    return pd.DataFrame(rows, columns=["date", "lane", "party", "tonnes", "caco3_pct", "cost_per_t_caco3",
+                                       "chosen_for_quality", "instead_of"])
+
+__all__ = ["SiloChemistry", "PURITY_MARGIN_PCT", "stone_frame", "deliveries_quality_frame"]
