@@ -215,7 +215,7 @@ BUYERS: tuple[tuple[Any, ...], ...] = (
 LANDFILL = "Velmora Bend on-site landfill"
 # material: (cost_per_t, max_t_per_day, airspace_t)
 DISPOSAL: dict[str, tuple[float, float, float]] = {
-    "gypsum": (14.00, 800.0, 1_800_000.0),
+    "gypsum": (14.00, 1100.0, 1_800_000.0),
     "fly_ash": (16.50, 2000.0, 1_200_000.0),
     "bottom_ash": (12.00, 600.0, 400_000.0),
 }

@@ -52,6 +52,9 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
                      solver=solver, time_limit=time_limit, progress=progress)
     risk = None
     if fut is not None:
+        from .schedule.plan import flows_at_plan_stone
+
         so2 = {k: fut.flows[k] for k in SO2_FLOWS if k in fut.flows}
-        risk = replay(plan, flows, so2=so2 if len(so2) == len(SO2_FLOWS) else None)
+        risk = replay(plan, flows_at_plan_stone(plan, flows, balance),
+                      so2=so2 if len(so2) == len(SO2_FLOWS) else None)
     return PlanRun(plan, fut, risk)

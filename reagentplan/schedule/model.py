@@ -37,6 +37,9 @@ from ..scenario import Scenario
 from .evaluate import EMPTY_PENALTY_FACTOR, PRODUCTION, DailyPlan, shortfall_rate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 
+#: Share of the limestone safety stock the quality-coupled model keeps above it [-].
+SILO_SAFETY_MARGIN = 0.03
+
 #: Weight of a guarded (worse-future) shortfall against a planned one: the plan first keeps
 #: its own median levels inside the limits, then buys what protection it can.
 GUARD_WEIGHT = 0.25
@@ -377,6 +380,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         prev = round(st.initial_t) if solver == "cp-sat" else st.initial_t
         margin = 3.0 if solver == "cp-sat" else 0.0  # room for the rounding to whole tonnes
         safety, capacity = st.safety_t + margin, st.capacity_t - margin
+        if chem is not None and store == "limestone":
+            # room for the fixed ratio of inerts drawn (quality.py): the replayed silo may
+            # draw a little more stone than the model did
+            safety += SILO_SAFETY_MARGIN * st.safety_t
         if chem is not None and store == "limestone":
             need_k = per_period(chem.need)
             u_lin, j_lin = lin

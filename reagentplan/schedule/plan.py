@@ -21,6 +21,9 @@ from .quality import SiloChemistry
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
 MAX_SILO_ITERATIONS = 5
+#: Share of the time limit the successive silo solves may use; the rest is for the exact
+#: byproduct solve at the chosen stone.
+SILO_SHARE = 0.8
 #: The mix has settled when no day's CaCO3 moves more than this [%-points] between solves.
 SILO_TOLERANCE_PCT = 0.05
 
@@ -129,7 +132,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     gross = sum(abs(v) for v in base_ev.costs.values())
     t0 = time.perf_counter()
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit / (MAX_SILO_ITERATIONS if chem is not None else 1), gap=gap, hint=base, progress=progress, chem=chem,
+                         time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
+                         gap=gap, hint=base, progress=progress, chem=chem,
                          scale=gross, to_days=chem is None)
     plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
@@ -140,7 +144,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         last = outcome.plan
         best = (ev.total_cost, outcome, plan_bal, ev)
         for it in range(2, MAX_SILO_ITERATIONS + 1):
-            left = time_limit - (time.perf_counter() - t0)
+            left = SILO_SHARE * time_limit - (time.perf_counter() - t0)
             if left < 1.0:
                 break
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
@@ -163,7 +167,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         # makes (exact: its silo is now known), so no shipment rests on the linearisation
         lanes_x = build_lanes(scenario, plan_bal, exact_quality=True)
         fixed = {l.name: outcome.plan.quantity[l.name] for l in lanes if l.kind == SUPPLY}
-        left = max(time_limit - (time.perf_counter() - t0), 5.0)
+        left = max(time_limit - (time.perf_counter() - t0), 3.0)
         try:
             pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
                              solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
@@ -211,6 +215,24 @@ def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
 
     return {cause: round(sum(line(baseline, k) - line(plan, k) for k in keys), 2)
             for cause, keys in SAVING_CAUSES.items()}
+
+
+def flows_at_plan_stone(result: "PlanResult", flows: dict[str, np.ndarray] | None,
+                        balance: pd.DataFrame) -> dict[str, np.ndarray] | None:
+    """Sampled futures' limestone use and gypsum [t/d] moved to the stone the plan puts
+    in the silo: each day's flow scaled by the plan's balance over the balance at the
+    initial stone (``balance``).  Limestone use is exactly proportional (need / CaCO3);
+    for gypsum the stone's inerts are a small share of the cake and are scaled with it."""
+    if not flows or not result.scenario.quality_coupled:
+        return flows
+    out = dict(flows)
+    for store, column in (("limestone", "limestone_t"), ("gypsum", "gypsum_wet_t")):
+        if store in out:
+            base = balance[column].to_numpy(float)
+            ratio = np.divide(result.balance[column].to_numpy(float), base,
+                              out=np.ones_like(base), where=base > 0)
+            out[store] = np.asarray(out[store], float) * ratio[None, :]
+    return out
 
 
 def movements_frame(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, firm_days: int) -> pd.DataFrame:
