@@ -280,10 +280,8 @@ def airspace(scenario, movements: pd.DataFrame) -> pd.DataFrame:
 
 def silo_quality(plan) -> tuple[pd.DataFrame, pd.DataFrame]:
     """The plan's stone by day and its limestone deliveries with their stone (library
-    frames, `reagentplan.schedule.quality`); empty without stone quality."""
+    frames, `reagentplan.schedule.quality`); with one stone the silo's line is flat."""
     from reagentplan.schedule.quality import deliveries_quality_frame, stone_frame
 
-    if not plan.scenario.quality_coupled:
-        return pd.DataFrame(), pd.DataFrame()
     return (stone_frame(plan.scenario, plan.balance),
             deliveries_quality_frame(plan.scenario, plan.lanes, plan.movements))
