@@ -406,7 +406,7 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 m.add_linear_constraint(j_level == j_after - float(need_k[k]) + unmet)
                 cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * (1.0 + rho) * unmet)
                 silo_inerts.append(inerts)
-                silo_after[k] = (i_after, j_after, most)
+                silo_after[k] = (i_after, j_after, most, prev, prev_j)
                 prev_j = j_level
             elif store == "limestone":
                 unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
@@ -442,8 +442,11 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     for k, um, z in quality_rows:
         # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
         # (the purity limit): I' − u_max J' ≤ 0, exact in the silo's own tonnes
-        i_after, j_after, most_t = silo_after[k]
+        i_after, j_after, most_t, i_before, j_before = silo_after[k]
         m.add_linear_constraint(i_after - um * j_after <= (chem.u_hi - um) * most_t * (1 - z))
+        if periods[k][1] > periods[k][0]:
+            # a week: its first days draw the silo as it was before the week's deliveries
+            m.add_linear_constraint(i_before - um * j_before <= (chem.u_hi - um) * most_t * (1 - z))
     # firm orders are constants of the plan: their cost is part of the objective
     booked = 0.0
     for lane in lanes:
