@@ -377,3 +377,40 @@ def landfill_figure(monthly: pd.DataFrame) -> go.Figure:
 
 __all__ = ["empty_figure", "inbound_calendar_figure", "contract_figure", "lane_use_figure",
            "store_figure", "so2_figure", "quality_figure", "season_figure", "landfill_figure"]
+
+
+def silo_figure(stone: pd.DataFrame, deliveries: pd.DataFrame, colours: dict[str, str] | None = None) -> go.Figure:
+    """The silo's CaCO3 by day with each limestone delivery marked at its stone's CaCO3
+    (open markers: chosen for quality over cheaper lower-grade stone), above the gypsum's
+    purity against each buyer's limit."""
+    if stone.empty:
+        return empty_figure("No stone quality in this scenario", 260, "Stone in the silo")
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.08,
+                        subplot_titles=["Silo CaCO3 [%] and deliveries", "Gypsum purity [%] against buyers' limits"])
+    fig.add_trace(go.Scatter(x=stone["date"], y=stone["silo_caco3_pct"], mode="lines", name="silo CaCO3",
+                             line=dict(color="#2F4858", width=2),
+                             hovertemplate="silo %{y:.2f} % CaCO3<extra></extra>"), row=1, col=1)
+    for i, (party, part) in enumerate(deliveries.groupby("party", sort=False)):
+        colour = (colours or {}).get(party, party_colour(i))
+        fig.add_trace(go.Scatter(
+            x=part["date"], y=part["caco3_pct"], mode="markers", name=party,
+            marker=dict(color=colour, size=7 + 5 * (part["tonnes"] / max(deliveries["tonnes"].max(), 1.0)),
+                        symbol=["circle-open" if q else "circle" for q in part["chosen_for_quality"]]),
+            hovertext=[f"{d:%Y-%m-%d} {party}: {t:,.0f} t at {c:g} % CaCO3"
+                       + (f"; chosen for quality over {w}" if q else "")
+                       for d, t, c, q, w in zip(pd.to_datetime(part["date"]), part["tonnes"], part["caco3_pct"],
+                                                part["chosen_for_quality"], part["instead_of"])],
+            hoverinfo="text"), row=1, col=1)
+    fig.add_trace(go.Scatter(x=stone["date"], y=stone["gypsum_purity_pct"], mode="lines", name="gypsum purity",
+                             line=dict(color=STORE_COLOURS.get("gypsum", "#445"), width=2),
+                             hovertemplate="purity %{y:.2f} %<extra></extra>"), row=2, col=1)
+    for i, col in enumerate([c for c in stone.columns if c.endswith("min purity [%]")]):
+        buyer = col[: -len(" min purity [%]")]
+        fig.add_trace(go.Scatter(x=stone["date"], y=stone[col], mode="lines", name=f"{buyer} limit",
+                                 line=dict(color=(colours or {}).get(buyer, party_colour(i + 3)), dash="dash", width=1.5),
+                                 hovertemplate=f"{buyer}: min %{{y:g}} %<extra></extra>"), row=2, col=1)
+    fig.update_layout(template=TEMPLATE, title="Stone in the silo and the gypsum it makes", height=520,
+                      hovermode="x", margin=dict(t=60, b=40),
+                      legend=dict(orientation="h", y=-0.06, yanchor="top", x=0, xanchor="left"))
+    fig.update_annotations(font=dict(size=12, color=MUTED))
+    return fig

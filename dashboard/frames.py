@@ -276,3 +276,12 @@ def airspace(scenario, movements: pd.DataFrame) -> pd.DataFrame:
                      "t_per_year": per_year, "years_left": years})
     return pd.DataFrame(rows, columns=["site", "material", "material_label", "airspace_t",
                                        "landfilled_t", "left_t", "t_per_year", "years_left"])
+
+
+def silo_quality(plan) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The plan's stone by day and its limestone deliveries with their stone (library
+    frames, `reagentplan.schedule.quality`); with one stone the silo's line is flat."""
+    from reagentplan.schedule.quality import deliveries_quality_frame, stone_frame
+
+    return (stone_frame(plan.scenario, plan.balance),
+            deliveries_quality_frame(plan.scenario, plan.lanes, plan.movements))

@@ -147,22 +147,29 @@ STORAGE: dict[str, tuple[float, float, float]] = {
 SUPPLIER_COLUMNS = (
     "supplier", "mode", "load_t", "max_loads_per_day", "lead_days", "weekdays",
     "price_per_t", "freight_per_load", "min_t_per_month", "max_t_per_month",
-    "caco3_pct", "months",
+    "caco3_pct", "months", "mgco3_pct", "tier_loads_per_month", "tier_freight_per_load",
+    "shortfall_per_t", "train_set",
 )
+TRAIN_SET = "Velmora car set"
 SUPPLIERS: tuple[tuple[Any, ...], ...] = (
-    # main contract quarry: unit trains of ~96 cars x 100 t; the railway's winter
-    # freight tariff (Dec-Feb) is dearer than the rest of the year
+    # main contract quarry, high-calcium stone: unit trains of ~96 cars x 100 t; the
+    # railway's winter freight tariff (Dec-Feb) is dearer than the rest of the year, and
+    # above two trains a month the summer tariff drops to a volume rate; take-or-pay on
+    # one train a month at 9 USD per tonne short
     ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 38400.0,
-     9600, 28800, 96.0, "Mar-Nov"),
+     9600, 28800, 96.0, "Mar-Nov", 0.8, 2, 30000.0, 9.0, TRAIN_SET),
     ("Greyfell Quarry", "rail", 9600, 1, 12, "Mon-Thu", 14.50, 67200.0,
-     9600, 28800, 96.0, "Dec-Feb"),
+     9600, 28800, 96.0, "Dec-Feb", 0.8, None, None, 9.0, TRAIN_SET),
     # local quarry, pneumatic/end-dump trucks, quick but dear
     ("Oxlip Hill Stone", "truck", 25, 40, 2, "Mon-Fri", 21.00, 210.0,
-     None, 12000, 97.0, ""),
-    # distant spot quarry: cheap stone, long haul, a lower grade
-    ("Brindlecombe Quarry", "rail", 9000, 1, 14, "Tue,Thu", 12.75, 52000.0,
-     None, 18000, 95.0, ""),
+     None, 12000, 97.0, "", 0.5, None, None, None, None),
+    # distant spot quarry: cheap, lower-grade, slightly dolomitic stone on a long haul;
+    # its trains use the same leased car set as Greyfell's
+    ("Brindlecombe Quarry", "rail", 9000, 1, 14, "Tue,Thu", 9.25, 52000.0,
+     None, 27000, 89.5, "", 3.5, None, None, None, TRAIN_SET),
 )
+#: the leased car set: at most 3 trains in any 10 days (its cycle over both quarries)
+TRAIN_SETS: tuple[tuple[Any, ...], ...] = ((TRAIN_SET, 3, 10),)
 
 # (party, mode, first day offset from the start, days closed): the main line's summer
 # track renewal, and the wallboard plant's own maintenance shutdown
@@ -186,23 +193,29 @@ BUYER_COLUMNS = (
     "buyer", "material", "mode", "load_t", "max_loads_per_day", "weekdays",
     "price_per_t", "min_t_per_month", "max_t_per_month", "min_purity_pct",
     "max_moisture_pct", "max_chloride_ppm", "max_loi_pct", "max_so3_pct", "months",
+    "shortfall_per_t",
 )
 BUYERS: tuple[tuple[Any, ...], ...] = (
-    ("Larkspan Wallboard", "gypsum", "truck", 30, 45, "Mon-Fri", 4.50,
-     12000, 22000, 94.0, 11.0, 100, None, None, ""),
+    # the board plant: wallboard purity limit, a building season (Mar-Nov), and a monthly
+    # minimum above what the station can always make, short tonnes paid at 3 USD/t
+    ("Larkspan Wallboard", "gypsum", "truck", 30, 45, "Mon-Fri", 6.00,
+     24000, 28000, 94.0, 11.0, 100, None, None, "Mar-Nov", 3.0),
     ("Fieldmend Agri-Gypsum", "gypsum", "truck", 25, 12, "Mon-Sat", 1.50,
-     None, 6000, 85.0, 15.0, None, None, None, "Feb-Jun"),
+     None, 6000, 85.0, 15.0, None, None, None, "Feb-Jun", None),
+    # a cement works takes gypsum as set retarder at a lower purity, all year
+    ("Harrowgate Cement", "gypsum", "truck", 28, 10, "Mon-Fri", 0.50,
+     None, 6000, 90.0, 12.0, None, None, None, "", None),
     # ASTM C618 class F limits: LOI <= 6 %, SO3 <= 5 %
     ("Cobbleway Ready-Mix", "fly_ash", "truck", 28, 20, "Mon-Fri", 26.00,
-     4000, 12000, None, None, None, 6.0, 5.0, "Mar-Nov"),
+     4000, 12000, None, None, None, 6.0, 5.0, "Mar-Nov", None),
     ("Tessany Block Co.", "bottom_ash", "truck", 20, 8, "Mon-Fri", -2.00,
-     None, 3000, None, None, None, None, None, ""),
+     None, 3000, None, None, None, None, None, "", None),
 )
 
 LANDFILL = "Velmora Bend on-site landfill"
 # material: (cost_per_t, max_t_per_day, airspace_t)
 DISPOSAL: dict[str, tuple[float, float, float]] = {
-    "gypsum": (14.00, 800.0, 1_800_000.0),
+    "gypsum": (14.00, 1100.0, 1_800_000.0),
     "fly_ash": (16.50, 2000.0, 1_200_000.0),
     "bottom_ash": (12.00, 600.0, 400_000.0),
 }
@@ -591,6 +604,7 @@ def build_demo_workbook(
         [(k, *v) for k, v in STORAGE.items()],
     )
     _write_table(wb, "suppliers", SUPPLIER_COLUMNS, SUPPLIERS)
+    _write_table(wb, "train_sets", ("train_set", "max_trains", "window_days"), TRAIN_SETS)
     _write_table(wb, "buyers", BUYER_COLUMNS, BUYERS)
     _write_table(
         wb, "disposal",

@@ -18,7 +18,7 @@ Pozzolan for Use in Concrete*: SO3 and LOI reporting of fly ash.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -171,9 +171,28 @@ def hcl_formed_t(coal_t, chlorine_pct):
     return coal_t * chlorine_pct * (chem.HCL / chem.CL / 100)
 
 
+def caco3_for_so2_t(so2_removed_t, ca_s_ratio):
+    """CaCO3 fed [t] for SO2 removed [t] at Ca/S [mol CaCO3 / mol SO2 removed].
+
+    Independent of the stone: the scrubber needs so many moles of CaCO3 per mole of SO2;
+    the stone's purity only sets how many tonnes of stone carry them.
+
+    References
+    ----------
+    Srivastava and Jozewicz (2001): CaCO3 + SO2 + 1/2 O2 + 2 H2O -> CaSO4.2H2O + CO2,
+    fed at Ca/S (mol CaCO3 per mol SO2 removed) slightly above 1.
+    """
+    return so2_removed_t * (ca_s_ratio * chem.CACO3 / chem.SO2)
+
+
+def stone_for_caco3_t(caco3_t, caco3):
+    """Limestone [t, dry] carrying ``caco3_t`` of CaCO3 [t] at a CaCO3 content [-]."""
+    return caco3_t / caco3
+
+
 def limestone_for_so2_t(so2_removed_t, ca_s_ratio, caco3):
     """Limestone fed [t, dry] for SO2 removed [t] at Ca/S [mol/mol] and CaCO3 content [-]."""
-    return so2_removed_t * (ca_s_ratio * chem.CACO3 / caco3 / chem.SO2)
+    return stone_for_caco3_t(caco3_for_so2_t(so2_removed_t, ca_s_ratio), caco3)
 
 
 def limestone_for_hcl_t(hcl_t, caco3):
@@ -344,9 +363,73 @@ def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
         "s_gypsum_t": s_gypsum,
         "s_fly_ash_t": s_fly_collected,
         "s_bottom_ash_t": s_bottom,
+        "limestone_caco3_pct": 100 * p.caco3 + zero,
+        "caco3_need_t": (lime_scrub + lime_inj + lime_hcl) * p.caco3,
+        "gypsum_inerts_t": gyp_parts[3],
     }
     shape = np.broadcast_shapes(*(np.shape(v) for v in out.values()))
     return {k: np.broadcast_to(v, shape) for k, v in zip(out, b(*out.values()))}
+
+
+# --------------------------------------------------------------------------- silo
+
+
+def silo_replay(initial_t, initial_frac, arrivals_t, arrivals_comp_t, caco3_need_t):
+    """Day-by-day replay of a well-mixed limestone silo.
+
+    Each day the day's deliveries join the silo first and mix completely with what is
+    there; the scrubber then draws stone of that mix, as many tonnes as carry the day's
+    CaCO3 need.  Drawing does not change the mix, so the stone fed on a day and the stock
+    left at its end have the same composition.
+
+    Parameters
+    ----------
+    initial_t : stock at the start of the first day [t]
+    initial_frac : its composition, one fraction per component, CaCO3 first [-]
+    arrivals_t : stone delivered per day, shape (days,) [t]
+    arrivals_comp_t : tonnes of each component delivered per day, shape (days, k) [t]
+    caco3_need_t : CaCO3 the scrubber (and sorbent injection) needs per day [t]
+
+    Returns
+    -------
+    dict with ``level_t`` (end of day [t]), ``frac`` (composition of the stone fed,
+    (days, k) [-]), ``stone_t`` (stone drawn [t]) and ``unmet_caco3_t`` (CaCO3 the
+    empty silo could not give [t]).  On a day the silo is empty after deliveries the
+    composition of the last stone seen is carried forward.
+
+    References
+    ----------
+    Haverly, C. A. (1978), "Studies of the behavior of recursion for the pooling
+    problem", ACM SIGMAP Bulletin 25:19-28: a pool (here the silo) whose outflow has
+    the quality of its mixed contents.
+    """
+    arrivals_t = np.asarray(arrivals_t, dtype=float)
+    comp = np.asarray(arrivals_comp_t, dtype=float)
+    need = np.asarray(caco3_need_t, dtype=float)
+    n = len(need)
+    frac0 = np.asarray(initial_frac, dtype=float)
+    level = float(initial_t)
+    mass = frac0 * level
+    last = frac0.copy()
+    out_level, out_frac = np.empty(n), np.empty((n, len(frac0)))
+    stone, unmet = np.zeros(n), np.zeros(n)
+    for d in range(n):
+        level += arrivals_t[d]
+        mass = mass + comp[d]
+        if level > 1e-9 and mass[0] > 1e-12:
+            last = mass / level
+        if mass[0] >= need[d]:
+            drawn = need[d] / last[0]
+            stone[d] = drawn
+            level -= drawn
+            mass = mass - drawn * last
+        else:
+            stone[d] = level
+            unmet[d] = need[d] - max(mass[0], 0.0)
+            level, mass = 0.0, np.zeros_like(mass)
+        out_level[d] = max(level, 0.0)
+        out_frac[d] = last
+    return {"level_t": out_level, "frac": out_frac, "stone_t": stone, "unmet_caco3_t": unmet}
 
 
 #: Columns of ``balance.csv``: the contract's first, then the additions.
@@ -358,16 +441,22 @@ BALANCE_COLUMNS = (
     "limestone_injection_t", "gypsum_dry_t", "gypsum_moisture_pct", "gypsum_chloride_ppm",
     "fly_ash_loi_pct", "fly_ash_so3_pct", "so2_lb_per_mmbtu", "so2_kg_per_mwh",
     "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj", "so2_over_limit",
+    "limestone_caco3_pct", "caco3_need_t", "gypsum_inerts_t",
 )
 
 
-def balance_frame(scenario: Scenario) -> pd.DataFrame:
+def balance_frame(scenario: Scenario, caco3_pct=None) -> pd.DataFrame:
     """The deterministic daily balance of a scenario, one row per planned day.
 
     Columns as `BALANCE_COLUMNS`; ``so2_over_limit`` is true where the rolling average
-    [kg/GJ] is above the permit limit.
+    [kg/GJ] is above the permit limit.  ``caco3_pct`` [%], one value per day, is the CaCO3
+    of the stone fed (the silo's mix under a plan); without it the scrubber sheet's
+    ``limestone_caco3_pct`` (with its period settings) holds.
     """
-    res = mass_balance(scenario_drivers(scenario), BalanceParams.from_scenario(scenario))
+    params = BalanceParams.from_scenario(scenario)
+    if caco3_pct is not None:
+        params = replace(params, caco3=np.asarray(caco3_pct, dtype=float)[None, :] / 100)
+    res = mass_balance(scenario_drivers(scenario), params)
     frame = pd.DataFrame({k: v[0] for k, v in res.items()})
     frame.insert(0, "date", scenario.dates)
     frame["so2_over_limit"] = frame["so2_rolling_kg_per_gj"] > frame["so2_limit_kg_per_gj"]

@@ -82,8 +82,11 @@ def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_li
                      solver=solver, time_limit=time_limit, progress=progress)
     risk = None
     if fut is not None:
+        from .schedule.plan import flows_at_plan_stone
+
         so2 = {k: fut.flows[k] for k in SO2_FLOWS if k in fut.flows}
-        risk = replay(plan, flows, so2=so2 if len(so2) == len(SO2_FLOWS) else None)
+        risk = replay(plan, flows_at_plan_stone(plan, flows, balance),
+                      so2=so2 if len(so2) == len(SO2_FLOWS) else None)
     from .schedule.lanes import contract_month_note
 
     return PlanRun(plan, fut, risk, {"contract_months": contract_month_note(scenario)})

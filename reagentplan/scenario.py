@@ -117,6 +117,11 @@ class SupplierLane:
     max_t_per_month: float | None
     caco3_pct: float | None
     months: frozenset[int] = frozenset(range(12))
+    mgco3_pct: float | None = None
+    tier_loads_per_month: int | None = None
+    tier_freight_per_load: float | None = None
+    shortfall_per_t: float | None = None
+    train_set: str | None = None
 
     @property
     def lane(self) -> str:
@@ -147,10 +152,20 @@ class BuyerLane:
     max_loi_pct: float | None
     max_so3_pct: float | None
     months: frozenset[int]
+    shortfall_per_t: float | None = None
 
     @property
     def lane(self) -> str:
         return f"{self.buyer} {self.material} {self.mode}"
+
+
+@dataclass(frozen=True)
+class TrainSet:
+    """Rail cars shared by lanes: at most ``max_trains`` arrivals in any ``window_days``."""
+
+    train_set: str
+    max_trains: int
+    window_days: int
 
 
 @dataclass(frozen=True)
@@ -212,6 +227,17 @@ class Scenario:
     #: record; a lane not named moved none.  ``None`` = no record: the days before the
     #: start are assumed to have used each contract at its even pace.
     month_to_date: dict[str, float] | None = None
+    train_sets: tuple[TrainSet, ...] = ()
+
+    def stone_caco3_pct(self, lane: SupplierLane) -> float:
+        """CaCO3 of a supplier row's stone [%]: its own value, else the scrubber sheet's."""
+        return self.scrubber.limestone_caco3_pct if lane.caco3_pct is None else lane.caco3_pct
+
+    @property
+    def quality_coupled(self) -> bool:
+        """True when some supplier row gives its stone's CaCO3: the silo then mixes
+        deliveries of different stone and the plan prices the chemistry."""
+        return any(s.caco3_pct is not None for s in self.suppliers)
 
     @property
     def dates(self) -> pd.DatetimeIndex:
@@ -767,10 +793,34 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
+    train_sets = _check_train_sets(recs["train_sets"], recs["suppliers"], out)
     out.fail()
     return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
                     disposal, firm, history, quality, source_name, closures, periods,
-                    tuple(out.warnings))
+                    warnings=tuple(out.warnings), train_sets=train_sets)
+
+
+def _check_train_sets(records, suppliers, out: _Collector) -> tuple[TrainSet, ...]:
+    """Train sets, each named by at least one rail supplier row and every supplier's
+    ``train_set`` known; a stone's CaCO3 + MgCO3 at most 100 %."""
+    sets = tuple(_make(TrainSet, r) for r in records)
+    names = [t.train_set for t in sets]
+    for r in suppliers:
+        if r.get("train_set") is not None:
+            if r["train_set"] not in names:
+                out.add("suppliers", r["_row"], "train_set", f"found '{r['train_set']}'",
+                        "a train_set named on the train_sets sheet" + _did_you_mean(r["train_set"], names))
+            elif r["mode"] != "rail":
+                out.add("suppliers", r["_row"], "train_set", f"found a train set on a {r['mode']} lane",
+                        "a train set only on rail lanes")
+        if (r.get("caco3_pct") or 0) + (r.get("mgco3_pct") or 0) > 100:
+            out.add("suppliers", r["_row"], "mgco3_pct",
+                    f"found CaCO3 {r.get('caco3_pct')} + MgCO3 {r.get('mgco3_pct')} > 100 %",
+                    "CaCO3 + MgCO3 of at most 100 %")
+        if (r.get("tier_loads_per_month") is None) != (r.get("tier_freight_per_load") is None):
+            out.add("suppliers", r["_row"], "tier_freight_per_load", "found only one of the two tier columns",
+                    "tier_loads_per_month and tier_freight_per_load together")
+    return sets
 
 
 def _make(cls, record: dict[str, Any]):

@@ -82,6 +82,9 @@ PLAUSIBLE: dict[str, Range] = {
                         what="Ca/S ratio"),
     "limestone_caco3_pct": Range((50, 100), (85, 99), "scrubber-grade limestone is 90-98 % CaCO3 "
                                  "(common practice, no source)", what="CaCO3 of the limestone"),
+    "mgco3_pct": Range((0, 50), (0, 5), "scrubber-grade limestone carries a few per cent MgCO3 at "
+                       "most; dolomitic stone far more (common practice, no source)",
+                       what="MgCO3 of the limestone"),
     "oxidation_pct": Range((0, 100), (90, 100), "forced oxidation converts over 99 % of the sulfite "
                            "(common practice, no source)", what="sulfite oxidised"),
     "gypsum_moisture_pct": Range((0, 60), (5, 15), "vacuum-belt or centrifuge cake holds 8-12 % free "
@@ -272,7 +275,7 @@ SCRUBBER = Sheet(
               note="SO2 removal across the scrubber (cfb: in-bed capture)"),
         Field("ca_s_ratio", "number", False, 1.03, 1, 5, unit="mol/mol",
               note="mol CaCO3 fed per mol SO2 removed (cfb bed: 2-3)"),
-        pct("limestone_caco3_pct", "CaCO3 in the limestone as fed, dry basis", 94.0, lo=50.0),
+        pct("limestone_caco3_pct", "CaCO3 of the stone in the silo on the first day, dry (each delivery then mixes in at its quarry's caco3_pct)", 94.0, lo=50.0),
         pct("oxidation_pct", "sulfite oxidised to sulfate", 99.0),
         Field("gypsum_moisture_pct", "number", False, 10.0, 0, 60, unit="%",
               note="free moisture of the dewatered cake"),
@@ -386,11 +389,16 @@ SUPPLIERS = Sheet(
         Field("max_t_per_month", "number", False, None, 0, None, unit="t/month",
               note="contract maximum per month; empty = none", example=40000),
         Field("caco3_pct", "number", False, None, 50, 100, unit="%",
-              note="CaCO3 of this limestone; empty = the scrubber sheet's value", example=94,
+              note="CaCO3 of this quarry's stone, dry; empty = the scrubber sheet's value (the stone in the silo on the first day)", example=94,
               range_key="limestone_caco3_pct"),
         Field("months", "months", False, None,
               note="months this row's terms apply (e.g. a seasonal freight rate); empty = all",
               example=""),
+        Field("mgco3_pct", "number", False, None, 0, 50, unit="%", note="MgCO3 of this stone, dry (counted as unreacted solids in the gypsum); empty = not given", example=1.5),
+        Field("tier_loads_per_month", "integer", False, None, 0, 10000, unit="loads/month", note="freight tier: loads a month at the full rate before the tier rate applies; empty = no tier", example=2),
+        Field("tier_freight_per_load", "number", False, None, 0, None, unit="money/load", note="freight per load for the loads above tier_loads_per_month in a month", example=80000),
+        Field("shortfall_per_t", "number", False, None, 0, None, unit="money/t", note="take-or-pay: paid per tonne short of the monthly minimum; empty = 25", example=9),
+        Field("train_set", "text", False, None, note="name of a train set (train_sets sheet) this rail lane shares; empty = none", example="Main set"),
     ),
 )
 
@@ -418,6 +426,7 @@ BUYERS = Sheet(
         _limit("max_loi_pct", "%", "maximum loss on ignition of the fly ash", 100),
         _limit("max_so3_pct", "%", "maximum SO3 of the fly ash", 100),
         _months,
+        Field("shortfall_per_t", "number", False, None, 0, None, unit="money/t", note="paid per tonne short of the buyer's monthly minimum (it may exceed what the station makes); empty = 25", example=6),
     ),
 )
 
@@ -493,6 +502,18 @@ LANE_CLOSURES = Sheet(
     note="days a lane cannot run: track work, quarry shutdown, buyer's plant outage",
 )
 
+TRAIN_SETS = Sheet(
+    "train_sets",
+    required=False,
+    key=("train_set",),
+    fields=(
+        Field("train_set", "text", note="name of a set of rail cars shared by lanes", example="Main set"),
+        Field("max_trains", "integer", True, None, 1, 1000, unit="trains", note="most trains of the set's lanes arriving in any window", example=3),
+        Field("window_days", "integer", True, None, 1, 366, unit="d", note="length of the rolling window (cycle time of the set)", example=10),
+    ),
+    note="a train set shared by rail lanes: at most max_trains arrivals in any window_days days",
+)
+
 #: Keys of `plant` and `scrubber` that `period_settings` may change for a span of days.
 PERIOD_KEYS = (
     "so2_conversion_pct", "fly_ash_loi_pct", "removal_pct", "ca_s_ratio", "limestone_caco3_pct",
@@ -518,6 +539,6 @@ PERIOD_SETTINGS = Sheet(
 SHEETS: tuple[Sheet, ...] = (
     PLANT, SCRUBBER, UNITS, GENERATION, COAL_SOURCES, COAL_BLEND, STORAGE, SUPPLIERS, BUYERS,
     DISPOSAL, FIRM_ORDERS, LANE_CLOSURES, PERIOD_SETTINGS, GENERATION_HISTORY,
-    COAL_QUALITY_HISTORY,
+    COAL_QUALITY_HISTORY, TRAIN_SETS,
 )
 SHEETS_BY_NAME: dict[str, Sheet] = {s.name: s for s in SHEETS}

@@ -8,6 +8,7 @@ import datetime as dt
 
 import numpy as np
 import pandas as pd
+from molmass import Formula
 
 from reagentplan.scenario import Scenario
 
@@ -119,6 +120,19 @@ def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
         used = mv.loc[(mv["party"] == d.site) & (mv["material"] == d.material), "tonnes"].sum()
         if d.airspace_t is not None and used > d.airspace_t + 1e-6:
             errors.append(f"{d.site} {d.material}: {used:.0f} t above the airspace")
+    # train sets: trains of the lanes sharing a set, in every rolling window
+    for ts in scn.train_sets:
+        names = {sp.lane for sp in scn.suppliers if sp.train_set == ts.train_set}
+        per_day = (mv[mv["lane"].isin(names)].groupby("date")["loads"].sum()
+                   .reindex(bal.index, fill_value=0).to_numpy(float))
+        for a in range(len(per_day)):
+            if per_day[a:a + ts.window_days].sum() > ts.max_trains:
+                errors.append(f"train set {ts.train_set}: {per_day[a:a + ts.window_days].sum():.0f} trains "
+                              f"in the {ts.window_days} days from {bal.index[a]:%Y-%m-%d}")
+    # stone quality: the well-mixed silo replayed from the deliveries, and every buyer's
+    # purity limit on every shipping day at the gypsum that silo makes
+    if any(sp.caco3_pct is not None for sp in scn.suppliers):
+        errors += check_silo(scn, mv, bal)
     # inventory: replay and compare
     inv = inventory.copy()
     inv["date"] = pd.to_datetime(inv["date"])
@@ -147,4 +161,105 @@ def check_plan(scn: Scenario, movements: pd.DataFrame, balance: pd.DataFrame,
                 day = f"{bal.index[i]:%Y-%m-%d}"
                 if not any(b["kind"] in (kind, "empty") and b["first_date"] <= day <= b["last_date"] for b in named):
                     errors.append(f"{store} {day}: {kind} but not listed as a breach")
+    return errors
+
+
+def _M(formula: str) -> float:
+    """Molar mass [g/mol], IUPAC standard atomic weights through `molmass` (not the
+    `periodictable` the model uses)."""
+    return Formula(formula).mass
+
+
+def _setting(scn: Scenario, key: str) -> np.ndarray:
+    base = getattr(scn.scrubber, key) if hasattr(scn.scrubber, key) else getattr(scn.plant, key)
+    out = np.full(len(scn.dates), float(base))
+    if scn.period_settings is not None:
+        for r in scn.period_settings.itertuples():
+            if r.key == key:
+                out[(scn.dates >= pd.Timestamp(r.first_date)) & (scn.dates <= pd.Timestamp(r.last_date))] = r.value
+    return out
+
+
+def silo_quality(scn: Scenario, movements: pd.DataFrame, bal: pd.DataFrame) -> pd.DataFrame:
+    """An independent replay of the well-mixed silo and of the gypsum it makes.
+
+    CaCO3 need per day from first principles (Ca/S × SO2 removed in the scrubber, CaCO3
+    for HCl at 1 per 2 HCl, sorbent injection at its Ca/S), deliveries from movements.csv
+    with each quarry row's CaCO3, the silo mixed after the day's deliveries; the cake is
+    gypsum + sulfite + excess CaCO3 + stone inerts + fly ash slip (Srivastava and
+    Jozewicz 2001), and its purity is the gypsum's share of it.
+    """
+    n = len(bal)
+    so2, caco3, cl = _M("SO2"), _M("CaCO3"), _M("Cl")
+    ca_s = _setting(scn, "ca_s_ratio")
+    inj = _setting(scn, "injection_removal_pct") / 100 if scn.plant.boiler == "pc" else np.zeros(n)
+    inj_removed = bal["so2_formed_t"].to_numpy(float) * inj
+    scrub_removed = bal["so2_removed_t"].to_numpy(float) - inj_removed
+    shares = scn.blend_matrix().to_numpy(float)
+    chlorine = shares @ np.array([c.chlorine_pct for c in scn.coal_sources])
+    hcl_caco3 = (bal["coal_t"].to_numpy(float) * chlorine / 100 * caco3 / (2 * cl)
+                 * (1 - _setting(scn, "prescrubber_hcl_removal_pct") / 100))
+    if scn.plant.boiler == "cfb":
+        hcl_caco3 = np.zeros(n)
+    need_scrub = scrub_removed / so2 * ca_s * caco3 + hcl_caco3
+    need = need_scrub + inj_removed / so2 * scn.scrubber.injection_ca_s_ratio * caco3
+    arrivals = np.zeros(n)
+    arrivals_caco3 = np.zeros(n)
+    day_of = {d: i for i, d in enumerate(bal.index)}
+    for r in movements[(movements["material"] == "limestone") & (movements["direction"] == "in")].itertuples():
+        row = [sp for sp in scn.suppliers if sp.lane == r.lane]
+        c = (row[0].caco3_pct if row and row[0].caco3_pct is not None else scn.scrubber.limestone_caco3_pct) / 100
+        i = day_of[pd.Timestamp(r.date)]
+        arrivals[i] += r.tonnes
+        arrivals_caco3[i] += r.tonnes * c
+    lime_caco3 = scn.storage["limestone"].initial_t * scn.scrubber.limestone_caco3_pct / 100
+    lime_other = scn.storage["limestone"].initial_t - lime_caco3
+    share = np.empty(n)
+    last = scn.scrubber.limestone_caco3_pct / 100
+    for d in range(n):
+        lime_caco3 += arrivals_caco3[d]
+        lime_other += arrivals[d] - arrivals_caco3[d]
+        if lime_caco3 + lime_other > 1e-9 and lime_caco3 > 1e-12:
+            last = lime_caco3 / (lime_caco3 + lime_other)
+        share[d] = last
+        take = min(need[d], lime_caco3)
+        lime_other -= max(take / last - take, 0.0)
+        lime_caco3 -= take
+        lime_other = max(lime_other, 0.0)
+    ox = _setting(scn, "oxidation_pct") / 100
+    esp = _setting(scn, "esp_efficiency_pct") / 100
+    mol = scrub_removed / so2
+    gypsum = mol * ox * _M("CaSO4(H2O)2")
+    cake = (gypsum + mol * (1 - ox) * (_M("CaSO3") + _M("H2O") / 2) + mol * (ca_s - 1) * caco3
+            + need_scrub * (1 / share - 1) + bal["fly_ash_t"].to_numpy(float) * (1 - esp) / esp)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        purity = np.where(cake > 0, 100 * gypsum / cake, np.nan)
+    return pd.DataFrame({"caco3_pct": 100 * share, "stone_t": need / share, "purity_pct": purity},
+                        index=bal.index)
+
+
+def check_silo(scn: Scenario, mv: pd.DataFrame, bal: pd.DataFrame) -> list[str]:
+    """The balance's stone, silo quality and purity against the independent replay, and
+    every gypsum buyer's purity limit on every day it is shipped."""
+    errors = []
+    q = silo_quality(scn, mv, bal)
+    shown = bal["limestone_caco3_pct"].to_numpy(float)
+    if not np.allclose(shown, q["caco3_pct"], atol=0.01):  # the two libraries' molar masses differ by ~1e-4
+        errors.append(f"silo CaCO3 in balance.csv differs from the replay (max "
+                      f"{np.abs(shown - q['caco3_pct']).max():.4f} %-points)")
+    stone = bal["limestone_t"].to_numpy(float)
+    if not np.allclose(stone, q["stone_t"], rtol=5e-4, atol=1e-6):
+        errors.append("limestone_t differs from the CaCO3 need at the silo's mix")
+    gp = bal["gypsum_purity_pct"].to_numpy(float)
+    ok = np.isnan(gp) | (np.abs(gp - q["purity_pct"].to_numpy()) < 0.02)
+    if not ok.all():
+        errors.append(f"gypsum purity differs from the replay on {int((~ok).sum())} day(s)")
+    for r in mv[(mv["material"] == "gypsum") & (mv["direction"] == "out")].itertuples():
+        rows = [b for b in scn.buyers if b.lane == r.lane]
+        if not rows or rows[0].min_purity_pct is None:
+            continue
+        p = q.loc[pd.Timestamp(r.date), "purity_pct"]
+        if not np.isnan(p) and p < rows[0].min_purity_pct - 0.005:
+            errors.append(f"{r.lane} {pd.Timestamp(r.date):%Y-%m-%d}: gypsum purity {p:.3f} % "
+                          f"(replayed silo) below the limit {rows[0].min_purity_pct}")
     return errors

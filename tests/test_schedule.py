@@ -9,6 +9,8 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from helpers import minimal_sheets, workbook_bytes, write_workbook
 from plancheck import check_plan
@@ -86,7 +88,7 @@ def test_periods_daily_then_weekly_cut_at_month_ends():
 @pytest.fixture(scope="module")
 def demo_plan(tmp_path_factory, demo_path):
     out = tmp_path_factory.mktemp("plan")
-    code = main(["plan", str(demo_path), "--out", str(out), "--futures", "0", "--time-limit", "60"])
+    code = main(["plan", str(demo_path), "--out", str(out), "--futures", "0", "--time-limit", "20"])
     return code, out
 
 
@@ -116,12 +118,12 @@ def test_demo_plan_keeps_every_rule(demo_plan, demo_path):
 def test_demo_baseline_also_keeps_the_rules(demo_path):
     """The yardstick obeys the same rules (calendars, lead times, quality, contracts)."""
     scn = load_scenario(demo_path)
-    r = make_plan(scn, firm_days=56, time_limit=30)
+    r = make_plan(scn, firm_days=56, time_limit=10)
     from reagentplan.schedule.plan import inventory_frame, movements_frame
 
     mv = movements_frame(scn, r.lanes, r.baseline, 56)
     inv = inventory_frame(scn, r.baseline_evaluation)
-    errors = check_plan(scn, mv.astype({"date": str}), r.balance, inv, r.baseline_evaluation.breaches)
+    errors = check_plan(scn, mv.astype({"date": str}), r.baseline_balance, inv, r.baseline_evaluation.breaches)
     assert errors == []
 
 
@@ -145,3 +147,105 @@ def test_random_small_scenarios(seed):
     errors = check_plan(scn, mv.astype({"date": str}), r.balance, r.inventory, r.breaches)
     assert errors == []
     assert r.evaluation.total_cost <= r.baseline_evaluation.total_cost + 1e-6 * abs(r.baseline_evaluation.total_cost) + 1e-6
+
+
+# ---------------------------------------------------------------- stone quality and terms
+
+
+def two_quarries(days=40, seed=0, good=96.0, cheap=89.0, price_cheap=9.0):
+    """A small station with a high-calcium quarry and a cheap low-grade one, a board plant
+    with a 94 % purity limit and a cement works at 88 % (invented values)."""
+    rng = np.random.default_rng(seed)
+    s = minimal_sheets(days=days)
+    s["scrubber"][3] = ["limestone_caco3_pct", good]
+    s["scrubber"][4] = ["oxidation_pct", 99]
+    s["storage"][1] = ["limestone", 3000, 300, float(rng.integers(600, 1500))]
+    s["storage"][2] = ["gypsum", float(rng.integers(900, 2000)), 0, 300]
+    hdr = s["suppliers"][0] + ["caco3_pct", "shortfall_per_t", "tier_loads_per_month",
+                               "tier_freight_per_load", "train_set"]
+    s["suppliers"] = [hdr,
+                      ["Good Quarry", "rail", 500, 1, int(rng.integers(1, 4)), "Mon-Fri", 15, 2000, None, None,
+                       good, None, 2, 1000, "Cars"],
+                      ["Cheap Quarry", "rail", 500, 1, int(rng.integers(1, 4)), "Mon,Wed,Fri", price_cheap, 2000,
+                       None, None, cheap, None, None, None, "Cars"]]
+    s["train_sets"] = [["train_set", "max_trains", "window_days"], ["Cars", 2, int(rng.integers(3, 6))]]
+    s["buyers"][1] = ["Board Co", "gypsum", "truck", 25, 20, "Mon-Fri", 6, 2000, 3000, 94, 12, 100,
+                      None, None, None]
+    s["buyers"][0] = s["buyers"][0] + ["shortfall_per_t"]
+    s["buyers"][1] = s["buyers"][1] + [2]
+    s["buyers"][2] = s["buyers"][2] + [None]
+    s["buyers"].append(["Cement Co", "gypsum", "truck", 25, 4, "Mon-Fri", 0.5, None, None, 88, 12, None,
+                        None, None, None, None])
+    return s
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_random_quality_scenarios_replay_independently(seed):
+    """Two stones in a well-mixed silo, freight tiers, a shared train set, a board plant's
+    purity limit: the independent replay (silo mix, stone drawn, purity on every shipping
+    day, train windows) finds nothing wrong with the plan or the baseline, the plan never
+    costs more than the baseline and never breaks more limits."""
+    rng = np.random.default_rng(100 + seed)
+    s = two_quarries(days=int(rng.integers(20, 45)), seed=seed, cheap=float(rng.choice([86.0, 89.0, 92.0])))
+    scn = load_scenario(workbook_bytes(s))
+    assert scn.quality_coupled
+    r = make_plan(scn, firm_days=int(rng.integers(5, 60)), time_limit=20)
+    assert check_plan(scn, r.movements.astype({"date": str}), r.balance, r.inventory, r.breaches) == []
+    from reagentplan.schedule.plan import inventory_frame, movements_frame
+
+    mv = movements_frame(scn, r.lanes, r.baseline, r.firm_days)
+    inv = inventory_frame(scn, r.baseline_evaluation)
+    assert check_plan(scn, mv.astype({"date": str}), r.baseline_balance, inv, r.baseline_evaluation.breaches) == []
+    assert r.evaluation.total_cost <= r.baseline_evaluation.total_cost + 1e-6 * abs(r.baseline_evaluation.total_cost)
+    assert len(r.breaches) <= len(r.baseline_evaluation.breaches)
+
+
+def test_replay_catches_a_balance_at_the_wrong_stone():
+    """The checker is not vacuous: the plan's movements against the balance at the
+    initial stone (not the silo the plan made) are caught whenever cheap stone came in."""
+    s = two_quarries(days=40, seed=1, cheap=86.0, price_cheap=5.0)
+    del s["buyers"][1]  # no board plant: nothing holds the cheap stone back
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=40, time_limit=20)
+    mv = r.movements
+    cheap = mv[(mv["lane"] == "Cheap Quarry rail")]
+    assert not cheap.empty  # at 5/t the cheap stone is bought
+    from reagentplan.balance import balance_frame
+
+    errors = check_plan(scn, mv.astype({"date": str}), balance_frame(scn), r.inventory, r.breaches)
+    assert any("silo CaCO3" in e for e in errors)
+
+
+@settings(max_examples=5, deadline=None)
+@given(c=st.floats(85.0, 99.0))
+def test_one_stone_plan_purity_is_the_balance(c):
+    """With one quarry whose stone is the silo's, the plan's gypsum purity is the plain
+    balance's, day by day."""
+    s = minimal_sheets(days=15)
+    s["scrubber"][3] = ["limestone_caco3_pct", c]
+    s["suppliers"][0] = s["suppliers"][0] + ["caco3_pct"]
+    s["suppliers"][1] = s["suppliers"][1] + [c]
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=15, time_limit=10)
+    from reagentplan.balance import balance_frame
+
+    plain = balance_frame(scn)
+    assert np.allclose(r.balance["gypsum_purity_pct"], plain["gypsum_purity_pct"], rtol=1e-9, equal_nan=True)
+    assert np.allclose(r.balance["limestone_t"], plain["limestone_t"], rtol=1e-9)
+
+
+def test_freight_tier_and_shortfall_rate_are_priced():
+    """Tier: 2 loads a month at 2,000, the rest at 1,000; take-or-pay at the contract's own
+    rate.  Hand check on a plan: freight = 2,000 × min(loads, 2) + 1,000 × the rest, per
+    month; a buyer 2,000 t/month minimum short by X t costs 2 × X."""
+    s = two_quarries(days=30, seed=2)
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=30, time_limit=20)
+    mv = r.movements
+    good = mv[mv["lane"] == "Good Quarry rail"]
+    loads = good.groupby(pd.to_datetime(good["date"]).dt.to_period("M"))["loads"].sum()
+    expected = sum(2000 * min(n, 2) + 1000 * max(n - 2, 0) for n in loads)
+    cheap = mv[mv["lane"] == "Cheap Quarry rail"]["loads"].sum() * 2000
+    assert r.evaluation.costs["freight"] == pytest.approx(expected + cheap)
+    short = sum(x["tonnes"] for x in r.evaluation.shortfalls if x["lane"].startswith("Board Co"))
+    assert r.evaluation.costs["contract_penalty"] == pytest.approx(2 * short)

@@ -16,8 +16,9 @@ QUALITY_TABLE = "sales-quality-table"
 SEASON = "sales-season"
 LANDFILL = "sales-landfill"
 AIRSPACE = "sales-airspace"
-OUTPUTS = (SHIPMENTS, QUALITY, QUALITY_TABLE, SEASON, LANDFILL, AIRSPACE)
-FIGURE_OUTPUTS = (SHIPMENTS, QUALITY, SEASON, LANDFILL)
+SILO = "sales-silo"
+OUTPUTS = (SHIPMENTS, QUALITY, QUALITY_TABLE, SEASON, LANDFILL, AIRSPACE, SILO)
+FIGURE_OUTPUTS = (SHIPMENTS, QUALITY, SEASON, LANDFILL, SILO)
 
 
 def layout():
@@ -33,6 +34,7 @@ def layout():
             card(graph(SEASON, 430)),
             card(graph(LANDFILL, 320)),
             card(html.Div(id=AIRSPACE), title="Landfill airspace left"),
+            card(graph(SILO, 520)),
         ]),
     ])
 
@@ -74,6 +76,7 @@ def content(run) -> dict:
             row_class=lambda r: "soon" if r["days_off_spec"] > 0 else ""),
         SEASON: figures.season_figure(frames.buyer_season(scn, plan.lanes, totals, "fly_ash"), colours),
         LANDFILL: figures.landfill_figure(frames.landfill_monthly(mv)),
+        SILO: figures.silo_figure(*frames.silo_quality(plan), colours),
         AIRSPACE: html.Div([
             table(space, [
                 ("material", "Material", lambda x: MATERIAL_LABELS.get(x, x), False),

@@ -310,6 +310,9 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
         bar.set_categories(Reference(cws, min_col=start_col, min_row=2, max_row=len(pivot) + 1))
         cws.add_chart(bar, f"{get_column_letter(start_col)}{len(pivot) + 4}")
 
+    # --- stone in the silo and the gypsum it makes
+    _stone_sheet(wb, run)
+
     # --- balance, costs, assumptions
     ws = wb.create_sheet("Daily balance")
     bal = plan.balance.copy()
@@ -326,6 +329,59 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     _assumptions(wb.create_sheet("Assumptions"), run)
 
     return save_workbook(wb, path)
+
+
+def _stone_sheet(wb, run) -> None:
+    """The silo's CaCO3 by day, the gypsum's purity against each buyer's limit (a chart),
+    and every limestone delivery with its stone, marked where it was chosen for quality."""
+    from ..schedule.quality import deliveries_quality_frame, stone_frame
+
+    plan = run.plan
+    scn = plan.scenario
+    if "limestone_caco3_pct" not in plan.balance:
+        return
+    ws = wb.create_sheet("Stone and gypsum")
+    daily = stone_frame(scn, plan.balance).rename(columns={
+        "silo_caco3_pct": "silo CaCO3 [%]", "gypsum_purity_pct": "gypsum purity [%]",
+        "silo_mgco3_pct": "silo MgCO3 [%]"})
+    _title(ws, "Stone in the silo and the gypsum it makes",
+           "The silo is taken as well mixed: each day's deliveries mix with the stock, and the "
+           "scrubber draws that mix. Purity is the CaSO4.2H2O share of the dry cake.")
+    _frame_to_sheet(ws, daily, start_row=4, formats={c: "0.00" for c in daily.columns if "[%]" in c},
+                    widths={"date": 12})
+    n = len(daily)
+    cols = [daily.columns.get_loc(c) + 1 for c in daily.columns if c != "date" and "MgCO3" not in c]
+    chart = LineChart()
+    chart.title, chart.y_axis.title = "Silo CaCO3 and gypsum purity against buyers' limits", "%"
+    chart.height, chart.width = 10, 26
+    for j in cols:
+        chart.add_data(Reference(ws, min_col=j, min_row=4, max_row=n + 4), titles_from_data=True)
+    chart.set_categories(Reference(ws, min_col=1, min_row=5, max_row=n + 4))
+    for k, series in enumerate(chart.series):
+        series.graphicalProperties.line.solidFill = LINE_COLOURS[k % len(LINE_COLOURS)]
+        series.smooth = False
+    ws.add_chart(chart, f"{get_column_letter(len(daily.columns) + 2)}4")
+    deliveries = deliveries_quality_frame(scn, plan.lanes, plan.movements)
+    cur = scn.plant.currency
+    deliveries = deliveries.rename(columns={"tonnes": "tonnes [t]", "caco3_pct": "stone CaCO3 [%]",
+                                            "cost_per_t_caco3": f"delivered cost per t CaCO3 [{cur}/t]",
+                                            "chosen_for_quality": "chosen for quality",
+                                            "instead_of": "cheaper lower-grade stone open that day"})
+    start_col = len(daily.columns) + 2
+    first_row = 26
+    ws.cell(first_row - 1, start_col, "Limestone deliveries and the stone they bring").font = Font(bold=True)
+    for j, col in enumerate(deliveries.columns, start=start_col):
+        c = ws.cell(first_row, j, col)
+        c.fill, c.font = HEAD_FILL, HEAD_FONT
+    for i, row in enumerate(deliveries.itertuples(index=False), start=first_row + 1):
+        for j, v in enumerate(row, start=start_col):
+            if isinstance(v, pd.Timestamp):
+                v = v.date()
+            elif isinstance(v, np.generic):
+                v = v.item()
+            ws.cell(i, j, v)
+            if deliveries.columns[j - start_col] == "chosen for quality" and v:
+                ws.cell(i, j).fill = WATCH_FILL
 
 
 _UNITS = {"_t": "[t]", "_gj": "[GJ]", "_mwh": "[MWh]", "_pct": "[%]", "_ppm": "[ppm]",

@@ -21,7 +21,12 @@ def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluati
     out = []
     for b in ev.breaches:
         a, z = b["_first"], b["_last"]
-        if b["kind"] == "contract minimum not reached":
+        if b["kind"] == "shipped outside the buyer's limits":
+            b["cause"] = ("the day's product missed the buyer's quality limit (gypsum purity follows "
+                          "the stone in the silo); firm orders or a linearised silo put it there")
+        elif b["kind"] == "more trains than the set has":
+            b["cause"] = "firm orders book more trains than the set has in its window"
+        elif b["kind"] == "contract minimum not reached":
             lane = next(l for l in lanes if b["store"].startswith(l.name))
             b["cause"] = _contract_min_cause(lane, a, z, month_index)
         elif b["store"] == "limestone" and b["kind"] == "above capacity":

@@ -24,6 +24,48 @@ CONTRACT_PENALTY_PER_T = 25.0
 PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
 
 
+def shortfall_rate(lane: Lane) -> float:
+    """Money per tonne short of a lane's monthly minimum: the contract's own
+    ``shortfall_per_t`` (take-or-pay), else `CONTRACT_PENALTY_PER_T` [money/t]."""
+    rate = getattr(lane.source, "shortfall_per_t", None)
+    return CONTRACT_PENALTY_PER_T if rate is None else float(rate)
+
+
+def freight_by_day(lane: Lane, loads: np.ndarray, month_index: np.ndarray) -> np.ndarray:
+    """Freight per day [money] of a supply lane's loads: the full rate for the first
+    ``tier_loads_per_month`` loads of each month, the tier rate for the rest (in date order)."""
+    loads = np.asarray(loads, dtype=float)
+    src = lane.source
+    n_tier = getattr(src, "tier_loads_per_month", None)
+    if lane.kind != SUPPLY or n_tier is None:
+        return loads * lane.cost_per_load
+    tier = float(src.tier_freight_per_load)
+    out = np.zeros(len(loads))
+    for k in np.unique(month_index):
+        days = np.flatnonzero(month_index == k)
+        cum = np.cumsum(loads[days])
+        before = cum - loads[days]
+        full = np.clip(np.minimum(cum, n_tier) - before, 0, None)
+        out[days] = full * lane.cost_per_load + (loads[days] - full) * tier
+    return out
+
+
+def train_set_excess(scenario: Scenario, lanes: list[Lane], quantity: dict[str, np.ndarray]) -> list[tuple[str, int, int]]:
+    """Windows where a train set runs more trains than it has: (set, first day, trains)."""
+    out = []
+    for ts in scenario.train_sets:
+        trains = sum((np.asarray(quantity[l.name], float) for l in lanes
+                      if l.kind == SUPPLY and getattr(l.source, "train_set", None) == ts.train_set),
+                     np.zeros(len(scenario.dates)))
+        c = np.r_[0.0, np.cumsum(trains)]
+        n = len(trains)
+        for d in range(n):
+            w = c[min(d + ts.window_days, n)] - c[d]
+            if w > ts.max_trains + 1e-9:
+                out.append((ts.train_set, d, int(w)))
+    return out
+
+
 @dataclass
 class DailyPlan:
     """Quantities per lane and day: loads (supply, sale) or tonnes (landfill).
@@ -47,6 +89,8 @@ class Evaluation:
     total_cost: float
     breaches: list[dict]
     month_totals: dict[str, np.ndarray]    # lane -> tonnes per horizon month
+    shortfalls: list[dict] = field(default_factory=list)  # take-or-pay shortfalls paid at the contract's rate
+    end_parts: dict = field(default_factory=dict)  # end_stock_value split: limestone credit, byproduct charge
 
 
 def store_levels(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
@@ -88,25 +132,38 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     month_index, months, _ = horizon_months(scenario.dates)
     costs = dict.fromkeys(["limestone_purchase", "freight", "byproduct_sales", "landfill",
                            "shortage_penalty", "overflow_penalty", "empty_penalty",
-                           "contract_penalty", "end_stock_value"], 0.0)
+                           "contract_penalty", "quality_penalty", "end_stock_value"], 0.0)
     month_totals: dict[str, np.ndarray] = {}
     breaches: list[dict] = []
+    shortfalls: list[dict] = []
     for lane in lanes:
         t = plan.tonnes(lane)
         q = plan.quantity[lane.name]
         if lane.kind == SUPPLY:
             costs["limestone_purchase"] += float(lane.cost_per_t * t.sum())
-            costs["freight"] += float(lane.cost_per_load * q.sum())
+            costs["freight"] += float(freight_by_day(lane, q, month_index).sum())
         elif lane.kind == SALE:
             costs["byproduct_sales"] += float(lane.cost_per_t * t.sum())
+            bad = off_spec_days(lane, balance) & (t > 0)
+            if bad.any():
+                costs["quality_penalty"] += float(p.overflow_penalty_per_t * t[bad].sum())
+                for a, b in _runs(bad):
+                    breaches.append(_breach(f"{lane.name} (quality)", scenario.dates, a, b,
+                                            t[a:b + 1].sum(), "shipped outside the buyer's limits"))
         else:
             costs["landfill"] += float(lane.cost_per_t * t.sum())
         totals = np.bincount(month_index, weights=t, minlength=len(months))
         month_totals[lane.name] = totals
         short = np.nan_to_num(lane.month_min_t - totals, nan=0.0).clip(min=0)
-        costs["contract_penalty"] += float(CONTRACT_PENALTY_PER_T * short.sum())
+        costs["contract_penalty"] += float(shortfall_rate(lane) * short.sum())
+        signed_rate = getattr(lane.source, "shortfall_per_t", None) is not None
         for k in np.flatnonzero(short > 1e-6):
             days = np.flatnonzero(month_index == k)
+            if signed_rate:
+                # take-or-pay as signed: the shortfall is paid at the contract's rate, a cost
+                shortfalls.append({"lane": lane.name, "month": f"{months[k]}", "tonnes": round(float(short[k]), 1),
+                                   "cost": round(float(short[k] * shortfall_rate(lane)), 2)})
+                continue
             breaches.append(_breach(f"{lane.name} (contract minimum)", scenario.dates, days[0], days[-1],
                                     short[k], "contract minimum not reached"))
     for store, level in levels.items():
@@ -119,15 +176,35 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             breaches.append(_breach(store, scenario.dates, a, b, below[a:b + 1].max(), "below safety stock"))
         for a, b in _runs(above > 1e-6):
             breaches.append(_breach(store, scenario.dates, a, b, above[a:b + 1].max(), "above capacity"))
+    for name, a, trains in train_set_excess(scenario, lanes, plan.quantity):
+        breaches.append(_breach(f"train set {name}", scenario.dates, a, a, trains, "more trains than the set has"))
     costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
     for a, b in _runs(unmet > 1e-6):
         breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
-    end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    if scenario.quality_coupled:
+        from .model import end_caco3_value
+
+        caco3_end = float(balance["limestone_caco3_pct"].iloc[-1]) / 100
+        end_value = -end_caco3_value(scenario, None) * levels["limestone"][-1] * caco3_end
+    else:
+        end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    end_parts = {"limestone": float(end_value), "byproducts": 0.0}
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in levels:
-            end_value += cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
+            charge = cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
+            end_value += charge
+            end_parts["byproducts"] += float(charge)
     costs["end_stock_value"] = float(end_value)
-    return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals)
+    return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals, shortfalls,
+                      end_parts)
+
+
+def off_spec_days(lane: Lane, balance: pd.DataFrame) -> np.ndarray:
+    """Days on which the day's product breaks one of a buyer's quality limits [bool]."""
+    from .lanes import quality_ok
+
+    ok, _why = quality_ok(lane.source, balance)
+    return ~ok
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:

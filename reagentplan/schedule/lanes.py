@@ -132,8 +132,11 @@ def contract_month_note(scenario: Scenario) -> str:
     return "; ".join(parts) if parts else "the plan covers whole calendar months"
 
 
-def quality_ok(lane: BuyerLane, balance: pd.DataFrame) -> tuple[np.ndarray, list[str]]:
-    """Days on which the day's product meets the buyer's limits, and the failing limit."""
+def quality_ok(lane: BuyerLane, balance: pd.DataFrame, *, purity: bool = True) -> tuple[np.ndarray, list[str]]:
+    """Days on which the day's product meets the buyer's limits, and the failing limit.
+
+    ``purity`` false leaves the gypsum purity out: with stone of several qualities the
+    purity follows the plan's own silo, and the model (`quality.py`) decides it."""
     n = len(balance)
     ok = np.ones(n, dtype=bool)
     why = [""] * n
@@ -147,7 +150,7 @@ def quality_ok(lane: BuyerLane, balance: pd.DataFrame) -> tuple[np.ndarray, list
                   ("max_so3_pct", "fly_ash_so3_pct", "SO3", 1)]
     for attr, column, label, sign in checks:
         limit = getattr(lane, attr)
-        if limit is None:
+        if limit is None or (attr == "min_purity_pct" and not purity):
             continue
         value = balance[column].to_numpy(dtype=float)
         # a day with no product (NaN) has nothing of its own to fail: stock from earlier days
@@ -176,8 +179,12 @@ def _calendar_why(scenario: Scenario, lane) -> tuple[np.ndarray, list[str]]:
     return open_, why
 
 
-def build_lanes(scenario: Scenario, balance: pd.DataFrame) -> list[Lane]:
-    """All lanes of the scenario with their daily calendars and pro-rated limits."""
+def build_lanes(scenario: Scenario, balance: pd.DataFrame, exact_quality: bool = False) -> list[Lane]:
+    """All lanes of the scenario with their daily calendars and pro-rated limits.
+
+    With stone of several qualities the gypsum purity is left out of the buyers' open
+    days (the plan decides it), unless ``exact_quality``: ``balance`` is then the balance
+    of a plan's own silo and its purity closes the days it fails."""
     dates = scenario.dates
     _, months, share = horizon_months(dates)
     span = month_span(dates)
@@ -199,7 +206,7 @@ def build_lanes(scenario: Scenario, balance: pd.DataFrame) -> list[Lane]:
                           limit(s, "max_t_per_month", "max"), np.inf, tuple(why), s))
     for b in scenario.buyers:
         open_, why = _calendar_why(scenario, b)
-        q_ok, q_why = quality_ok(b, balance)
+        q_ok, q_why = quality_ok(b, balance, purity=exact_quality or not scenario.quality_coupled)
         why = [w or (q if not q_ok[i] else "") for i, (w, q) in enumerate(zip(why, q_why))]
         lanes.append(Lane(SALE, b.material, b.buyer, b.mode, b.lane, b.load_t, b.max_loads_per_day,
                           open_ & q_ok, -b.price_per_t, 0.0, 0,
@@ -246,3 +253,24 @@ def cheapest_disposal_cost(scenario: Scenario, material: str) -> float:
     costs = [d.cost_per_t for d in scenario.disposal if d.material == material]
     return min(costs) if costs else 0.0
 
+
+
+def train_set_room(scenario: Scenario, lanes: list[Lane], quantity: dict[str, np.ndarray],
+                   lane: Lane, day: int) -> bool:
+    """True when one more train of ``lane`` arriving on ``day`` keeps its train set
+    (if any) within ``max_trains`` in every ``window_days`` window that holds the day."""
+    name = getattr(lane.source, "train_set", None)
+    if name is None:
+        return True
+    ts = next(t for t in scenario.train_sets if t.train_set == name)
+    members = [l for l in lanes if l.kind == SUPPLY and getattr(l.source, "train_set", None) == name]
+    n = len(scenario.dates)
+    lo, hi = max(0, day - ts.window_days + 1), min(n, day + ts.window_days)
+    trains = sum((np.asarray(quantity[l.name][lo:hi], float) for l in members), np.zeros(hi - lo))
+    trains[day - lo] += 1
+    c = np.r_[0.0, np.cumsum(trains)]
+    w = ts.window_days
+    for a in range(0, max(1, len(trains) - w + 1)):
+        if c[min(a + w, len(trains))] - c[a] > ts.max_trains + 1e-9:
+            return False
+    return True

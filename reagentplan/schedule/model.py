@@ -34,8 +34,11 @@ import pandas as pd
 from ortools.math_opt.python import mathopt
 
 from ..scenario import Scenario
-from .evaluate import EMPTY_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, PRODUCTION, DailyPlan
+from .evaluate import EMPTY_PENALTY_FACTOR, PRODUCTION, DailyPlan, shortfall_rate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+
+#: Share of the limestone safety stock the quality-coupled model keeps above it [-].
+SILO_SAFETY_MARGIN = 0.03
 
 #: Weight of a guarded (worse-future) shortfall against a planned one: the plan first keeps
 #: its own median levels inside the limits, then buys what protection it can.
@@ -75,8 +78,10 @@ class SolveOutcome:
 def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                firm: dict[str, tuple[np.ndarray, np.ndarray]], guard: dict[str, np.ndarray],
                *, firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-               gap: float = 1e-5, hint: DailyPlan | None = None,
-               progress: bool = False) -> SolveOutcome:
+               gap: float = 5e-4, hint: DailyPlan | None = None,
+               progress: bool = False, chem=None, around: DailyPlan | None = None,
+               scale: float | None = None, fixed: dict | None = None,
+               to_days: bool = True) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -84,22 +89,41 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     n = len(scenario.dates)
     t0 = time.perf_counter()
     periods = build_periods(scenario.dates, firm_days)
+    lin = None
+    if chem is not None:
+        lin = chem.linearisation(lanes, around if around is not None else hint, periods,
+                                 _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
-                           hint, progress=progress, label=f"plan ({solver})")
+                           hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
+                           scale=scale, fixed=fixed)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
-    if len(periods) < n:
+    if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
         totals = {lane.name: [(a, b, first["qty"][lane.name][k]) for k, (a, b) in enumerate(periods)
                               if b > a] for lane in lanes}
         left = max(time_limit - (time.perf_counter() - t0), 5.0)
         try:
+            lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
-                                    plan, totals, progress=progress, label="outlook to days")
+                                    plan, totals, progress=progress, label="outlook to days",
+                                    chem=chem, lin=lin2, fixed=fixed)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
     return SolveOutcome(plan, solver, first["status"], first["objective"], first["bound"],
                         first["gap"], time.perf_counter() - t0)
+
+
+def _silo_floor(scenario: Scenario) -> float:
+    """Smallest silo CaCO3 [t] the linearisation divides by (a tenth of the safety stock,
+    at least 1 t), so a nearly empty silo does not blow up the first-order term."""
+    return max(0.1 * scenario.storage["limestone"].safety_t, 1.0)
+
+
+def end_caco3_value(scenario: Scenario, chem) -> float:
+    """Money per tonne of CaCO3 left in the silo at the end [money/t]: the cheapest
+    delivered cost of a tonne of CaCO3 over the supply lanes."""
+    return min(s.delivered_cost_per_t / (scenario.stone_caco3_pct(s) / 100) for s in scenario.suppliers)
 
 
 class SolveProgress:
@@ -168,7 +192,8 @@ class SolveProgress:
 
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
-                   label: str = "solving") -> dict:
+                   label: str = "solving", chem=None, lin=None, scale: float | None = None,
+                   fixed: dict | None = None) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
     dates = scenario.dates
     n = len(dates)
@@ -207,7 +232,41 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             x[lane.name] = [m.add_variable(lb=0, ub=float(ub[k]), name=f"t[{lane.name},{k}]")
                             if ub[k] > 0 else None for k in range(P)]
             unit_cost = lane.cost_per_t
+        if fixed and lane.name in fixed:
+            # decided already (the stone of a plan whose byproducts are being re-planned)
+            q = per_period(np.asarray(fixed[lane.name], float) - f_loads)
+            for k, v in enumerate(x[lane.name]):
+                if v is not None:
+                    v.lower_bound = v.upper_bound = float(max(q[k], 0.0))
         cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
+
+    # ---- stone quality: gypsum sales that need the silo's stone good enough (quality.py)
+    quality_rows = []
+    if chem is not None:
+        for lane in lanes:
+            limit = getattr(lane.source, "min_purity_pct", None)
+            if lane.kind != SALE or lane.material != "gypsum" or limit is None:
+                continue
+            # one decision per buyer and month: ship it, and keep the silo's stone good
+            # enough in every period it is shipped, or not
+            u_max = chem.u_max(limit)
+            z_month = {}
+            for k, v in enumerate(x[lane.name]):
+                if v is None:
+                    continue
+                a, b = periods[k]
+                um = float(np.min(u_max[a:b + 1]))
+                if um >= chem.u_hi:
+                    continue
+                if um < chem.u_lo:
+                    v.upper_bound = 0.0
+                    continue
+                j = int(period_month[k])
+                if j not in z_month:
+                    z_month[j] = m.add_binary_variable(name=f"q[{lane.name},{j}]")
+                m.add_linear_constraint(v <= v.upper_bound * z_month[j])
+                quality_rows.append((k, um, z_month[j]))
+    silo_after = {}
 
     def tonnes(lane: Lane, k: int):
         v = x[lane.name][k]
@@ -241,13 +300,54 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             if not np.isnan(lo) and lo > 0:
                 short = m.add_variable(lb=0, ub=lo, name=f"cshort[{lane.name},{j}]")
                 m.add_linear_constraint(total + short >= lo)
-                cost_terms.append(CONTRACT_PENALTY_PER_T * short)
+                cost_terms.append(shortfall_rate(lane) * short)
+            n_tier = getattr(lane.source, "tier_loads_per_month", None)
+            if lane.kind == SUPPLY and n_tier is not None:
+                # freight tier: loads above n_tier in the month at the tier rate.  extra is
+                # the loads above the tier; z = 1 only when the month reaches it
+                loads = sum((x[lane.name][k] for k in ks if x[lane.name][k] is not None), 0.0)
+                loads = loads + float(sum(firm.get(lane.name, (np.zeros(n, int), None))[0][pid == k].sum()
+                                          for k in ks))
+                most_loads = float(sum(x[lane.name][k].upper_bound for k in ks if x[lane.name][k] is not None))
+                most_loads += float(sum(firm.get(lane.name, (np.zeros(n, int), None))[0][pid == k].sum() for k in ks))
+                if most_loads > n_tier:
+                    extra = m.add_variable(lb=0, ub=most_loads - n_tier, name=f"tier[{lane.name},{j}]")
+                    z = m.add_binary_variable(name=f"tierz[{lane.name},{j}]")
+                    m.add_linear_constraint(extra <= (most_loads - n_tier) * z)
+                    m.add_linear_constraint(extra <= loads - n_tier + (n_tier + 0.0) * (1 - z))
+                    cost_terms.append((float(lane.source.tier_freight_per_load) - lane.cost_per_load) * extra)
+    # ---- train sets: at most max_trains arrivals of the set's lanes in any window_days days
+    for ts in scenario.train_sets:
+        members = [l for l in lanes if l.kind == SUPPLY and getattr(l.source, "train_set", None) == ts.train_set]
+        if not members:
+            continue
+        starts = np.array([a for a, _ in periods])
+        ends = np.array([b for _, b in periods])
+        seen = set()
+        for d in range(n):
+            inside = tuple(np.flatnonzero((starts >= d) & (ends <= d + ts.window_days - 1)))
+            if not inside or inside in seen:
+                continue
+            seen.add(inside)
+            terms = [x[l.name][k] for l in members for k in inside if x[l.name][k] is not None]
+            booked_loads = float(sum(firm.get(l.name, (np.zeros(n, int), None))[0][starts[k]:ends[k] + 1].sum()
+                                     for l in members for k in inside))
+            if terms:
+                m.add_linear_constraint(sum(terms, 0.0) <= max(ts.max_trains, booked_loads) - booked_loads)
+        for k, (a, b) in enumerate(periods):  # a bucket longer than the window
+            length = b - a + 1
+            if length > ts.window_days:
+                terms = [x[l.name][k] for l in members if x[l.name][k] is not None]
+                if terms:
+                    m.add_linear_constraint(sum(terms, 0.0) <= ts.max_trains * int(np.ceil(length / ts.window_days)))
         if lane.kind == LANDFILL and np.isfinite(lane.airspace_t):
             m.add_linear_constraint(sum((v for v in x[lane.name] if v is not None), 0.0) <= lane.airspace_t)
 
     # ---- stores
     end_value = []
-    for store, st in scenario.storage.items():
+    silo_inerts: list = []
+    # limestone first: the gypsum made depends on the stone the silo feeds
+    for store, st in sorted(scenario.storage.items(), key=lambda kv: kv[0] != "limestone"):
         if store == "limestone":
             flow = -per_period(balance["limestone_t"].to_numpy(float))
             ins = [l for l in lanes if l.kind == SUPPLY]
@@ -256,11 +356,15 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             flow = per_period(balance[PRODUCTION[store]].to_numpy(float))
             ins = []
             outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
-        if solver == "cp-sat":
-            # CP-SAT scales the model to integers: an equality with a fractional constant
-            # has no solution there, so it plans whole tonnes (rounded cumulatively, so the
-            # horizon total stays within half a tonne)
-            flow = np.diff(np.round(np.cumsum(flow)), prepend=0.0)
+        flow_expr = None
+        if chem is not None and store == "gypsum":
+            # wet cake = (cake without stone inerts + the inerts drawn with the scrubber's
+            # share of the CaCO3) / (1 − moisture); the inerts drawn come from the silo
+            base = per_period(chem.cake_base * chem.wet_factor)
+            share = per_period(chem.need_gypsum * chem.wet_factor) / np.maximum(per_period(chem.need), 1e-9)
+            flow_expr = [float(base[k]) + float(share[k]) * silo_inerts[k] for k in range(P)]
+            flow = per_period(chem.cake_base * chem.wet_factor + chem.need_gypsum * chem.wet_factor
+                              * (chem.u_hi - 1.0))  # for the bounds below: the most it can make
         g = guard.get(store)
         g_end = np.zeros(P) if g is None else np.array([g[b] for _, b in periods])
         # finite bounds everywhere (CP-SAT needs them; they also tighten the others)
@@ -276,13 +380,40 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         prev = round(st.initial_t) if solver == "cp-sat" else st.initial_t
         margin = 3.0 if solver == "cp-sat" else 0.0  # room for the rounding to whole tonnes
         safety, capacity = st.safety_t + margin, st.capacity_t - margin
+        if chem is not None and store == "limestone":
+            # room for the fixed ratio of inerts drawn (quality.py): the replayed silo may
+            # draw a little more stone than the model did
+            safety += SILO_SAFETY_MARGIN * st.safety_t
+        if chem is not None and store == "limestone":
+            need_k = per_period(chem.need)
+            u_lin, j_lin = lin
+            prev_j = st.initial_t * chem.initial_caco3
+            silo_inerts.clear()
         for k in range(P):
             level = m.add_variable(lb=0, ub=most, name=f"I[{store},{k}]")
             moved = sum((tonnes(l, k) for l in ins), 0.0) - sum((tonnes(l, k) for l in outs), 0.0)
-            if store == "limestone":
+            if store == "limestone" and chem is not None:
+                # the well-mixed silo: tonnes I and CaCO3 J after the period's deliveries;
+                # the CaCO3 drawn is the need, the inerts drawn with it need × (I' − J')/J',
+                # with that ratio fixed at the last plan's replayed silo (Haverly's recursion)
+                caco3_in = sum((chem.lane_caco3[l.name] * tonnes(l, k) for l in ins), 0.0)
+                i_after, j_after = prev + moved, prev_j + caco3_in
+                rho = float(u_lin[k]) - 1.0
+                inerts = float(need_k[k]) * rho
+                unmet = m.add_variable(lb=0, ub=max(float(need_k.sum()), 1.0), name=f"unmet[{k}]")
+                m.add_linear_constraint(level == i_after - float(need_k[k]) - inerts + (1.0 + rho) * unmet)
+                j_level = m.add_variable(lb=0, ub=most, name=f"J[{k}]")
+                m.add_linear_constraint(j_level == j_after - float(need_k[k]) + unmet)
+                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * (1.0 + rho) * unmet)
+                silo_inerts.append(inerts)
+                silo_after[k] = (i_after, j_after, most, prev, prev_j)
+                prev_j = j_level
+            elif store == "limestone":
                 unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
                 m.add_linear_constraint(level == prev + moved + float(flow[k]) + unmet)
                 cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * unmet)
+            elif flow_expr is not None:
+                m.add_linear_constraint(level == prev + moved + flow_expr[k])
             else:
                 m.add_linear_constraint(level == prev + moved + float(flow[k]))
             w = days_in[k]
@@ -302,9 +433,20 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                     m.add_linear_constraint(level - gs <= capacity - float(g_end[k]))
                     cost_terms.append(GUARD_WEIGHT * pen.overflow_penalty_per_t * w * gs)
             prev = level
+        if store == "limestone" and chem is not None:
+            end_value.append(-end_caco3_value(scenario, chem) * prev_j)
+            continue
         value = (-cheapest_delivered_cost(scenario) if store == "limestone"
                  else cheapest_disposal_cost(scenario, store))
         end_value.append(value * prev)
+    for k, um, z in quality_rows:
+        # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
+        # (the purity limit): I' − u_max J' ≤ 0, exact in the silo's own tonnes
+        i_after, j_after, most_t, i_before, j_before = silo_after[k]
+        m.add_linear_constraint(i_after - um * j_after <= (chem.u_hi - um) * most_t * (1 - z))
+        if periods[k][1] > periods[k][0]:
+            # a week: its first days draw the silo as it was before the week's deliveries
+            m.add_linear_constraint(i_before - um * j_before <= (chem.u_hi - um) * most_t * (1 - z))
     # firm orders are constants of the plan: their cost is part of the objective
     booked = 0.0
     for lane in lanes:
@@ -316,6 +458,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     # ---- solve
     params = mathopt.SolveParameters(time_limit=dt.timedelta(seconds=time_limit),
                                      relative_gap_tolerance=gap, threads=2 if solver != "highs" else None)
+    if scale:
+        # the gap is relative to the plan's whole cost (with its constants), which solvers
+        # that drop the objective's offset cannot see: give it as an absolute gap too
+        params.absolute_gap_tolerance = 0.5 * gap * abs(scale)
     if solver == "cp-sat":
         params.cp_sat.mip_max_bound = 1e9
     model_params = None

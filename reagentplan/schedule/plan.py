@@ -3,6 +3,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -13,9 +14,18 @@ from ..balance import balance_frame
 from ..scenario import Scenario
 from .baseline import baseline_plan
 from .causes import explain
-from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate
-from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads
+from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
+from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import SolveOutcome, solve_plan
+from .quality import SiloChemistry
+
+#: Successive linear solves of the silo's mix at most (`quality.py`).
+MAX_SILO_ITERATIONS = 5
+#: Share of the time limit the successive silo solves may use; the rest is for the exact
+#: byproduct solve at the chosen stone.
+SILO_SHARE = 0.8
+#: The mix has settled when no day's CaCO3 moves more than this [%-points] between solves.
+SILO_TOLERANCE_PCT = 0.05
 
 DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
 
@@ -54,6 +64,8 @@ class PlanResult:
     outcome: SolveOutcome
     breaches: list[dict]
     firm_days: int
+    baseline_balance: pd.DataFrame | None = None
+    iterations: list[dict] | None = None
 
     @property
     def movements(self) -> pd.DataFrame:
@@ -78,6 +90,10 @@ class PlanResult:
             "firm_days": self.firm_days,
             "breaches": self.breaches,
             "baseline_breaches": len(self.baseline_evaluation.breaches),
+            "silo_iterations": self.iterations or [],
+            "shortfalls": self.evaluation.shortfalls,
+            "baseline_shortfalls": self.baseline_evaluation.shortfalls,
+            "saving_by_cause": saving_by_cause(self.evaluation, self.baseline_evaluation),
             "caution": CAUTION,
         }
 
@@ -85,7 +101,7 @@ class PlanResult:
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-              gap: float = 1e-5, progress: bool = False) -> PlanResult:
+              gap: float = 5e-4, progress: bool = False) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -100,34 +116,137 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         balance = balance_frame(scenario)
     lanes = build_lanes(scenario, balance)
     firm = firm_loads(scenario, lanes)
-    base = baseline_plan(scenario, balance, lanes, firm)
-    base_ev = evaluate(scenario, balance, lanes, base)
     guard = guard_margins(balance, flows, risk_level)
+    chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
+    solver_note = ""
+    if chem is not None and solver == "cp-sat":
+        # CP-SAT takes integer models only (MathOpt scales continuous ones); the silo's
+        # tonnes of CaCO3 and inerts do not scale, so the mixed-integer solver plans them
+        solver, solver_note = "scip", " (cp-sat cannot take the silo's mix; solved with scip)"
+    base = baseline_plan(scenario, balance, lanes, firm, chem=chem)
+    base_bal = balance if chem is None else chem.plan_balance(scenario, lanes, base)
+    base_ev = evaluate(scenario, base_bal, lanes, base)
+    # the money the plan moves (every cost line of the baseline, in absolute value): the
+    # scale of the absolute gap a solve may stop at, so a plan whose costs and revenues
+    # nearly cancel is not chased to a relative gap of a number near zero
+    gross = sum(abs(v) for v in base_ev.costs.values())
+    t0 = time.perf_counter()
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit, gap=gap, hint=base, progress=progress)
-    ev = evaluate(scenario, balance, lanes, outcome.plan)
+                         time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
+                         gap=gap, hint=base, progress=progress, chem=chem,
+                         scale=gross, to_days=chem is None)
+    plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
+    ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
+    iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
+                   "solve_seconds": round(outcome.solve_seconds, 3), "max_caco3_change_pct": None}]
+    if chem is not None:
+        # successive linear solves: linearise the silo at the last plan until its mix settles
+        last = outcome.plan
+        best = (ev.total_cost, outcome, plan_bal, ev)
+        for it in range(2, MAX_SILO_ITERATIONS + 1):
+            left = SILO_SHARE * time_limit - (time.perf_counter() - t0)
+            if left < 1.0:
+                break
+            nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
+                             time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
+                             around=last, scale=gross, to_days=False)
+            bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
+            ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
+            change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
+                                         - chem.plan_balance(scenario, lanes, last)["limestone_caco3_pct"].to_numpy())))
+            iterations.append({"iteration": it, "total_cost": round(ev_n.total_cost, 2), "gap": nxt.gap,
+                               "solve_seconds": round(nxt.solve_seconds, 3),
+                               "max_caco3_change_pct": round(change, 4)})
+            if ev_n.total_cost < best[0] - 1e-6:
+                best = (ev_n.total_cost, nxt, bal_n, ev_n)
+            last = nxt.plan
+            if change < SILO_TOLERANCE_PCT:
+                break
+        _, outcome, plan_bal, ev = best
+        # the stone chosen, the byproducts planned again against the gypsum that stone
+        # makes (exact: its silo is now known), so no shipment rests on the linearisation
+        lanes_x = build_lanes(scenario, plan_bal, exact_quality=True)
+        fixed = {l.name: outcome.plan.quantity[l.name] for l in lanes if l.kind == SUPPLY}
+        left = max(time_limit - (time.perf_counter() - t0), 3.0)
+        try:
+            pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
+                             solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
+                             scale=gross, fixed=fixed)
+            ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
+            iterations.append({"iteration": "byproducts at the chosen stone",
+                               "total_cost": round(ev_p.total_cost, 2), "gap": pol.gap,
+                               "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": 0.0})
+            if ev_p.total_cost <= ev.total_cost + 1e-6:
+                pol.status = outcome.status if pol.status == "optimal" else pol.status
+                outcome, ev = pol, ev_p
+        except RuntimeError:
+            pass
+        outcome.solve_seconds = time.perf_counter() - t0
+    outcome.status += solver_note
     chosen = outcome.plan
     if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
-        # the outlook weeks, once spread to days, priced dearer than the warm start:
-        # keep the warm start (the baseline), which the model's solution had to beat
-        chosen, ev = base, evaluate(scenario, balance, lanes, base)
-        outcome.status += " (baseline kept: the spread outlook priced dearer)"
+        # the outlook weeks, once spread to days (or the silo, replayed exactly), priced
+        # dearer than the warm start: keep the warm start (the baseline)
+        chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
+        outcome.status += " (baseline kept: the replayed plan priced dearer)"
     base_ev.breaches = explain(scenario, lanes, base, base_ev)
     breaches = explain(scenario, lanes, chosen, ev)
-    return PlanResult(scenario, balance, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days)
+    return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
+                      firm_days, base_bal, iterations)
+
+
+#: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock
+#: left at the end goes with what it is: limestone with the stone, byproducts with landfill.
+SAVING_CAUSES = {"stone": ("limestone_purchase", "end:limestone"), "freight": ("freight",),
+                 "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill", "end:byproducts"),
+                 "penalties": ("shortage_penalty", "overflow_penalty", "empty_penalty",
+                               "contract_penalty", "quality_penalty")}
+
+
+def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
+    """What the plan saves against the baseline [money], by cause: stone (purchase less the
+    value of the limestone left at the end), freight, byproduct sales, landfill (with the
+    byproducts left at the end at their landfill cost), penalties (with take-or-pay
+    shortfalls)."""
+    def line(ev: Evaluation, key: str) -> float:
+        if key.startswith("end:"):
+            return ev.end_parts.get(key[4:], 0.0)
+        return ev.costs[key]
+
+    return {cause: round(sum(line(baseline, k) - line(plan, k) for k in keys), 2)
+            for cause, keys in SAVING_CAUSES.items()}
+
+
+def flows_at_plan_stone(result: "PlanResult", flows: dict[str, np.ndarray] | None,
+                        balance: pd.DataFrame) -> dict[str, np.ndarray] | None:
+    """Sampled futures' limestone use and gypsum [t/d] moved to the stone the plan puts
+    in the silo: each day's flow scaled by the plan's balance over the balance at the
+    initial stone (``balance``).  Limestone use is exactly proportional (need / CaCO3);
+    for gypsum the stone's inerts are a small share of the cake and are scaled with it."""
+    if not flows or not result.scenario.quality_coupled:
+        return flows
+    out = dict(flows)
+    for store, column in (("limestone", "limestone_t"), ("gypsum", "gypsum_wet_t")):
+        if store in out:
+            base = balance[column].to_numpy(float)
+            ratio = np.divide(result.balance[column].to_numpy(float), base,
+                              out=np.ones_like(base), where=base > 0)
+            out[store] = np.asarray(out[store], float) * ratio[None, :]
+    return out
 
 
 def movements_frame(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, firm_days: int) -> pd.DataFrame:
     """One row per lane and day with something moving (DESIGN §6 ``movements.csv``)."""
     dates = scenario.dates
+    month_index, _, _ = horizon_months(dates)
     rows = []
     for lane in lanes:
         q = plan.quantity[lane.name]
         booked = plan.booked.get(lane.name)
+        freight = freight_by_day(lane, q, month_index) if lane.load_t else np.zeros(len(q))
         for d in np.flatnonzero(q > 1e-9):
             tonnes = float(q[d] * lane.load_t) if lane.load_t else float(q[d])
-            cost = tonnes * lane.cost_per_t + (float(q[d]) * lane.cost_per_load if lane.load_t else 0.0)
+            cost = tonnes * lane.cost_per_t + float(freight[d])
             order_by = dates[d] - pd.Timedelta(days=lane.lead_days) if lane.kind == SUPPLY else pd.NaT
             rows.append({
                 "date": dates[d], "material": lane.material,
