@@ -115,3 +115,20 @@ def test_demo_runs(tmp_path, capsys):
     assert "Weekly loop" in text and "week 8 as of" in text and "late train" in text
     assert (out / "weekly" / "record.db").exists()
     assert (out / "weekly" / "orders_changed_week_8.csv").exists()
+
+
+def test_a_plan_over_the_permit_exits_1_and_names_it(tmp_path, capsys):
+    """Every store within its limits but the stack over a 0.065 kg/GJ permit at 60 %
+    removal: the plan is not sound, and says why (exit 1, a so2_permit breach)."""
+    import json
+
+    s = minimal_sheets(days=10)
+    set_value(s, "plant", "so2_limit_kg_per_gj", None, 0.065)
+    set_value(s, "scrubber", "removal_pct", None, 60)
+    path = write_workbook(s, tmp_path / "w.xlsx")
+    out = tmp_path / "out"
+    assert main(["plan", str(path), "--out", str(out), "--futures", "0"]) == 1
+    summary = json.loads((out / "summary.json").read_text())
+    permit = [b for b in summary["breaches"] if b["store"] == "so2_permit"]
+    assert len(permit) == 1 and permit[0]["tonnes"] > 0
+    assert "so2_permit: over the SO2 permit limit" in capsys.readouterr().out

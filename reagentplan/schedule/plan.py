@@ -17,6 +17,7 @@ from .causes import explain
 from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import SolveOutcome, solve_plan
+from .permit import permit_breaches
 from .quality import SiloChemistry
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
@@ -189,8 +190,9 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         # dearer than the warm start: keep the warm start (the baseline)
         chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
         outcome.status += " (baseline kept: the replayed plan priced dearer)"
-    base_ev.breaches = explain(scenario, lanes, base, base_ev)
-    breaches = explain(scenario, lanes, chosen, ev)
+    removal = scenario.scrubber.removal_pct
+    base_ev.breaches = explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal)
+    breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(plan_bal, removal)
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
                       firm_days, base_bal, iterations)
 

@@ -57,11 +57,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..balance import balance_frame
 from ..forecast.futures import DriverSamples, futures_from_drivers, sample_futures
 from ..pipeline import FUTURE_FLOWS, STORE_FLOWS, PlanRun, plan_with_futures
 from ..risk import store_flows
 from ..schedule.evaluate import EMPTY_PENALTY_FACTOR
 from ..schedule.lanes import LANDFILL, SALE, SUPPLY, cheapest_delivered_cost, cheapest_disposal_cost
+from ..schedule.plan import flows_at_plan_stone
 from .grid import Case
 
 #: Result fields of a case, after ``case`` and the varied values (DESIGN §7), then the
@@ -230,6 +232,8 @@ def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
     plan = run.plan
     flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items()
              if store in plan.scenario.storage}
+    if plan.scenario.quality_coupled:  # the futures' stone use and gypsum at the plan's silo
+        flows = flows_at_plan_stone(plan, flows, balance_frame(plan.scenario))
     fig = replay_costs(plan, flows)
     trains = trucks = 0
     sold = landfilled = 0.0
