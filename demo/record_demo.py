@@ -185,7 +185,12 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
             lines = []
             for r in first[first["direction"] == "in"].head(3).itertuples(index=False):
                 verb = {"added": "place", "cancelled": "cancel", "moved": "move", "changed": "change"}[r.change]
-                lines.append(f"{verb} {r.lane} {r.date:%Y-%m-%d} ({r.loads_before} -> {r.loads_after} loads)")
+                if r.change == "moved":
+                    lines.append(f"{verb} {r.lane} from {r.date_before:%Y-%m-%d} to {r.date:%Y-%m-%d} "
+                                 f"({r.loads_after} load{'s' if r.loads_after != 1 else ''})")
+                else:
+                    lines.append(f"{verb} {r.lane} {r.date:%Y-%m-%d} ({r.loads_before} -> "
+                                 f"{r.loads_after} loads)")
             changes = {f"{'orders' if d == 'in' else 'haul-outs'} {c}": int(n) for (d, c), n in
                        diff.groupby(["direction", "change"]).size().items()}
             reports.append(WeekReport(week, week_end, events, found, changes,
@@ -196,8 +201,9 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
     return reports
 
 
-def describe_weeks(reports: list[WeekReport]) -> str:
-    lines = ["Weekly loop (invented record; re-planned as of each week's last day):"]
+def describe_weeks(reports: list[WeekReport], currency: str = "USD") -> str:
+    lines = ["Weekly loop (invented record; re-planned as of each week's last day; cost = the "
+             f"new plan's cost over its own days, in {currency}, sales counted as income):"]
     for r in reports:
         surv = ", ".join(f"{s} {lvl:,.0f} t (book {book:,.0f})" for s, (lvl, book) in r.surveys.items())
         ch = ", ".join(f"{k} {n}" for k, n in sorted(r.changes.items())) or "no change"

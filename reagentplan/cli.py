@@ -170,7 +170,7 @@ def _cmd_demo(args) -> int:
         from demo.record_demo import describe_weeks
 
         print()
-        print(describe_weeks(reports))
+        print(describe_weeks(reports, run.plan.scenario.plant.currency))
         print(f"\nThe record is {out / 'weekly' / 'record.db'}; try: reagentplan review --db "
               f"sqlite:///{out / 'weekly' / 'record.db'} --out {out / 'weekly' / 'review'}")
     print(f"\nCaution: {CAUTION}")
