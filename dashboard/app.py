@@ -153,7 +153,8 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         are dropped first, the startup plan is kept in memory.
     study_dir : a folder written by `reagentplan study`, shown in the Studies tab.
     db, as_of : the operations record (a database URL): the startup plan starts from its
-        state at the end of ``as_of`` (not stored as a version), and a record tab shows
+        state at the end of ``as_of`` (default: the day of the newest recorded survey,
+        arrival or shipment; not stored as a version), and a record tab shows
         the plan version in force, surveys, recorded movements against the plan, what
         changed since the last plan and takes uploads of actuals.
 
@@ -194,6 +195,10 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         try:
             wb_path = workbook_bytes_or_path if isinstance(workbook_bytes_or_path, (str, os.PathLike)) \
                 else work / "demo_station.xlsx"
+            if as_of is None:  # what is true now: the day of the newest recorded fact
+                from reagentplan.record.asof import latest_fact_day, load_record
+
+                as_of = latest_fact_day(load_record(engine))
             run = run or run_plan_from_record(wb_path, engine, as_of, scenario=scenario, store=False,
                                               futures=futures, seed=seed, solver=solver,
                                               time_limit=time_limit, firm_days=firm_days,
@@ -202,7 +207,11 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
             engine.dispose()
         import datetime as _dt
 
-        record_source = RecordSource(db, scenario, _dt.date.fromisoformat(run.summary_extra["as_of"]))
+        planned_as_of = _dt.date.fromisoformat(run.summary_extra["as_of"])
+        # uploads may carry facts up to today, or up to the as-of day or the day before the
+        # workbook's start when those are later (a workbook planned ahead of the calendar)
+        record_source = RecordSource(db, scenario, max(
+            planned_as_of, scenario.plant.start_date - _dt.timedelta(days=1), _dt.date.today()))
         scenario = run.plan.scenario  # what-if re-plans start from the record's state too
         source = f"{source} from the record as of {run.summary_extra.get('as_of')}"
     elif run is None:

@@ -413,4 +413,14 @@ def silo_figure(stone: pd.DataFrame, deliveries: pd.DataFrame, colours: dict[str
                       hovermode="x", margin=dict(t=60, b=40),
                       legend=dict(orientation="h", y=-0.06, yanchor="top", x=0, xanchor="left"))
     fig.update_annotations(font=dict(size=12, color=MUTED))
+    # percentages to one decimal: the silo's CaCO3 may sit still to 1e-6 % (one stone)
+    fig.update_yaxes(tickformat=".1f", row=1, col=1)
+    fig.update_yaxes(tickformat=".1f", row=2, col=1)
+    lo = min(float(stone["silo_caco3_pct"].min()), float(deliveries["caco3_pct"].min())
+             if len(deliveries) else float("inf"))
+    hi = max(float(stone["silo_caco3_pct"].max()), float(deliveries["caco3_pct"].max())
+             if len(deliveries) else float("-inf"))
+    if hi - lo < 1.0:  # keep at least a point of CaCO3 in view, so noise does not fill it
+        mid = (hi + lo) / 2
+        fig.update_yaxes(range=[mid - 0.75, mid + 0.75], row=1, col=1)
     return fig

@@ -544,7 +544,8 @@ def build_parser() -> argparse.ArgumentParser:
     _db_option(p)
     p.add_argument("--as-of", type=_date, default=None, metavar="DATE",
                    help="with --db: plan from the record's state at the end of DATE (default: the "
-                        "day before the workbook's start_date) and show the record tab")
+                        "day of the newest recorded survey, arrival or shipment) and show the "
+                        "record tab")
     p.set_defaults(func=_cmd_dashboard)
     return parser
 

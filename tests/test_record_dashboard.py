@@ -69,6 +69,8 @@ def test_record_tab_and_uploads(tmp_path):
     weekly = _find(layout, R.WEEKLY).figure
     assert any(t.name == "limestone in: recorded" for t in weekly.data)
     source = app.reagentplan.record
+    # without --as-of the dashboard plans from the newest recorded fact (an arrival on day 5)
+    assert f"from the record as of {day(5)}" in str(layout)
     # a good upload lands, through the record's own path
     msg, ok = record_upload(source, _upload(f"date,store,level_t\n{AS_OF},gypsum,1300\n",
                                             "stock_surveys.csv"), False)

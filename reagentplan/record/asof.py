@@ -49,6 +49,14 @@ class RecordFrames:
     last_import_id: int | None = None
 
 
+def latest_fact_day(record: RecordFrames) -> dt.date | None:
+    """The last day with a recorded survey, arrival or shipment (None with none): the
+    day a re-plan from the record naturally starts after."""
+    days = [f["date"].max() for f in (record.surveys, record.arrivals, record.shipments)
+            if len(f) and pd.notna(f["date"].max())]
+    return pd.Timestamp(max(days)).date() if days else None
+
+
 def load_record(engine, until: dt.date | None = None) -> RecordFrames:
     """Every recorded fact dated on or before ``until`` (orders: all of them)."""
     from .db import require_current
