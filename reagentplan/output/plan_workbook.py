@@ -370,16 +370,25 @@ def _stone_sheet(wb, run) -> None:
     start_col = len(daily.columns) + 2
     first_row = 26
     ws.cell(first_row - 1, start_col, "Limestone deliveries and the stone they bring").font = Font(bold=True)
+    widths = {"date": 12, "party": 24, "lane": 30, "tonnes [t]": 11, "stone CaCO3 [%]": 11,
+              "chosen for quality": 11, "cheaper lower-grade stone open that day": 30}
     for j, col in enumerate(deliveries.columns, start=start_col):
         c = ws.cell(first_row, j, col)
         c.fill, c.font = HEAD_FILL, HEAD_FONT
+        c.alignment = Alignment(wrap_text=True, vertical="center", horizontal="center")
+        ws.column_dimensions[get_column_letter(j)].width = widths.get(col, 16)
+    ws.row_dimensions[first_row].height = 45
     for i, row in enumerate(deliveries.itertuples(index=False), start=first_row + 1):
         for j, v in enumerate(row, start=start_col):
-            if isinstance(v, pd.Timestamp):
+            if deliveries.columns[j - start_col] == "chosen for quality":
+                v = "yes" if bool(v) else ""
+            elif isinstance(v, pd.Timestamp):
                 v = v.date()
             elif isinstance(v, np.generic):
                 v = v.item()
-            ws.cell(i, j, v)
+            cell = ws.cell(i, j, v)
+            if isinstance(v, dt.date):
+                cell.number_format = "yyyy-mm-dd"
             if deliveries.columns[j - start_col] == "chosen for quality" and v:
                 ws.cell(i, j).fill = WATCH_FILL
 
