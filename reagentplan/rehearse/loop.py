@@ -81,11 +81,12 @@ def _xlsx(frames: dict[str, pd.DataFrame]) -> bytes:
     return buf.getvalue()
 
 
-def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver):
+def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver,
+                 plan_futures: int = 0, seed: int = 0):
     """(movements, lanes, status) of the policy's plan as of ``as_of``."""
     if policy == "plan":
         run = run_plan_from_record(workbook, engine, as_of, scenario=scenario, horizon_days=lookahead_days,
-                                   store=False, futures=0, firm_days=firm_days, time_limit=time_limit,
+                                   store=False, futures=plan_futures, seed=seed, firm_days=firm_days, time_limit=time_limit,
                                    solver=solver)
         return run.plan.movements, run.plan.lanes, run.plan.outcome.status
     _, lanes, _, mv = baseline_from_record(workbook, engine, as_of, scenario=scenario,
@@ -102,12 +103,14 @@ def _stored(mv: pd.DataFrame, start: dt.date, days: int) -> StoredPlan:
 def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, policy: str, *, weeks: int,
                     disturbances: Disturbances, seed: int = 0, lookahead_days: int = 120,
                     firm_days: int = 14, time_limit: float = 20.0, solver: str = "highs",
-                    on_week=None) -> PolicyRun:
+                    plan_futures: int = 0, on_week=None) -> PolicyRun:
     """Follow ``policy`` (``plan`` or ``baseline``) for ``weeks`` weeks in ``world``.
 
     The disturbances come from ``numpy.random.default_rng([seed, world.index])``: both
     policies meet the same stream of chances (common random numbers), though what they
-    meet depends on what they book.  ``on_week(week)`` is called after each week."""
+    meet depends on what they book.  ``plan_futures`` futures guard each weekly plan
+    (0: none, the deterministic balance only).  ``on_week(week)`` is called after each
+    week."""
     import time
 
     rng = np.random.default_rng([seed, world.index])
@@ -138,7 +141,8 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                 week_end = as_of + dt.timedelta(days=7)
                 t0 = time.perf_counter()
                 mv, lanes, status = _policy_plan(policy, workbook, engine, as_of, scenario, lookahead_days,
-                                                 firm_days, time_limit, solver)
+                                                 firm_days, time_limit, solver, plan_futures,
+                                                 seed + 1000 + week)
                 plan_seconds += time.perf_counter() - t0
                 statuses.append(status)
                 lane_of = {ln.name: ln for ln in lanes}

@@ -54,7 +54,7 @@ class RehearsalResult:
 
 
 def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, firm_days: int,
-           d: Disturbances) -> None:
+           d: Disturbances, plan_futures: int = 0) -> None:
     problems = []
     def bad(option, found, expected):
         problems.append(Problem(None, None, option, f"found {found}", expected))
@@ -64,6 +64,8 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
         bad("--futures", futures, "a whole number of futures from 1 to 1000")
     if not 7 <= lookahead_days <= 1096:
         bad("--lookahead-days", lookahead_days, "a whole number of days from 7 to 1096")
+    if not 0 <= plan_futures <= 10000:
+        bad("--plan-futures", plan_futures, "a whole number of futures from 0 to 10000")
     if not 7 <= firm_days:
         bad("--firm-days", firm_days, "at least 7 days (a week is carried out day by day)")
     need = 7 * weeks + lookahead_days
@@ -82,15 +84,16 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
 def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: int = 0,
              lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
              solver: str = "highs", disturbances: Disturbances = Disturbances(),
-             policies=POLICIES, progress: bool = False, scenario: Scenario | None = None) -> RehearsalResult:
+             plan_futures: int = 0, policies=POLICIES, progress: bool = False, scenario: Scenario | None = None) -> RehearsalResult:
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
-    (seeded by ``seed``) for each policy.  Raises `ScenarioError` for bad settings."""
+    (seeded by ``seed``) for each policy; each weekly plan guarded by ``plan_futures``
+    futures of its own (0: none).  Raises `ScenarioError` for bad settings."""
     import time
 
     from ..forecast import sample_futures
 
     scenario = scenario or load_scenario(workbook)
-    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances)
+    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures)
     t0 = time.perf_counter()
     fut = sample_futures(scenario, futures, seed=seed, keep=tuple(TRUE_FLOWS.values()))
     worlds = worlds_from_futures(fut, scenario.storage)
@@ -109,7 +112,7 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
                 run = rehearse_policy(workbook, scenario, w, policy, weeks=weeks, disturbances=disturbances,
                                       seed=seed, lookahead_days=lookahead_days, firm_days=firm_days,
                                       time_limit=time_limit, solver=solver,
-                                      on_week=(lambda _w: bar.update(1)) if bar is not None else None)
+                                      plan_futures=plan_futures, on_week=(lambda _w: bar.update(1)) if bar is not None else None)
                 runs.append(run)
                 rows.append(policy_figures(scenario, run))
     finally:
@@ -119,7 +122,7 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     plan_s = sum(r.plan_seconds for r in runs)
     settings = {"workbook": Path(workbook).name, "weeks": weeks, "futures": futures, "seed": seed,
                 "lookahead_days": lookahead_days, "firm_days": firm_days, "time_limit": time_limit,
-                "solver": solver, "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
+                "solver": solver, "plan_futures": plan_futures, "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
                 "currency": scenario.plant.currency, **disturbances.as_dict()}
     return RehearsalResult(pd.DataFrame(rows), runs, settings,
                            {"total": round(total, 2), "sampling": round(t_sample, 2),
