@@ -4,8 +4,8 @@ against sampled futures taken as the truth (`truth`), through the operations rec
 
 from .loop import PolicyRun, rehearse_policy
 from .metrics import policy_figures
-from .run import RehearsalResult, rehearse
+from .run import RehearsalResult, describe_rehearsal, rehearse
 from .truth import Disturbances, World, worlds_from_futures
 
 __all__ = ["Disturbances", "World", "worlds_from_futures", "PolicyRun", "rehearse_policy",
-           "policy_figures", "RehearsalResult", "rehearse"]
+           "policy_figures", "RehearsalResult", "rehearse", "describe_rehearsal"]

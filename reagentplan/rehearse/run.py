@@ -72,11 +72,12 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
     if scenario.plant.horizon_days < need:
         bad("--weeks", weeks, f"weeks × 7 + lookahead ({need} days) within the workbook's horizon of "
             f"{scenario.plant.horizon_days} days (plant.horizon_days), or fewer weeks / a shorter lookahead")
-    for name, v, lo, hi in (("late_chance", d.late_chance, 0, 1), ("partial_chance", d.partial_chance, 0, 1),
-                            ("partial_share", d.partial_share, 0, 1), ("survey_sd", d.survey_sd, 0, 0.5),
-                            ("late_max_days", d.late_max_days, 0, 14)):
-        if not lo <= v <= hi:
-            bad(f"--{name.replace('_', '-')}", v, f"a value from {lo} to {hi}")
+    for option, v, hi in (("--late-chance", d.late_chance, 1), ("--partial-chance", d.partial_chance, 1),
+                          ("--partial-share", d.partial_share, 1), ("--survey-error", d.survey_sd, 0.5)):
+        if not 0 <= v <= hi:
+            bad(option, f"{100 * v:g} %", f"a percentage from 0 to {100 * hi:g}")
+    if not 0 <= d.late_max_days <= 14:
+        bad("--late-days", d.late_max_days, "a whole number of days from 0 to 14")
     if problems:
         raise ScenarioError(problems, "The rehearsal's options")
 
@@ -130,3 +131,36 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
 
 
 __all__ = ["RehearsalResult", "rehearse", "months_over_max"]
+
+
+def describe_rehearsal(result: RehearsalResult) -> str:
+    """The console summary: per policy the realised cost, its causes, risk and
+    nervousness, and the plan's saving against the baseline."""
+    from .metrics import COST_CAUSES
+
+    s, cfg = result.summary(), result.settings
+    cur = cfg.get("currency", "")
+    lines = [f"Rehearsal: {cfg['weeks']} weeks x {cfg['futures']} futures from {cfg['start_date']} "
+             f"(lookahead {cfg['lookahead_days']} d, firm {cfg['firm_days']} d); late trains "
+             f"{cfg['late_chance']:.0%} up to {cfg['late_max_days']} d, partial takes {cfg['partial_chance']:.0%} "
+             f"at {cfg['partial_share']:.0%}, survey error {cfg['survey_sd']:.1%}",
+             f"  {'median cost by cause [' + cur + ']':<34}{'plan':>14}{'baseline':>14}"]
+    pols = [p for p in POLICIES if p in s]
+    for k in COST_CAUSES:
+        lines.append(f"  {k:<34}" + "".join(f"{s[p]['costs_p50'][k]:>14,.0f}" for p in pols))
+    lines.append(f"  {'realised cost P50':<34}" + "".join(f"{s[p]['realised_cost_p50']:>14,.0f}" for p in pols))
+    lines.append(f"  {'realised cost P90':<34}" + "".join(f"{s[p]['realised_cost_p90']:>14,.0f}" for p in pols))
+    for label, key, fmt in (("futures with no stockout/overflow", "share_clean", "{:>14.0%}"),
+                            ("futures with a stockout", "stockout_futures", "{:>14d}"),
+                            ("futures with an overflow", "overflow_futures", "{:>14d}"),
+                            ("days under safety P50", "days_under_safety_p50", "{:>14.0f}"),
+                            ("nervousness P50 (firm changes)", "nervousness_p50", "{:>14.0f}"),
+                            ("contract months over maximum", "months_over_max", "{:>14d}")):
+        lines.append(f"  {label:<34}" + "".join(fmt.format(s[p][key]) for p in pols))
+    if "saving_p50" in s:
+        verdict = "cheaper" if s["saving_p50"] > 0 else "dearer"
+        lines.append(f"  The plan came out {abs(s['saving_p50']):,.0f} {cur} {verdict} than the reorder-point "
+                     f"rule at the median ({abs(s['saving_share_of_controllable']):.1%} of the rule's "
+                     "controllable cost).")
+    lines.append(f"  time: {result.seconds.get('total', 0):.0f} s (planning {result.seconds.get('planning', 0):.0f} s)")
+    return "\n".join(lines)
