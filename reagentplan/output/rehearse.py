@@ -28,6 +28,8 @@ NOTES = (
     ("cost_contract_shortfall", "tonnes short of a monthly minimum, months wholly rehearsed"),
     ("cost_closing_stock", "stores at the end: limestone credited at the cheapest delivered cost, "
                            "byproducts charged at the cheapest landfill cost"),
+    ("days_under_safety", "days the limestone store ended below its safety stock"),
+    ("byproduct_days_under_safety", "days a byproduct store ended below its safety stock (a heel kept in the store)"),
     ("nervous_*", "loads added, moved, cancelled or changed inside the firm window between consecutive plans"),
     ("months_over_max", "contract months whose realised tonnes exceed the monthly maximum"),
 )

@@ -4,7 +4,8 @@ Each week: plan as of the week's eve from the record (`run_plan_from_record` for
 optimised plan; `baseline_from_record` for the reorder-point policy, the same record
 path without the solve); book the inbound lines whose order-by day falls in the week;
 carry the week out day by day against the world's true use and production with the
-disturbances (late trains, partial takes); record the week's arrivals, shipments and
+disturbances (late trains, partial takes; landfill hauled as planned but never below
+the store's safety stock); record the week's arrivals, shipments and
 orders (a late train re-dated once it is known to be late) and the end-of-week survey of
 every store; re-plan as of the week's last day.
 """
@@ -200,7 +201,9 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                                     loads = min(loads, int(np.floor(max(x, 0.0) / lane.load_t)))
                                     tonnes = loads * lane.load_t
                                 else:
-                                    loads, tonnes = None, float(min(r.tonnes, max(x, 0.0)))
+                                    # landfill is hauled as planned but never below the
+                                    # store's safety stock (the heel a coordinator keeps)
+                                    loads, tonnes = None, float(min(r.tonnes, max(x - st.safety_t, 0.0)))
                                 if (loads is not None and loads <= 0) or tonnes <= 1e-6:
                                     continue
                                 x -= tonnes

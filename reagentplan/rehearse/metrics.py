@@ -120,6 +120,7 @@ def policy_figures(scenario: Scenario, run) -> dict:
     row |= {f"cost_{k}": v for k, v in costs.items()}
     row |= {
         "days_under_safety": int((lime["level_t"] < lime["safety_t"] - 1e-6).sum()),
+        "byproduct_days_under_safety": int(by.loc[by["level_t"] < by["safety_t"] - 1e-6, "date"].nunique()),
         "stockout_days": int((lime["unmet_t"] > 1e-6).sum()),
         "stone_missing_t": round(float(lime["unmet_t"].sum()), 1),
         "overflow_days": int(by.loc[by["overflow_t"] > 1e-6, "date"].nunique()),
