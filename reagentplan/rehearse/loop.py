@@ -4,8 +4,8 @@ Each week: plan as of the week's eve from the record (`run_plan_from_record` for
 optimised plan; `baseline_from_record` for the reorder-point policy, the same record
 path without the solve); book the inbound lines whose order-by day falls in the week;
 carry the week out day by day against the world's true use and production with the
-disturbances (late trains, partial takes; landfill hauled as planned but never below
-the store's safety stock); record the week's arrivals, shipments and
+disturbances (late trains, partial takes; haul-outs as planned but never below the
+store's safety stock); record the week's arrivals, shipments and
 orders (a late train re-dated once it is known to be late) and the end-of-week survey of
 every store; re-plan as of the week's last day.
 """
@@ -196,14 +196,16 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                             out = mv[(mv["direction"] == "out") & (mv["date"] == day) & (mv["material"] == store)]
                             for r in out.sort_values("cost").itertuples(index=False):
                                 lane = lane_of[r.lane]
+                                # a haul-out goes as planned but never below the store's
+                                # safety stock (the heel a coordinator keeps), as the
+                                # reorder-point rule ships only the stock above safety
+                                room = max(x - st.safety_t, 0.0)
                                 if lane.kind == SALE:
                                     loads = partial_take(rng, int(r.loads), disturbances)
-                                    loads = min(loads, int(np.floor(max(x, 0.0) / lane.load_t)))
+                                    loads = min(loads, int(np.floor(room / lane.load_t)))
                                     tonnes = loads * lane.load_t
                                 else:
-                                    # landfill is hauled as planned but never below the
-                                    # store's safety stock (the heel a coordinator keeps)
-                                    loads, tonnes = None, float(min(r.tonnes, max(x - st.safety_t, 0.0)))
+                                    loads, tonnes = None, float(min(r.tonnes, room))
                                 if (loads is not None and loads <= 0) or tonnes <= 1e-6:
                                     continue
                                 x -= tonnes
