@@ -131,6 +131,8 @@ def policy_figures(scenario: Scenario, run) -> dict:
             on="lane").query("mode == 'rail'")["loads"].sum()) if not run.moved.empty else 0,
     }
     for material in ("gypsum", "fly_ash", "bottom_ash"):
+        row[f"overflow_{material}_t"] = round(float(by.loc[by["store"] == material, "overflow_t"].sum()), 1)
+    for material in ("gypsum", "fly_ash", "bottom_ash"):
         row[f"sold_{material}_t"] = round(float(kinds.get((SALE, material), 0.0)), 1)
         row[f"landfilled_{material}_t"] = round(float(kinds.get((LANDFILL, material), 0.0)), 1)
     row |= {f"nervous_{k}": v for k, v in nerv.items()}
