@@ -3,11 +3,9 @@ the optimised plan and once following the reorder-point policy."""
 
 from __future__ import annotations
 
-import datetime as dt
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from ..errors import Problem, ScenarioError
