@@ -326,6 +326,28 @@ def _cmd_study(args) -> int:
     return EXIT_OK if planned and result.winner.case is not None else EXIT_BREACH
 
 
+def _cmd_rehearse(args) -> int:
+    from .output import staged_output
+    from .output.rehearse import write_rehearsal
+    from .rehearse.run import describe_rehearsal, rehearse
+    from .rehearse.settings import disturbances
+
+    pct = lambda v: None if v is None else v / 100  # noqa: E731
+    dist = disturbances(args.workbook, late_chance=pct(args.late_chance), late_max_days=args.late_days,
+                        partial_chance=pct(args.partial_chance), partial_share=pct(args.partial_share),
+                        survey_sd=pct(args.survey_error))
+    result = rehearse(args.workbook, weeks=args.weeks, futures=args.futures, seed=args.seed,
+                      lookahead_days=args.lookahead_days, firm_days=args.firm_days,
+                      time_limit=args.time_limit, solver=args.solver, disturbances=dist,
+                      plan_futures=args.plan_futures, progress=True)
+    with staged_output(args.out) as tmp:
+        written = write_rehearsal(result, tmp)
+    print(describe_rehearsal(result))
+    print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_OK
+
+
 def _cmd_dashboard(args) -> int:
     import os
 
@@ -521,6 +543,36 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--max-cases", type=int, default=500,
                    help="refuse grids of more cases than this (default %(default)s)")
     p.set_defaults(func=_cmd_study)
+
+    p = sub.add_parser("rehearse", help="play the weekly loop against sampled futures, following the plan "
+                       "and following the reorder-point rule (rehearsal.csv, rehearsal.xlsx)")
+    p.add_argument("workbook")
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--weeks", type=int, default=16, help="weeks rehearsed (default %(default)s)")
+    p.add_argument("--futures", type=int, default=20,
+                   help="sampled futures taken as the truth, one after the other (default %(default)s)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the futures and disturbances (default %(default)s)")
+    p.add_argument("--lookahead-days", type=int, default=120,
+                   help="days each weekly plan covers (default %(default)s)")
+    p.add_argument("--firm-days", type=int, default=14,
+                   help="days of each weekly plan planned one by one (default %(default)s)")
+    p.add_argument("--plan-futures", type=int, default=0,
+                   help="futures guarding each weekly plan (0 = none; default %(default)s)")
+    p.add_argument("--time-limit", type=float, default=20.0,
+                   help="solver seconds per weekly plan (default %(default)s)")
+    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
+                   help="MIP solver (default %(default)s)")
+    p.add_argument("--late-chance", type=float, default=None, metavar="PCT",
+                   help="chance [%%] a booked train is late (default: the rehearsal sheet, else 30)")
+    p.add_argument("--late-days", type=int, default=None, metavar="N",
+                   help="a late train is 1 to N days late (default: the rehearsal sheet, else 2)")
+    p.add_argument("--partial-chance", type=float, default=None, metavar="PCT",
+                   help="chance [%%] a buyer takes only part of a day's loads (default: sheet, else 10)")
+    p.add_argument("--partial-share", type=float, default=None, metavar="PCT",
+                   help="share [%%] of the loads such a buyer takes (default: sheet, else 50)")
+    p.add_argument("--survey-error", type=float, default=None, metavar="PCT",
+                   help="standard deviation [%%] of a pile survey (default: sheet, else 1.5)")
+    p.set_defaults(func=_cmd_rehearse)
 
     p = sub.add_parser("dashboard", help="serve the web dashboard (127.0.0.1 unless told otherwise)")
     p.add_argument("workbook", nargs="?", default=None,

@@ -136,3 +136,21 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
                          last_import_id=state.last_import_id)
     run.summary_extra["plan_id"] = plan_id
     return run
+
+
+def baseline_from_record(workbook: str | Path, engine, as_of: dt.date, *, scenario: Scenario,
+                         horizon_days: int | None = None, firm_days: int = 56):
+    """The reorder-point policy planned from the record's state at the end of ``as_of``,
+    without the optimiser (a rehearsal of the baseline needs no solve): the planned
+    scenario, its lanes, the policy's `DailyPlan` and its ``movements`` frame."""
+    from .record.asof import apply_asof, asof_state, load_record
+    from .schedule.baseline import baseline_plan
+    from .schedule.lanes import build_lanes, firm_loads
+    from .schedule.plan import movements_frame
+
+    state = asof_state(scenario, load_record(engine), as_of)
+    planned = apply_asof(scenario, state, horizon_days)
+    balance = balance_frame(planned)
+    lanes = build_lanes(planned, balance)
+    base = baseline_plan(planned, balance, lanes, firm_loads(planned, lanes))
+    return planned, lanes, base, movements_frame(planned, lanes, base, firm_days)

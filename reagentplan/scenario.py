@@ -722,7 +722,8 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     names = [s.name for s in schema.SHEETS]
     for title in raw:
         key = title.strip().lower()
-        if key in schema.SHEETS_BY_NAME or key in schema.NOTE_SHEETS or key.startswith("notes"):
+        if (key in schema.SHEETS_BY_NAME or key in schema.NOTE_SHEETS or key in schema.TOOL_SHEETS
+                or key.startswith("notes")):
             continue
         out.add(title, None, None, f"unknown sheet{_did_you_mean(key, names)}",
                 "one of " + ", ".join(names) + " (or a 'notes' sheet for free notes)")

@@ -20,6 +20,8 @@ BOILERS = ("pc", "cfb")
 #: Names of sheets and columns that hold free notes; the loader ignores them.
 NOTE_COLUMNS = ("note", "notes", "comment")
 NOTE_SHEETS = ("notes", "readme")
+#: Sheets read by one command, not by the scenario loader (`reagentplan rehearse`).
+TOOL_SHEETS = ("rehearsal",)
 
 
 @dataclass(frozen=True)

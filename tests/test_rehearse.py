@@ -1,0 +1,170 @@
+"""The weekly loop's rehearsal on a tiny invented station (tests/helpers.py): 3 weeks ×
+2 futures, both policies.  The invariants of the loop: nothing booked is dropped, no
+contract month over its maximum in what really moved, true stock never negative and
+conserved (the store's mass balance: level = opening + in − out, a conservation
+identity, no source needed), the same seed gives the same figures."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+
+from helpers import minimal_sheets, set_value, write_workbook
+from reagentplan.cli import main
+from reagentplan.rehearse import Disturbances, rehearse
+from reagentplan.scenario import load_scenario
+
+WEEKS, FUTURES, LOOKAHEAD = 3, 2, 35
+#: Rough disturbances so that the test meets them: half the trains late (common practice, no source).
+ROUGH = Disturbances(late_chance=0.5, late_max_days=2, partial_chance=0.3, partial_share=0.5, survey_sd=0.015)
+
+
+def _sheets():
+    s = minimal_sheets(days=70)
+    # a tight limestone pile (about 5 days of use above safety) so that trains must be ordered
+    # each week, and a small gypsum contract so that its monthly maximum binds
+    set_value(s, "storage", 0, "initial_t", 900)
+    set_value(s, "buyers", 0, "max_t_per_month", 1500)
+    return s
+
+
+@pytest.fixture(scope="module")
+def rehearsal(tmp_path_factory):
+    path = write_workbook(_sheets(), tmp_path_factory.mktemp("rh") / "tiny.xlsx")
+    res = rehearse(path, weeks=WEEKS, futures=FUTURES, seed=3, lookahead_days=LOOKAHEAD, firm_days=14,
+                   time_limit=10, disturbances=ROUGH)
+    return path, res
+
+
+def test_one_row_per_policy_and_future(rehearsal):
+    _, res = rehearsal
+    t = res.table
+    assert sorted(zip(t["policy"], t["future"])) == sorted(
+        (p, f) for p in ("plan", "baseline") for f in range(FUTURES))
+    causes = [c for c in t.columns if c.startswith("cost_")]
+    assert np.allclose(t[causes].sum(axis=1), t["realised_cost"], atol=0.05)
+    assert (t["weeks"] == WEEKS).all()
+    assert "saving_share_of_controllable" in res.summary()
+
+
+def test_stock_never_negative_and_conserved(rehearsal):
+    path, res = rehearsal
+    sc = load_scenario(path)
+    for run in res.runs:
+        d = run.daily
+        assert (d["level_t"] >= -1e-9).all()
+        lime = d[d["store"] == "limestone"].reset_index(drop=True)
+        assert len(lime) == 7 * WEEKS
+        arrived = run.moved[run.moved["kind"] == "supply"].groupby("date")["tonnes"].sum()
+        arrived = lime["date"].map(arrived).fillna(0.0).to_numpy()
+        # the futures sampled again with the same seed are the truth the run met
+        from reagentplan.forecast import sample_futures
+
+        use = sample_futures(sc, FUTURES, seed=3, keep=("limestone_t",)).flows["limestone_t"][run.world]
+        use = use[: len(lime)].astype(float)
+        level = sc.storage["limestone"].initial_t + np.cumsum(arrived - use + lime["unmet_t"].to_numpy())
+        assert np.allclose(level, lime["level_t"], atol=0.05)
+
+
+def test_nothing_booked_is_dropped(rehearsal):
+    """Every order booked in week w is held firm (booked) by each later plan made before
+    it arrives, on the day the record then expects it (its planned day, or the late
+    train's day once known), and every order due inside the rehearsal arrives."""
+    path, res = rehearsal
+    start = pd.Timestamp(load_scenario(path).plant.start_date)
+    end = start + pd.Timedelta(days=7 * WEEKS)
+    checked = 0
+    for run in res.runs:
+        assert len(run.orders), "the tight pile makes every policy book trains"
+        for k in range(2, WEEKS + 1):
+            as_of = start + pd.Timedelta(days=7 * (k - 1) - 1)
+            plan = run.plans[k - 1]
+            expected = {}
+            for o in run.orders[run.orders["week"] < k].itertuples(index=False):
+                planned, arrival = pd.Timestamp(o.planned), pd.Timestamp(o.arrival)
+                day = planned if planned > as_of else (arrival if arrival > as_of else None)
+                if day is not None and day <= as_of + pd.Timedelta(days=LOOKAHEAD):
+                    expected[(o.lane, day)] = expected.get((o.lane, day), 0) + int(o.loads)
+            for (lane, day), loads in expected.items():
+                row = plan[(plan["lane"] == lane) & (plan["date"] == day) & plan["booked"].astype(bool)]
+                assert int(row["loads"].sum()) >= loads, (run.policy, run.world, k, lane, day)
+                checked += 1
+        for o in run.orders.itertuples(index=False):
+            if pd.Timestamp(o.arrival) < end:
+                got = run.moved[(run.moved["date"] == pd.Timestamp(o.arrival)) & (run.moved["lane"] == o.lane)]
+                assert got["loads"].sum() >= o.loads, (run.policy, o.order_id)
+    assert checked > 0
+
+
+def test_no_contract_month_over_its_maximum(rehearsal):
+    path, res = rehearsal
+    sc = load_scenario(path)
+    limits = {s.supplier: s.max_t_per_month for s in sc.suppliers} | {b.buyer: b.max_t_per_month for b in sc.buyers}
+    near = 0
+    for run in res.runs:
+        m = run.moved.assign(month=pd.to_datetime(run.moved["date"]).dt.to_period("M"))
+        for (party, _month), t in m.groupby(["party", "month"])["tonnes"].sum().items():
+            hi = limits.get(party)
+            if hi:
+                assert t <= hi + 1e-6, (run.policy, party, t, hi)
+                near += t >= 0.5 * hi
+    assert (res.table["months_over_max"] == 0).all()
+    assert near > 0, "the gypsum contract is small enough to matter"
+
+
+def test_same_seed_same_figures(rehearsal):
+    path, res = rehearsal
+    from reagentplan.forecast import sample_futures
+    from reagentplan.rehearse import policy_figures, rehearse_policy, worlds_from_futures
+
+    sc = load_scenario(path)
+    world = worlds_from_futures(sample_futures(sc, FUTURES, seed=3, keep=("limestone_t", "gypsum_wet_t",
+                                                                         "fly_ash_t", "bottom_ash_t")),
+                                sc.storage)[1]
+    run = rehearse_policy(path, sc, world, "plan", weeks=WEEKS, disturbances=ROUGH, seed=3,
+                          lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10)
+    again = policy_figures(sc, run)
+    first = res.table[(res.table["policy"] == "plan") & (res.table["future"] == 1)].iloc[0].to_dict()
+    for k, v in again.items():
+        if k != "plan_seconds":
+            assert first[k] == v, k
+
+
+def test_cli_writes_files_and_names_bad_sheet(tmp_path, capsys):
+    s = _sheets()
+    s["rehearsal"] = [["key", "value"], ["late_train_chance_pct", 40], ["survey_eror_pct", 2]]
+    bad = write_workbook(s, tmp_path / "bad.xlsx")
+    out = tmp_path / "out"
+    assert main(["rehearse", str(bad), "--out", str(out), "--weeks", "1", "--futures", "1",
+                 "--lookahead-days", "21"]) == 2
+    err = capsys.readouterr().err
+    assert "sheet 'rehearsal', row 3, column 'key'" in err and "did you mean 'survey_error_pct'" in err
+    assert not out.exists()
+    s["rehearsal"] = [["key", "value"], ["late_train_chance_pct", 40], ["survey_error_pct", 2]]
+    good = write_workbook(s, tmp_path / "good.xlsx")
+    assert main(["rehearse", str(good), "--out", str(out), "--weeks", "30", "--futures", "1",
+                 "--late-chance", "120"]) == 2
+    err = capsys.readouterr().err
+    assert "option '--weeks'" in err and "option '--late-chance': found 120 %" in err
+    assert not out.exists()
+    assert main(["rehearse", str(good), "--out", str(out), "--weeks", "1", "--futures", "1",
+                 "--lookahead-days", "21", "--partial-chance", "0"]) == 0
+    table = pd.read_csv(out / "rehearsal.csv")
+    assert set(table["policy"]) == {"plan", "baseline"}
+    for c in ("realised_cost", "cost_stone", "cost_freight", "cost_sales", "cost_landfill",
+              "cost_stone_missing", "cost_overflow", "days_under_safety", "stockout_days", "overflow_days",
+              "nervousness"):
+        assert c in table.columns
+    wb = openpyxl.load_workbook(out / "rehearsal.xlsx")
+    assert wb["chart"]._charts, "the chart comparing the two policies"
+    import json
+
+    meta = json.loads((out / "rehearsal.json").read_text())
+    assert meta["settings"]["late_chance"] == pytest.approx(0.4)
+    assert meta["settings"]["survey_sd"] == pytest.approx(0.02)
+    assert meta["settings"]["partial_chance"] == 0
+    assert dt.date.fromisoformat(meta["settings"]["start_date"]) == dt.date(2030, 3, 4)
