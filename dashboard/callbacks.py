@@ -147,7 +147,9 @@ def header_content(run, meta: dict) -> list:
     made = meta.get("made", "")
     secs = meta.get("seconds")
     label = [html.Div(f"What-if: {meta.get('whatif', 'as the workbook says')}", id="plan-whatif"),
-             html.Div(f"{s['solver']} {s['status']}, gap {s['gap'] if s['gap'] is not None else '–'}"
+             html.Div(f"solver {s['solver']}: {s['status']}"
+                      + (f", proven within {100 * s['gap']:.2f} % of the best possible cost"
+                         if s["gap"] is not None else "")
                       + (f", made {made} in {secs:.1f} s" if secs is not None else ""))]
     return [title, sub, kpis, label]
 

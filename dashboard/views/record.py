@@ -76,6 +76,7 @@ def content(ov) -> dict:
             html.H5("Act on these first (this week)"),
             table(ov.act_first, [
                 ("change", "Change", str, False), ("lane", "Lane", str, False),
+                ("date_before", "Was on", fmt_date, False),
                 ("date", "Day", fmt_date, False), ("loads_before", "Loads before", str, True),
                 ("loads_after", "Loads after", str, True), ("order_by", "Order by", fmt_date, False)],
                 empty="Nothing to place, cancel or move this week.", table_id="record-act-first", limit=15)])
