@@ -278,7 +278,8 @@ def quality_figure(margins: pd.DataFrame, colours: dict[str, str] | None = None)
     if margins.empty:
         return empty_figure("No buyer sets a quality limit", 260, "Quality against buyers' limits")
     props = list(dict.fromkeys(margins["property"]))
-    fig = make_subplots(rows=len(props), cols=1, shared_xaxes=True, vertical_spacing=0.05,
+    fig = make_subplots(rows=len(props), cols=1, shared_xaxes=True,
+                        vertical_spacing=min(0.1, 0.35 / max(len(props), 1)),
                         subplot_titles=[_PROPERTY_TITLES.get(p, p) for p in props])
     buyers = list(dict.fromkeys(margins["buyer"]))
     bcol = {b: (colours or {}).get(b, party_colour(i)) for i, b in enumerate(buyers)}
@@ -314,6 +315,7 @@ def quality_figure(margins: pd.DataFrame, colours: dict[str, str] | None = None)
                                for d, g in zip(off["date"], off["margin"])], hoverinfo="text"),
                     row=i, col=1)
                 shown.add("off")
+    fig.update_yaxes(nticks=4)  # a few ticks per panel, so stacked panels stay readable
     fig.update_layout(template=TEMPLATE, title="Quality against each buyer's limits",
                       height=150 + 150 * len(props), hovermode="x", margin=dict(t=60, b=40),
                       legend=dict(orientation="h", y=-0.04, yanchor="top", x=0, xanchor="left"))

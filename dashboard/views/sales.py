@@ -28,8 +28,8 @@ def layout():
                "fly-ash season; what goes to landfill and the airspace it leaves.",
                className="rp-view-intro"),
         html.Div(className="rp-grid", children=[
-            card(graph(SHIPMENTS, 420)),
-            card(graph(QUALITY, 420)),
+            card(graph(SHIPMENTS, 620)),
+            card(graph(QUALITY, 620)),
             card(html.Div(id=QUALITY_TABLE), title="Tightest margin per buyer and limit"),
             card(graph(SEASON, 430)),
             card(graph(LANDFILL, 320)),
