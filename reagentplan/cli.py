@@ -404,6 +404,17 @@ def _db_option(p, required: bool = False) -> None:
                         "(default: the environment variable REAGENTPLAN_DB)")
 
 
+#: The MIP solvers a plan can run on (OR-Tools MathOpt).
+SOLVERS = ("highs", "scip", "cp-sat")
+
+
+def _solver_option(p, note: str = "") -> None:
+    """``--solver`` of every command that plans (default HiGHS); ``note`` follows the
+    default in the help."""
+    p.add_argument("--solver", choices=list(SOLVERS), default="highs",
+                   help="MIP solver (default %(default)s" + note + ")")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="reagentplan",
@@ -455,8 +466,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="sampled futures to guard the plan against (0 = none; default %(default)s)")
     p.add_argument("--seed", type=int, default=0, help="seed of the futures (default %(default)s)")
     p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
-    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
-                   help="MIP solver (default %(default)s, the fastest here by measurement)")
+    _solver_option(p, ", the fastest here by measurement")
     p.add_argument("--firm-days", type=int, default=56,
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--risk-level", type=float, default=5.0,
@@ -533,8 +543,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--case-timeout", type=float, default=None,
                    help="wall-clock seconds after which a case is reported as timed out "
                         "(default: none beyond the solver's time limit)")
-    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
-                   help="MIP solver (default %(default)s)")
+    _solver_option(p)
     p.add_argument("--firm-days", type=int, default=56,
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--risk-level", type=float, default=5.0,
@@ -560,8 +569,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="futures guarding each weekly plan (0 = none; default %(default)s)")
     p.add_argument("--time-limit", type=float, default=20.0,
                    help="solver seconds per weekly plan (default %(default)s)")
-    p.add_argument("--solver", choices=["highs", "scip", "cp-sat"], default="highs",
-                   help="MIP solver (default %(default)s)")
+    _solver_option(p)
     p.add_argument("--late-chance", type=float, default=None, metavar="PCT",
                    help="chance [%%] a booked train is late (default: the rehearsal sheet, else 30)")
     p.add_argument("--late-days", type=int, default=None, metavar="N",
