@@ -38,7 +38,7 @@ class PlanOptions:
 
     futures: int = 500
     seed: int = 0
-    solver: str = "highs"
+    solver: str = "auto"
     time_limit: float = 60.0
     firm_days: int = 56
     risk_level: float = 0.05
@@ -148,7 +148,9 @@ def header_content(run, meta: dict) -> list:
     secs = meta.get("seconds")
     label = [html.Div(f"What-if: {meta.get('whatif', 'as the workbook says')}", id="plan-whatif"),
              html.Div(f"solver {s['solver']}: {s['status']}"
-                      + (f", proven within {100 * s['gap']:.2f} % of the best possible cost"
+                      + ((f", proven within {100 * s['gap']:.2f} % of the best possible cost"
+                          if not scn.quality_coupled else
+                          f", within {100 * s['gap']:.2f} % of the best byproduct plan at the chosen stone")
                          if s["gap"] is not None else "")
                       + (f", made {made} in {secs:.1f} s" if secs is not None else ""))]
     return [title, sub, kpis, label]

@@ -795,6 +795,7 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
     train_sets = _check_train_sets(recs["train_sets"], recs["suppliers"], out)
+    _warn_stone_settings_unused(recs["period_settings"], suppliers, out)
     out.fail()
     return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
                     disposal, firm, history, quality, source_name, closures, periods,
@@ -1061,6 +1062,22 @@ def _check_closures(records, suppliers, buyers, disposal, out: _Collector) -> tu
             continue
         closures.append(LaneClosure(r["party"], r["mode"], r["first_date"], r["last_date"]))
     return tuple(closures)
+
+
+def _warn_stone_settings_unused(records, suppliers, out: _Collector) -> None:
+    """A `period_settings` row for ``limestone_caco3_pct`` does nothing once quarries give
+    their own CaCO3 (the silo's mix of their stone is what the scrubber is fed): say so."""
+    if not any(s.caco3_pct is not None for s in suppliers):
+        return
+    for r in records or []:
+        if r["key"] == "limestone_caco3_pct":
+            out.warnings.append(InputWarning(
+                "period_settings", r["_row"], "key", "limestone_caco3_pct for a span of days",
+                "of settings the plan uses (quarries give their own CaCO3 on the suppliers sheet, so "
+                "the scrubber is fed the silo's mix of the stone delivered)",
+                "DEVELOPERS.md, stone quality in the plan",
+                "this row is not used: set the stone's CaCO3 on the suppliers sheet, or leave "
+                "caco3_pct empty there to plan with this setting"))
 
 
 def _check_periods(records, plant: Plant, out: _Collector) -> pd.DataFrame | None:

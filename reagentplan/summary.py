@@ -96,6 +96,7 @@ def describe_plan(result) -> str:
     mv = result.movements
     lines = [f"Plan for {result.scenario.plant.name}: solver {s['solver']} ({s['status']}, gap "
              f"{(s['gap'] or 0) * 100:.2f} %, {s['solve_seconds']:.1f} s)",
+             f"  the gap covers {s['gap_scope']}",
              f"  total cost {s['total_cost']:>14,.0f} {cur}   (reorder-point baseline "
              f"{s['baseline_total_cost']:,.0f} {cur}; both include the end-stock value)"]
     cash, pen = cost_split(s["costs"])

@@ -283,3 +283,17 @@ def test_period_settings_overlap(sheets):
                                  [START, START + dt.timedelta(days=2), "oxidation_pct", 90],
                                  [START + dt.timedelta(days=2), START + dt.timedelta(days=4), "oxidation_pct", 80]]
     assert "overlaps row 2" in one(sheets, "sheet 'period_settings'", "row 3")
+
+
+def test_stone_period_setting_unused_when_quarries_give_caco3(sheets):
+    """A span of `limestone_caco3_pct` is not used once the quarries give their own stone:
+    the loader says so (a warning naming the row), and the scenario still loads."""
+    sheets["period_settings"] = [["first_date", "last_date", "key", "value"],
+                                 [START, START + dt.timedelta(days=2), "limestone_caco3_pct", 90]]
+    plain = load_scenario(workbook_bytes(sheets))
+    assert not [w for w in plain.warnings if w.sheet == "period_settings"]
+    sheets["suppliers"][0].append("caco3_pct")
+    sheets["suppliers"][1].append(96)
+    scn = load_scenario(workbook_bytes(sheets))
+    hits = [str(w) for w in scn.warnings if w.sheet == "period_settings"]
+    assert len(hits) == 1 and "row 2" in hits[0] and "not used" in hits[0] and "suppliers" in hits[0]
