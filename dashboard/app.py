@@ -125,7 +125,7 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None,
 
 
 def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0,
-               solver: str = "auto", time_limit: float = 60.0, firm_days: int = 56,
+               solver: str = "highs", time_limit: float = 60.0, firm_days: int = 56,
                risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,

@@ -38,7 +38,7 @@ class PlanOptions:
 
     futures: int = 500
     seed: int = 0
-    solver: str = "auto"
+    solver: str = "highs"
     time_limit: float = 60.0
     firm_days: int = 56
     risk_level: float = 0.05

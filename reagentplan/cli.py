@@ -404,17 +404,15 @@ def _db_option(p, required: bool = False) -> None:
                         "(default: the environment variable REAGENTPLAN_DB)")
 
 
-#: The MIP solvers a plan can run on (OR-Tools MathOpt); ``auto`` picks by measurement.
-SOLVERS = ("auto", "highs", "scip", "cp-sat")
+#: The MIP solvers a plan can run on (OR-Tools MathOpt).
+SOLVERS = ("highs", "scip", "cp-sat")
 
 
 def _solver_option(p, note: str = "") -> None:
-    """``--solver`` of every command that plans (default ``auto``: SCIP where the plan
-    prices stone of several qualities, HiGHS otherwise); ``note`` follows the default in
-    the help."""
-    p.add_argument("--solver", choices=list(SOLVERS), default="auto",
-                   help="MIP solver (default %(default)s: scip where quarries give their own CaCO3, "
-                        "highs otherwise" + note + ")")
+    """``--solver`` of every command that plans (default HiGHS); ``note`` follows the
+    default in the help."""
+    p.add_argument("--solver", choices=list(SOLVERS), default="highs",
+                   help="MIP solver (default %(default)s" + note + ")")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -468,7 +466,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="sampled futures to guard the plan against (0 = none; default %(default)s)")
     p.add_argument("--seed", type=int, default=0, help="seed of the futures (default %(default)s)")
     p.add_argument("--time-limit", type=float, default=60.0, help="solver seconds (default %(default)s)")
-    _solver_option(p, ", the faster here by measurement")
+    _solver_option(p, ", the fastest here by measurement")
     p.add_argument("--firm-days", type=int, default=56,
                    help="days planned one by one; weekly outlook after (default %(default)s)")
     p.add_argument("--risk-level", type=float, default=5.0,

@@ -52,7 +52,7 @@ class PlanRun:
         return list(self.futures.warnings) if self.futures is not None else []
 
 
-def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "auto",
+def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
              time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
              progress: bool = False) -> PlanRun:
     """Sample ``futures`` futures (none when 0), plan against them, replay the plan
@@ -66,7 +66,7 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
                              firm_days=firm_days, risk_level=risk_level, progress=progress)
 
 
-def plan_with_futures(scenario: Scenario, fut, *, solver: str = "auto", time_limit: float = 60.0,
+def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_limit: float = 60.0,
                       firm_days: int = 56, risk_level: float = 0.05,
                       progress: bool = False) -> PlanRun:
     """Plan ``scenario`` against futures already sampled (`reagentplan.forecast.Futures`

@@ -72,7 +72,8 @@ def describe_balance(s: Scenario, frame: pd.DataFrame) -> str:
 #: puts on a tonne below safety stock, above capacity, short of the scrubber's need or
 #: shipped off-spec.  Everything else (stone, freight, sales, landfill, contract
 #: shortfalls at the contract's own rate, end-stock value) is cash.
-PENALTY_ITEMS = ("shortage_penalty", "overflow_penalty", "empty_penalty", "quality_penalty")
+PENALTY_ITEMS = ("shortage_penalty", "overflow_penalty", "empty_penalty", "quality_penalty",
+                 "permit_penalty", "allowance_penalty")
 
 
 def cost_split(costs: dict[str, float]) -> tuple[float, float]:

@@ -103,7 +103,7 @@ def _stored(mv: pd.DataFrame, start: dt.date, days: int) -> StoredPlan:
 
 def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, policy: str, *, weeks: int,
                     disturbances: Disturbances, seed: int = 0, lookahead_days: int = 120,
-                    firm_days: int = 14, time_limit: float = 20.0, solver: str = "auto",
+                    firm_days: int = 14, time_limit: float = 20.0, solver: str = "highs",
                     plan_futures: int = 0, on_week=None) -> PolicyRun:
     """Follow ``policy`` (``plan`` or ``baseline``) for ``weeks`` weeks in ``world``.
 

@@ -82,7 +82,7 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
 
 def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: int = 0,
              lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
-             solver: str = "auto", disturbances: Disturbances = Disturbances(),
+             solver: str = "highs", disturbances: Disturbances = Disturbances(),
              plan_futures: int = 0, policies=POLICIES, progress: bool = False, scenario: Scenario | None = None) -> RehearsalResult:
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
     (seeded by ``seed``) for each policy; each weekly plan guarded by ``plan_futures``

@@ -75,6 +75,11 @@ class DailyPlan:
 
     quantity: dict[str, np.ndarray]
     booked: dict[str, np.ndarray] = field(default_factory=dict)
+    #: the scrubber's SO2 removal chosen per day [%] (None: the setpoint)
+    removal: np.ndarray | None = None
+    #: SO2 allowances bought and sold per day [t SO2] (None: no allowance sheet)
+    bought_t: np.ndarray | None = None
+    sold_t: np.ndarray | None = None
 
     def tonnes(self, lane: Lane) -> np.ndarray:
         q = self.quantity[lane.name]
@@ -178,6 +183,7 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             breaches.append(_breach(store, scenario.dates, a, b, above[a:b + 1].max(), "above capacity"))
     for name, a, trains in train_set_excess(scenario, lanes, plan.quantity):
         breaches.append(_breach(f"train set {name}", scenario.dates, a, a, trains, "more trains than the set has"))
+    _permit_and_allowances(scenario, balance, plan, costs, breaches)
     costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
     for a, b in _runs(unmet > 1e-6):
         breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
@@ -194,9 +200,48 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             charge = cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
             end_value += charge
             end_parts["byproducts"] += float(charge)
+    if "allowances_end" in costs:
+        # allowances left at the end, at the last sell price (a credit, with the stock)
+        end_parts["allowances"] = costs.pop("allowances_end")
+        end_value += end_parts["allowances"]
     costs["end_stock_value"] = float(end_value)
     return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals, shortfalls,
                       end_parts)
+
+
+def _permit_and_allowances(scenario: Scenario, balance: pd.DataFrame, plan: DailyPlan,
+                           costs: dict, breaches: list) -> None:
+    """Where the plan chooses the removal: tonne-days of SO2 over the permit's rolling
+    limit at `PERMIT_PENALTY_FACTOR` × the shortage penalty (``permit_penalty``).  Where
+    the station holds allowances: the money bought and sold (``allowances``), the holding
+    left at the end (``allowances_end``, moved to the end-stock value) and tonnes emitted
+    without an allowance (``allowance_penalty``, and a breach).  Neither line exists in
+    a scenario without a removal range or an allowance sheet (`lever.py`)."""
+    from .lever import (ALLOWANCE_SHORT_PENALTY_FACTOR, PERMIT_PENALTY_FACTOR, AllowanceTerms,
+                        allowance_costs, allowance_holding_t, permit_excess_t)
+
+    p = scenario.plant
+    emitted = balance["so2_emitted_t"].to_numpy(float)
+    rng = scenario.scrubber.removal_range
+    if rng is not None and rng[1] > rng[0]:
+        excess = permit_excess_t(emitted, balance["heat_input_gj"].to_numpy(float),
+                                 p.so2_limit_kg_per_gj, int(p.so2_limit_avg_days))
+        costs["permit_penalty"] = float(PERMIT_PENALTY_FACTOR * p.shortage_penalty_per_t * excess.sum())
+    terms = AllowanceTerms.from_scenario(scenario)
+    if terms is None:
+        return
+    n = len(emitted)
+    bought = np.zeros(n) if plan.bought_t is None else plan.bought_t
+    sold = np.zeros(n) if plan.sold_t is None else plan.sold_t
+    acc = allowance_costs(terms, emitted, bought, sold)
+    costs["allowances"] = acc["trade"]
+    costs["allowances_end"] = acc["end_value"]
+    holding = allowance_holding_t(terms, emitted, bought, sold)
+    short = np.clip(-holding, 0, None)
+    costs["allowance_penalty"] = float(ALLOWANCE_SHORT_PENALTY_FACTOR * p.shortage_penalty_per_t * short.sum())
+    for a, b in _runs(short > 1e-6):
+        breaches.append(_breach("so2_allowances", scenario.dates, a, b, short[a:b + 1].max(),
+                                "SO2 emitted without an allowance"))
 
 
 def off_spec_days(lane: Lane, balance: pd.DataFrame) -> np.ndarray:

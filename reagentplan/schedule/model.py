@@ -81,7 +81,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                gap: float = 5e-4, hint: DailyPlan | None = None,
                progress: bool = False, chem=None, around: DailyPlan | None = None,
                scale: float | None = None, fixed: dict | None = None,
-               to_days: bool = True) -> SolveOutcome:
+               to_days: bool = True, lever=None, allow=None) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -95,8 +95,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                                  _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
-                           scale=scale, fixed=fixed)
-    plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"])
+                           scale=scale, fixed=fixed, lever=lever, allow=allow)
+    plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"], first, lever)
     if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
         totals = {lane.name: [(a, b, first["qty"][lane.name][k]) for k, (a, b) in enumerate(periods)
@@ -106,8 +106,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
             lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
                                     plan, totals, progress=progress, label="outlook to days",
-                                    chem=chem, lin=lin2, fixed=fixed)
-            plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"])
+                                    chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow)
+            plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"], second, lever)
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
     return SolveOutcome(plan, solver, first["status"], first["objective"], first["bound"],
@@ -193,8 +193,10 @@ class SolveProgress:
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
                    label: str = "solving", chem=None, lin=None, scale: float | None = None,
-                   fixed: dict | None = None) -> dict:
-    """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums."""
+                   fixed: dict | None = None, lever=None, allow=None) -> dict:
+    """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums;
+    ``lever`` (`lever.RemovalLever`) makes the removal a decision per period, ``allow``
+    (`lever.AllowanceTerms`) adds the allowance account."""
     dates = scenario.dates
     n = len(dates)
     P = len(periods)
@@ -209,6 +211,28 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
 
     def per_period(x: np.ndarray) -> np.ndarray:
         return np.bincount(pid, weights=x, minlength=P)
+
+    # ---- the removal per period (lever.py): each balance column is intercept + slope × r
+    r_var = ([m.add_variable(lb=lever.lo, ub=lever.hi, name=f"r[{k}]") for k in range(P)]
+             if lever is not None else None)
+
+    def column(name: str, chem_array: np.ndarray | None = None) -> list:
+        """Per period, a balance column: constants, or affine in the period's removal."""
+        if r_var is None:
+            return [float(v) for v in per_period(balance[name].to_numpy(float) if chem_array is None
+                                                  else chem_array)]
+        ic, sl = lever.chem_affine(name, chem) if chem_array is not None else (lever.intercept[name],
+                                                                                 lever.slope[name])
+        icp, slp = per_period(ic), per_period(sl)
+        return [float(icp[k]) + float(slp[k]) * r_var[k] for k in range(P)]
+
+    def column_most(name: str, chem_array: np.ndarray | None = None) -> np.ndarray:
+        """Per period, the most a column can be (at the range's end that makes most)."""
+        if lever is None:
+            return per_period(balance[name].to_numpy(float) if chem_array is None else chem_array)
+        ic, sl = lever.chem_affine(name, chem) if chem_array is not None else (lever.intercept[name],
+                                                                                 lever.slope[name])
+        return per_period(np.maximum(ic + sl * lever.lo, ic + sl * lever.hi))
 
     # ---- lane variables
     x: dict[str, list] = {}
@@ -348,23 +372,32 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     silo_inerts: list = []
     # limestone first: the gypsum made depends on the stone the silo feeds
     for store, st in sorted(scenario.storage.items(), key=lambda kv: kv[0] != "limestone"):
+        # flow_terms: the period's use (negative) or production, constants or affine in
+        # the removal; flow: the most of it, for the bounds
         if store == "limestone":
-            flow = -per_period(balance["limestone_t"].to_numpy(float))
+            flow_terms = [-t for t in column("limestone_t")]
+            flow = -column_most("limestone_t")
             ins = [l for l in lanes if l.kind == SUPPLY]
             outs = []
         else:
-            flow = per_period(balance[PRODUCTION[store]].to_numpy(float))
+            flow_terms = column(PRODUCTION[store])
+            flow = column_most(PRODUCTION[store])
             ins = []
             outs = [l for l in lanes if l.material == store and l.kind != SUPPLY]
         flow_expr = None
         if chem is not None and store == "gypsum":
             # wet cake = (cake without stone inerts + the inerts drawn with the scrubber's
             # share of the CaCO3) / (1 − moisture); the inerts drawn come from the silo
-            base = per_period(chem.cake_base * chem.wet_factor)
+            base_terms = column("cake_base_wet", chem.cake_base * chem.wet_factor)
             share = per_period(chem.need_gypsum * chem.wet_factor) / np.maximum(per_period(chem.need), 1e-9)
-            flow_expr = [float(base[k]) + float(share[k]) * silo_inerts[k] for k in range(P)]
+            flow_expr = [base_terms[k] + float(share[k]) * silo_inerts[k] for k in range(P)]
+            # for the bounds below: the most it can make
             flow = per_period(chem.cake_base * chem.wet_factor + chem.need_gypsum * chem.wet_factor
-                              * (chem.u_hi - 1.0))  # for the bounds below: the most it can make
+                              * (chem.u_hi - 1.0))
+            if lever is not None:
+                flow = (column_most("cake_base_wet", chem.cake_base * chem.wet_factor)
+                        + column_most("need_gypsum", chem.need_gypsum) * per_period(chem.wet_factor)
+                        / days_in * (chem.u_hi - 1.0))
         g = guard.get(store)
         g_end = np.zeros(P) if g is None else np.array([g[b] for _, b in periods])
         # finite bounds everywhere (CP-SAT needs them; they also tighten the others)
@@ -385,7 +418,8 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             # draw a little more stone than the model did
             safety += SILO_SAFETY_MARGIN * st.safety_t
         if chem is not None and store == "limestone":
-            need_k = per_period(chem.need)
+            need_terms = column("need", chem.need)
+            need_most = column_most("need", chem.need)
             u_lin, j_lin = lin
             prev_j = st.initial_t * chem.initial_caco3
             silo_inerts.clear()
@@ -399,23 +433,23 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 caco3_in = sum((chem.lane_caco3[l.name] * tonnes(l, k) for l in ins), 0.0)
                 i_after, j_after = prev + moved, prev_j + caco3_in
                 rho = float(u_lin[k]) - 1.0
-                inerts = float(need_k[k]) * rho
-                unmet = m.add_variable(lb=0, ub=max(float(need_k.sum()), 1.0), name=f"unmet[{k}]")
-                m.add_linear_constraint(level == i_after - float(need_k[k]) - inerts + (1.0 + rho) * unmet)
+                inerts = need_terms[k] * rho
+                unmet = m.add_variable(lb=0, ub=max(float(need_most.sum()), 1.0), name=f"unmet[{k}]")
+                m.add_linear_constraint(level == i_after - need_terms[k] - inerts + (1.0 + rho) * unmet)
                 j_level = m.add_variable(lb=0, ub=most, name=f"J[{k}]")
-                m.add_linear_constraint(j_level == j_after - float(need_k[k]) + unmet)
+                m.add_linear_constraint(j_level == j_after - need_terms[k] + unmet)
                 cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * (1.0 + rho) * unmet)
                 silo_inerts.append(inerts)
                 silo_after[k] = (i_after, j_after, most, prev, prev_j)
                 prev_j = j_level
             elif store == "limestone":
                 unmet = m.add_variable(lb=0, ub=max(demand_total, 1.0), name=f"unmet[{k}]")
-                m.add_linear_constraint(level == prev + moved + float(flow[k]) + unmet)
+                m.add_linear_constraint(level == prev + moved + flow_terms[k] + unmet)
                 cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * unmet)
             elif flow_expr is not None:
                 m.add_linear_constraint(level == prev + moved + flow_expr[k])
             else:
-                m.add_linear_constraint(level == prev + moved + float(flow[k]))
+                m.add_linear_constraint(level == prev + moved + flow_terms[k])
             w = days_in[k]
             if st.safety_t > 0 or store == "limestone":
                 short = m.add_variable(lb=0, ub=st.safety_t + 1.0, name=f"short[{store},{k}]")
@@ -447,6 +481,15 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         if periods[k][1] > periods[k][0]:
             # a week: its first days draw the silo as it was before the week's deliveries
             m.add_linear_constraint(i_before - um * j_before <= (chem.u_hi - um) * most_t * (1 - z))
+    # ---- the permit's rolling average, where the plan chooses the removal (lever.py)
+    if r_var is not None and lever.limit_kg_per_gj is not None:
+        cost_terms += _permit_rows(m, lever, r_var, periods, pid, pen.shortage_penalty_per_t)
+    # ---- the allowance account (lever.py)
+    trades = None
+    if allow is not None:
+        trades, allowance_cost = _allowance_rows(m, allow, column("so2_emitted_t"), periods, period_month,
+                                                 column_most("so2_emitted_t"), pen.shortage_penalty_per_t)
+        cost_terms += allowance_cost
     # firm orders are constants of the plan: their cost is part of the objective
     booked = 0.0
     for lane in lanes:
@@ -494,16 +537,100 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         if lane.load_t:
             per = np.rint(per).astype(int)
         qty[lane.name] = per
-    return {"qty": qty, "status": result.termination.reason.name.lower(), "objective": obj,
-            "bound": bound, "gap": gap_}
+    out = {"qty": qty, "status": result.termination.reason.name.lower(), "objective": obj,
+           "bound": bound, "gap": gap_, "removal": None, "bought": None, "sold": None}
+    if r_var is not None:
+        out["removal"] = np.array([values[v] for v in r_var])
+    if trades is not None:
+        out["bought"] = np.array([values[v] for v in trades[0]])
+        out["sold"] = np.array([values[v] for v in trades[1]])
+    return out
+
+
+def _permit_rows(m, lever, r_var, periods, pid, shortage_penalty: float) -> list:
+    """For each day, SO2 emitted over the permit's averaging period ending that day (affine
+    in the removals of the periods it spans) at most the limit × their heat input, plus a
+    priced excess; days that keep the limit even at the lowest removal get no row."""
+    from .lever import PERMIT_PENALTY_FACTOR
+
+    n = len(pid)
+    D = lever.avg_days
+    ic, sl = lever.intercept["so2_emitted_t"], lever.slope["so2_emitted_t"]
+    c_ic, c_sl = np.r_[0.0, np.cumsum(ic)], np.r_[0.0, np.cumsum(sl)]
+    c_heat = np.r_[0.0, np.cumsum(lever.heat_gj)]
+    terms = []
+    for d in range(n):
+        lo_d = max(0, d - D + 1)
+        allowed = lever.limit_kg_per_gj * (c_heat[d + 1] - c_heat[lo_d]) / 1000.0
+        const = c_ic[d + 1] - c_ic[lo_d]
+        coefs = {}
+        for k in range(pid[lo_d], pid[d] + 1):
+            a, b = max(periods[k][0], lo_d), min(periods[k][1], d)
+            coefs[k] = c_sl[b + 1] - c_sl[a]
+        worst = const + sum(c * (lever.lo if c < 0 else lever.hi) for c in coefs.values())
+        if worst <= allowed + 1e-9:
+            continue
+        over = m.add_variable(lb=0, ub=max(worst - allowed, 0.0) + 1.0, name=f"permit[{d}]")
+        m.add_linear_constraint(const + sum((float(c) * r_var[k] for k, c in coefs.items()), 0.0) - over
+                                <= allowed)
+        terms.append(PERMIT_PENALTY_FACTOR * shortage_penalty * over)
+    return terms
+
+
+def _allowance_rows(m, allow, emitted: list, periods, period_month, emitted_most, shortage_penalty: float):
+    """The holding of SO2 allowances period by period: opening + allocations + bought − sold
+    − emitted, never below zero (a tonne short priced and reported); purchases (and, apart,
+    sales) within the month's limit; bought at the period's first day's price, sold at its
+    last day's, the holding left at the end credited at the last sell price.  Returns
+    ((bought vars, sold vars), cost terms)."""
+    from .lever import ALLOWANCE_SHORT_PENALTY_FACTOR
+
+    P = len(periods)
+    big = float(allow.opening_t + allow.allocated_t.sum() + np.sum(emitted_most)) + 1.0
+    buys = [m.add_variable(lb=0, ub=big, name=f"buy[{k}]") for k in range(P)]
+    sells = [m.add_variable(lb=0, ub=big, name=f"sell[{k}]") for k in range(P)]
+    terms = []
+    for j in np.unique(period_month):
+        ks = np.flatnonzero(period_month == j)
+        cap = allow.max_trade_t_per_month[periods[ks[0]][0]]
+        if np.isfinite(cap):
+            m.add_linear_constraint(sum((buys[k] for k in ks), 0.0) <= float(cap))
+            m.add_linear_constraint(sum((sells[k] for k in ks), 0.0) <= float(cap))
+    prev = float(allow.opening_t)
+    for k, (a, b) in enumerate(periods):
+        hold = m.add_variable(lb=-big, ub=big, name=f"hold[{k}]")
+        short = m.add_variable(lb=0, ub=big, name=f"hold_short[{k}]")
+        alloc = float(allow.allocated_t[a:b + 1].sum())
+        m.add_linear_constraint(hold == prev + alloc + buys[k] - sells[k] - emitted[k])
+        m.add_linear_constraint(hold + short >= 0)
+        terms += [float(allow.buy_price[a]) * buys[k], -float(allow.sell_price[b]) * sells[k],
+                  ALLOWANCE_SHORT_PENALTY_FACTOR * shortage_penalty * short]
+        prev = hold
+    terms.append(-float(allow.sell_price[-1]) * prev)
+    return (buys, sells), terms
 
 
 def spread_to_days(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                    firm: dict[str, tuple[np.ndarray, np.ndarray]], periods: list[tuple[int, int]],
-                   qty: dict[str, np.ndarray]) -> DailyPlan:
+                   qty: dict[str, np.ndarray], solved: dict | None = None, lever=None) -> DailyPlan:
     """Turn per-period quantities into days: a daily period is its day; a weekly
-    bucket's loads go to its open days, evenly spaced, within loads per day."""
+    bucket's loads go to its open days, evenly spaced, within loads per day.  A period's
+    removal holds on each of its days; allowances are bought on its first day and sold
+    on its last."""
     n = len(scenario.dates)
+    removal = bought = sold = None
+    if solved is not None and solved.get("removal") is not None:
+        removal = np.empty(n)
+        for k, (a, b) in enumerate(periods):
+            removal[a:b + 1] = solved["removal"][k]
+        balance = balance.copy()
+        for c in lever.intercept:
+            balance[c] = lever.at(c, removal)
+    if solved is not None and solved.get("bought") is not None:
+        bought, sold = np.zeros(n), np.zeros(n)
+        for k, (a, b) in enumerate(periods):
+            bought[a] += solved["bought"][k]
+            sold[b] += solved["sold"][k]
     out, booked = {}, {}
     for lane in lanes:
         f_loads = firm.get(lane.name, (np.zeros(n, int), None))[0]
@@ -539,7 +666,7 @@ def spread_to_days(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in scenario.storage:
             _never_ship_more_than_stock(scenario, balance, store, lanes, periods, out, booked)
-    return DailyPlan(out, booked)
+    return DailyPlan(out, booked, removal, bought, sold)
 
 
 def _never_ship_more_than_stock(scenario, balance, store, lanes, periods, qty, booked) -> None:

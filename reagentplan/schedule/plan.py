@@ -103,17 +103,6 @@ class PlanResult:
         }
 
 
-def pick_solver(scenario: Scenario, solver: str) -> str:
-    """The solver ``auto`` stands for: SCIP where the plan prices stone of several qualities
-    (measured on the demo, `bench/schedule.py`: 120 days planned daily in 3.8 s against
-    HiGHS's 8.4 s, 365 days daily a plan without breaches where HiGHS's time-limited
-    successive solves left one), HiGHS otherwise (faster on the plain model, and SCIP's
-    plain 120-day daily plan broke a limit that HiGHS's did not)."""
-    if solver != "auto":
-        return solver
-    return "scip" if scenario.quality_coupled else "highs"
-
-
 def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
     """What the reported gap proves, in words: the whole model's optimum, or (stone of
     several qualities) only the byproduct plan at the stone the successive solves chose."""
@@ -129,7 +118,7 @@ def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
 
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
-              firm_days: int = 56, solver: str = "auto", time_limit: float = 60.0,
+              firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
               gap: float = 5e-4, progress: bool = False) -> PlanResult:
     """Plan a scenario.
 
@@ -147,7 +136,6 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     firm = firm_loads(scenario, lanes)
     guard = guard_margins(balance, flows, risk_level)
     chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
-    solver = pick_solver(scenario, solver)
     solver_note = ""
     if chem is not None and solver == "cp-sat":
         # CP-SAT takes integer models only (MathOpt scales continuous ones); the silo's
@@ -230,8 +218,10 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
 #: left at the end goes with what it is: limestone with the stone, byproducts with landfill.
 SAVING_CAUSES = {"stone": ("limestone_purchase", "end:limestone"), "freight": ("freight",),
                  "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill", "end:byproducts"),
+                 "allowances": ("allowances", "end:allowances"),
                  "penalties": ("shortage_penalty", "overflow_penalty", "empty_penalty",
-                               "contract_penalty", "quality_penalty")}
+                               "contract_penalty", "quality_penalty", "permit_penalty",
+                               "allowance_penalty")}
 
 
 def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
@@ -242,7 +232,7 @@ def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
     def line(ev: Evaluation, key: str) -> float:
         if key.startswith("end:"):
             return ev.end_parts.get(key[4:], 0.0)
-        return ev.costs[key]
+        return ev.costs.get(key, 0.0)
 
     return {cause: round(sum(line(baseline, k) - line(plan, k) for k in keys), 2)
             for cause, keys in SAVING_CAUSES.items()}

@@ -83,7 +83,7 @@ FIXED_COSTS = ("limestone_purchase", "freight", "byproduct_sales", "landfill", "
 class CaseSettings:
     """How every case of a study is planned (the `reagentplan plan` options)."""
 
-    solver: str = "auto"
+    solver: str = "highs"
     time_limit: float = 60.0          # solver seconds per solve [s]
     firm_days: int = 56
     risk_level: float = 0.05          # [-]

@@ -1,0 +1,235 @@
+"""The scrubber's SO2 removal as a decision of the plan, the permit's rolling average and
+SO2 emission allowances.
+
+When the scrubber sheet gives a range (``removal_min_pct`` < ``removal_max_pct``) the plan
+chooses the removal r of each period within it.  Everything the balance makes of the SO2
+that reaches the scrubber is affine in r at a given stone and coal: the SO2 removed is the
+SO2 reaching the scrubber × r, and the limestone (its CaCO3), the gypsum and the SO2
+emitted follow it linearly (the stoichiometry of `reagentplan.balance`).  So two balances,
+at the range's ends, give each day's quantity as ``intercept + slope × r`` exactly, and
+the model stays mixed-integer linear.  Gypsum purity is a ratio and is not affine; the
+plan judges it at the setpoint and the byproducts are re-planned at the chosen removal
+(exact), as they are at the chosen stone.
+
+The permit: for every day d, the SO2 emitted over the averaging period ending on d must
+not exceed the limit × the heat input of those days (the rolling average of
+`reagentplan.balance`, fewer days at the start of the horizon).  A tonne-day over it is
+priced at `PERMIT_PENALTY_FACTOR` × the workbook's shortage penalty, so the plan breaks
+the permit only where nothing else can keep it; each run of days over it is still a
+breach (`permit.py`).
+
+Allowances (optional sheet ``allowances``): every tonne emitted uses one allowance; the
+holding (opening + allocations + bought − sold − emitted) may not go below zero (a tonne
+short is priced at `ALLOWANCE_SHORT_PENALTY_FACTOR` × the shortage penalty and reported);
+buying and selling are at the sheet's prices within its monthly limits; allowances left at
+the end are valued at the last sell price, so holding and selling compare fairly.
+
+References
+----------
+40 CFR Part 60, Subpart Da: SO2 limits as a rolling average of the emission rate over
+the averaging period (from memory); the station's own permit governs.
+40 CFR Part 73 (the SO2 allowance system: one allowance authorises one ton of SO2
+emitted; from memory).
+Srivastava, R. K. and Jozewicz, W. (2001), "Flue gas desulfurization: the state of the
+art", J. Air & Waste Manage. Assoc. 51:1676-1688 (removal of wet limestone scrubbers).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..scenario import Scenario
+
+#: A tonne-day of SO2 over the permit's rolling limit costs this many times the
+#: workbook's shortage penalty per tonne (common practice, no source: a permit breach is
+#: worse than a silo below safety, and as bad as an empty one).
+PERMIT_PENALTY_FACTOR = 5.0
+#: A tonne of SO2 emitted without an allowance costs this many times the shortage
+#: penalty (common practice, no source).
+ALLOWANCE_SHORT_PENALTY_FACTOR = 5.0
+#: Columns of the balance that the plan follows with the removal.
+AFFINE_COLUMNS = ("limestone_t", "caco3_need_t", "limestone_scrubber_t", "limestone_hcl_t",
+                  "gypsum_wet_t", "gypsum_dry_t", "gypsum_inerts_t", "fly_ash_t", "bottom_ash_t",
+                  "so2_emitted_t", "so2_removed_t")
+
+
+def removal_setpoint(scenario: Scenario) -> np.ndarray:
+    """The fixed removal of each horizon day [%]: the scrubber sheet's ``removal_pct`` with
+    its period settings (what the hand policy and ``reagentplan balance`` use)."""
+    return np.asarray(scenario.daily_setting("removal_pct"), dtype=float)
+
+
+@dataclass
+class RemovalLever:
+    """Per day, each balance column as ``intercept + slope × removal`` [t/d, slope t/d per
+    %-point], the range [%], the setpoint [%], and the permit's terms.
+
+    lo, hi : the range the plan may choose within [%]
+    setpoint : the fixed removal per day [%]
+    intercept, slope : per column of `AFFINE_COLUMNS`, arrays (days,)
+    heat_gj : heat input per day [GJ]
+    limit_kg_per_gj : the permit limit [kg/GJ] or None
+    avg_days : its averaging period [d]
+    """
+
+    lo: float
+    hi: float
+    setpoint: np.ndarray
+    intercept: dict[str, np.ndarray]
+    slope: dict[str, np.ndarray]
+    heat_gj: np.ndarray
+    limit_kg_per_gj: float | None
+    avg_days: int
+    caco3: np.ndarray | None = None
+    cfb: bool = False
+
+    @classmethod
+    def from_scenario(cls, scenario: Scenario, caco3_pct=None) -> "RemovalLever | None":
+        """The lever of a scenario with a removal range of some width, else None (a range
+        of one value plans exactly as a fixed removal)."""
+        from ..balance import balance_frame
+
+        rng = scenario.scrubber.removal_range
+        if rng is None or rng[1] - rng[0] < 1e-9:
+            return None
+        lo, hi = float(rng[0]), float(rng[1])
+        n = len(scenario.dates)
+        b_lo = balance_frame(scenario, caco3_pct=caco3_pct, removal_pct=np.full(n, lo))
+        b_hi = balance_frame(scenario, caco3_pct=caco3_pct, removal_pct=np.full(n, hi))
+        slope, icpt = {}, {}
+        for c in AFFINE_COLUMNS:
+            a, b = b_lo[c].to_numpy(float), b_hi[c].to_numpy(float)
+            slope[c] = (b - a) / (hi - lo)
+            icpt[c] = a - slope[c] * lo
+        p = scenario.plant
+        return cls(lo, hi, removal_setpoint(scenario), icpt, slope,
+                   b_lo["heat_input_gj"].to_numpy(float), p.so2_limit_kg_per_gj, int(p.so2_limit_avg_days),
+                   b_lo["limestone_caco3_pct"].to_numpy(float) / 100, p.boiler == "cfb")
+
+    def chem_affine(self, name: str, chem) -> tuple[np.ndarray, np.ndarray]:
+        """(intercept, slope per %-point) per day of a quantity of the silo's chemistry
+        (`quality.SiloChemistry`) [t/d]: ``need`` (CaCO3 needed), ``need_gypsum`` (its part
+        whose stone inerts report to the gypsum) or ``cake_base_wet`` (wet cake without the
+        stone's inerts)."""
+        ic, sl = self.intercept, self.slope
+        if name == "need":
+            return ic["caco3_need_t"], sl["caco3_need_t"]
+        if name == "need_gypsum":
+            if self.cfb:
+                return np.zeros_like(self.heat_gj), np.zeros_like(self.heat_gj)
+            return ((ic["limestone_scrubber_t"] + ic["limestone_hcl_t"]) * self.caco3,
+                    (sl["limestone_scrubber_t"] + sl["limestone_hcl_t"]) * self.caco3)
+        if name == "cake_base_wet":
+            return ((ic["gypsum_dry_t"] - ic["gypsum_inerts_t"]) * chem.wet_factor,
+                    (sl["gypsum_dry_t"] - sl["gypsum_inerts_t"]) * chem.wet_factor)
+        raise KeyError(name)
+
+    def at(self, column: str, removal) -> np.ndarray:
+        """The column's value per day at a removal per day [%]."""
+        return self.intercept[column] + self.slope[column] * np.asarray(removal, dtype=float)
+
+    def permit_excess_t(self, emitted_t) -> np.ndarray:
+        """Per day, SO2 over the permit's rolling limit [t]: emitted over the averaging
+        period ending that day less limit × heat input of those days, never below 0."""
+        return permit_excess_t(emitted_t, self.heat_gj, self.limit_kg_per_gj, self.avg_days)
+
+
+def permit_excess_t(emitted_t, heat_gj, limit_kg_per_gj, avg_days: int) -> np.ndarray:
+    """Per day, the SO2 [t] emitted over the ``avg_days`` days ending that day (fewer at the
+    start) above ``limit_kg_per_gj`` [kg/GJ] × their heat input [GJ] / 1000; zeros when
+    there is no limit."""
+    from ..balance import trailing_sum
+
+    e = np.asarray(emitted_t, dtype=float)
+    if limit_kg_per_gj is None:
+        return np.zeros_like(e)
+    allowed = limit_kg_per_gj * trailing_sum(np.asarray(heat_gj, dtype=float), avg_days) / 1000.0
+    return np.clip(trailing_sum(e, avg_days) - allowed, 0, None)
+
+
+# --------------------------------------------------------------------------- allowances
+
+
+@dataclass
+class AllowanceTerms:
+    """The allowance sheet per horizon day: opening holding [t SO2], allocations [t/d],
+    buy and sell prices [money/t], the most bought (and, apart, sold) per month [t]."""
+
+    opening_t: float
+    allocated_t: np.ndarray
+    buy_price: np.ndarray
+    sell_price: np.ndarray
+    max_trade_t_per_month: np.ndarray
+
+    @classmethod
+    def from_scenario(cls, scenario: Scenario) -> "AllowanceTerms | None":
+        days = scenario.allowance_days()
+        if days is None:
+            return None
+        return cls(float(scenario.allowance_opening_t or 0.0), days["allocated_t"].to_numpy(float),
+                   days["buy_price_per_t"].to_numpy(float), days["sell_price_per_t"].to_numpy(float),
+                   days["max_trade_t_per_month"].to_numpy(float))
+
+
+def allowance_holding_t(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> np.ndarray:
+    """End-of-day allowance holding [t SO2]: opening + allocations + bought − sold − emitted,
+    cumulated."""
+    flow = (terms.allocated_t + np.asarray(bought_t, float) - np.asarray(sold_t, float)
+            - np.asarray(emitted_t, float))
+    return terms.opening_t + np.cumsum(flow)
+
+
+def allowance_costs(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> dict[str, float]:
+    """Money of the allowance account: ``trade`` (bought × buy price − sold × sell price),
+    ``end_value`` (minus the holding left at the end × the last sell price) and ``short_t``
+    (the most the holding went below zero, tonnes of SO2 emitted without an allowance)."""
+    bought_t, sold_t = np.asarray(bought_t, float), np.asarray(sold_t, float)
+    holding = allowance_holding_t(terms, emitted_t, bought_t, sold_t)
+    trade = float((bought_t * terms.buy_price).sum() - (sold_t * terms.sell_price).sum())
+    end_value = -float(terms.sell_price[-1] * max(holding[-1], 0.0))
+    return {"trade": trade, "end_value": end_value, "short_t": float(max(-holding.min(initial=0.0), 0.0))}
+
+
+def baseline_trades(terms: AllowanceTerms, emitted_t, month_index: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The careful hand rule: never sell; buy, on the day the holding would go below zero,
+    just what keeps it at zero, within the month's purchase limit. Returns (bought, sold)
+    per day [t]."""
+    e = np.asarray(emitted_t, float)
+    n = len(e)
+    bought = np.zeros(n)
+    left_in_month: dict[int, float] = {}
+    holding = terms.opening_t
+    for d in range(n):
+        holding += terms.allocated_t[d] - e[d]
+        if holding < 0:
+            m = int(month_index[d])
+            cap = terms.max_trade_t_per_month[d]
+            room = left_in_month.setdefault(m, np.inf if np.isnan(cap) else float(cap))
+            buy = min(-holding, room)
+            bought[d] = buy
+            left_in_month[m] = room - buy
+            holding += buy
+    return bought, np.zeros(n)
+
+
+def allowance_frame(scenario: Scenario, terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> pd.DataFrame:
+    """Per calendar month: emitted, allocated, bought, sold [t SO2], the holding at the
+    month's end [t] and the money traded."""
+    dates = scenario.dates
+    holding = allowance_holding_t(terms, emitted_t, bought_t, sold_t)
+    frame = pd.DataFrame({"month": dates.to_period("M").astype(str), "emitted_t": emitted_t,
+                          "allocated_t": terms.allocated_t, "bought_t": bought_t, "sold_t": sold_t,
+                          "cost": np.asarray(bought_t) * terms.buy_price - np.asarray(sold_t) * terms.sell_price,
+                          "holding_end_t": holding})
+    agg = frame.groupby("month", sort=False).agg(
+        emitted_t=("emitted_t", "sum"), allocated_t=("allocated_t", "sum"), bought_t=("bought_t", "sum"),
+        sold_t=("sold_t", "sum"), cost=("cost", "sum"), holding_end_t=("holding_end_t", "last"))
+    return agg.reset_index().round(2)
+
+
+__all__ = ["RemovalLever", "AllowanceTerms", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR",
+           "removal_setpoint", "permit_excess_t", "allowance_holding_t", "allowance_costs",
+           "baseline_trades", "allowance_frame"]
