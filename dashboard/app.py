@@ -103,7 +103,8 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None,
         ]),
         html.Div(CAUTION, className="rp-caution", id="caution"),
         html.Div(className="rp-body", children=[
-            controls.layout(scn.scrubber.removal_pct, scn.dates, meta.get("source", "")),
+            controls.layout(scn.scrubber.removal_pct, scn.dates, meta.get("source", ""),
+                            scn.scrubber.removal_range),
             html.Main(className="rp-main", children=[
                 dcc.Tabs(id="views", value="coordinator", className="rp-tabs", children=tabs),
             ]),

@@ -227,7 +227,8 @@ def accept_upload(store: PlanStore, data: dict | None):
 
 
 def scenario_controls(store: PlanStore, scenario_id):
-    """Slider settings for a scenario: removal, outage range max / marks / value, label."""
+    """Slider settings for a scenario: removal, outage range max / marks / value, label,
+    removal range, allowance price (empty: the workbook's)."""
     entry = store.get("scenario", scenario_id)
     if entry is None:
         raise PreventUpdate
@@ -236,7 +237,8 @@ def scenario_controls(store: PlanStore, scenario_id):
     label = (f"{entry.meta.get('source', scn.source_name)} · {scn.plant.name} · "
              f"{scn.plant.horizon_days} days from {scn.plant.start_date:%Y-%m-%d}")
     return (round(float(scn.scrubber.removal_pct), 1), outage["max"], outage["marks"],
-            outage["value"], label)
+            outage["value"], label,
+            C.removal_range_value(scn.scrubber.removal_pct, scn.scrubber.removal_range), None)
 
 
 def outage_text(store: PlanStore, scenario_id, outage_on, outage_range) -> str:
@@ -255,9 +257,11 @@ def outage_text(store: PlanStore, scenario_id, outage_on, outage_range) -> str:
 # --------------------------------------------------------------------------- re-plan
 
 
-def whatif_kwargs(scenario, load_pct, sulfur_pct, removal, outage_on, outage_range) -> dict:
+def whatif_kwargs(scenario, load_pct, sulfur_pct, removal, outage_on, outage_range,
+                  removal_range=None, allowance_price=None) -> dict:
     """The sliders as `apply_whatif` arguments (removal only when moved off the
-    workbook's value)."""
+    workbook's value; ``removal_range`` only when moved off the workbook's range, or its
+    fixed removal; ``allowance_price`` only when a price is typed)."""
     kwargs: dict = {"load_factor": float(load_pct if load_pct is not None else 100) / 100,
                     "sulfur_scale": float(sulfur_pct if sulfur_pct is not None else 100) / 100,
                     "removal_pct": None, "rail_outage": None}
@@ -268,18 +272,26 @@ def whatif_kwargs(scenario, load_pct, sulfur_pct, removal, outage_on, outage_ran
         dates = scenario.dates
         a, b = (int(min(max(x, 0), len(dates) - 1)) for x in outage_range)
         kwargs["rail_outage"] = (dates[min(a, b)].date(), dates[max(a, b)].date())
+    if removal_range:
+        lo, hi = sorted(float(x) for x in removal_range)
+        was = C.removal_range_value(scenario.scrubber.removal_pct, scenario.scrubber.removal_range)
+        if abs(lo - was[0]) > 1e-9 or abs(hi - was[1]) > 1e-9:
+            kwargs["removal_range"] = (lo, hi)
+    if allowance_price is not None and str(allowance_price).strip() != "":
+        kwargs["allowance_price"] = float(allowance_price)
     return kwargs
 
 
 def replan(store: PlanStore, options: PlanOptions, scenario_id, load_pct, sulfur_pct, removal,
-           outage_on, outage_range, set_progress=None):
+           outage_on, outage_range, set_progress=None, removal_range=None, allowance_price=None):
     """Apply the what-if, plan, store the run: ``(plan id, message, message class)``."""
     say = set_progress or (lambda _text: None)
     entry = store.get("scenario", scenario_id)
     if entry is None:
         return no_update, "That scenario is no longer on the server; upload it again.", "rp-msg bad"
     try:
-        kwargs = whatif_kwargs(entry.value, load_pct, sulfur_pct, removal, outage_on, outage_range)
+        kwargs = whatif_kwargs(entry.value, load_pct, sulfur_pct, removal, outage_on, outage_range,
+                               removal_range, allowance_price)
         say("Applying the what-if to the scenario…")
         changed = apply_whatif(entry.value, **kwargs)
         say(f"Sampling {options.futures} futures, solving the plan and replaying it…"
@@ -358,7 +370,8 @@ def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
 
     @app.callback(Output(C.REMOVAL, "value"), Output(C.OUTAGE_RANGE, "max"),
                   Output(C.OUTAGE_RANGE, "marks"), Output(C.OUTAGE_RANGE, "value"),
-                  Output(C.SOURCE_LABEL, "children"), Input("scenario-id", "data"),
+                  Output(C.SOURCE_LABEL, "children"), Output(C.REMOVAL_RANGE, "value"),
+                  Output(C.ALLOWANCE_PRICE, "value"), Input("scenario-id", "data"),
                   prevent_initial_call=True)
     def _controls(scenario_id):
         return scenario_controls(store, scenario_id)
@@ -373,6 +386,7 @@ def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
                   Input(C.REPLAN, "n_clicks"),
                   State("scenario-id", "data"), State(C.LOAD, "value"), State(C.SULFUR, "value"),
                   State(C.REMOVAL, "value"), State(C.OUTAGE_ON, "value"), State(C.OUTAGE_RANGE, "value"),
+                  State(C.REMOVAL_RANGE, "value"), State(C.ALLOWANCE_PRICE, "value"),
                   background=True, manager=manager, interval=250, prevent_initial_call=True,
                   progress=[Output(C.PROGRESS_TEXT, "children")],
                   running=[(Output(C.REPLAN, "disabled"), True, False),
@@ -380,11 +394,13 @@ def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
                            (Output(C.RUN_BOX, "className"), "rp-run busy", "rp-run"),
                            (Output(C.DOWNLOAD_BUTTON, "disabled"), True, False)],
                   cancel=[Input(C.CANCEL, "n_clicks")])
-    def _replan(set_progress, n_clicks, scenario_id, load, sulfur, removal, outage_on, outage_range):
+    def _replan(set_progress, n_clicks, scenario_id, load, sulfur, removal, outage_on, outage_range,
+                removal_range, allowance_price):
         if not n_clicks:
             raise PreventUpdate
         return replan(store, options, scenario_id, load, sulfur, removal, outage_on, outage_range,
-                      set_progress=lambda text: set_progress((text,)))
+                      set_progress=lambda text: set_progress((text,)),
+                      removal_range=removal_range, allowance_price=allowance_price)
 
     @app.callback(Output(C.DOWNLOAD, "data"), Output(C.DOWNLOAD_MESSAGE, "children"),
                   Output(C.DOWNLOAD_MESSAGE, "className"), Input(C.DOWNLOAD_BUTTON, "n_clicks"),

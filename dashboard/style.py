@@ -110,6 +110,8 @@ body {{ margin: 0; background: {PAGE}; color: {INK}; font-family: {FONT}; font-s
 .rp-side h3:first-child {{ margin-top: 2px; }}
 .rp-side label, .rp-field-label {{ font-size: 12.5px; color: {INK}; display: block; margin: 8px 0 2px; }}
 .rp-source {{ font-size: 12.5px; color: {MUTED}; word-break: break-word; }}
+.rp-input {{ width: 100%; box-sizing: border-box; font-size: 12.5px; padding: 4px 6px;
+  border: 1px solid #c9d2cc; border-radius: 5px; }}
 .rp-upload {{ border: 1.5px dashed #9fb0a6; border-radius: 7px; padding: 10px; text-align: center;
   font-size: 12.5px; color: {MUTED}; cursor: pointer; background: #f7f9f6; margin-top: 6px; }}
 .rp-upload:hover {{ border-color: {HEADER}; color: {INK}; }}

@@ -200,7 +200,9 @@ class DashSession:
                           {"id": C.SULFUR, "property": "value", "value": 100},
                           {"id": C.REMOVAL, "property": "value", "value": removal},
                           {"id": C.OUTAGE_ON, "property": "value", "value": []},
-                          {"id": C.OUTAGE_RANGE, "property": "value", "value": [0, 13]}]}
+                          {"id": C.OUTAGE_RANGE, "property": "value", "value": [0, 13]},
+                          {"id": C.REMOVAL_RANGE, "property": "value", "value": None},
+                          {"id": C.ALLOWANCE_PRICE, "property": "value", "value": None}]}
         t0 = time.perf_counter()
         query = {"endId": self.end_id} if self.end_id else {}
         status, raw, _ = self._request("POST", "/_dash-update-component?" + urlencode(query), body)

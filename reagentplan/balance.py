@@ -366,6 +366,7 @@ def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
         "limestone_caco3_pct": 100 * p.caco3 + zero,
         "caco3_need_t": (lime_scrub + lime_inj + lime_hcl) * p.caco3,
         "gypsum_inerts_t": gyp_parts[3],
+        "removal_pct": 100 * p.removal + zero,
     }
     shape = np.broadcast_shapes(*(np.shape(v) for v in out.values()))
     return {k: np.broadcast_to(v, shape) for k, v in zip(out, b(*out.values()))}
@@ -442,22 +443,83 @@ BALANCE_COLUMNS = (
     "fly_ash_loi_pct", "fly_ash_so3_pct", "so2_lb_per_mmbtu", "so2_kg_per_mwh",
     "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj", "so2_over_limit",
     "limestone_caco3_pct", "caco3_need_t", "gypsum_inerts_t",
+    "removal_pct",
 )
 
 
-def balance_frame(scenario: Scenario, caco3_pct=None) -> pd.DataFrame:
+def _per_day(values, scenario: Scenario, name: str) -> np.ndarray:
+    """One value per horizon day as a (1, days) array [its unit]."""
+    x = np.asarray(values, dtype=float)
+    if x.shape != (scenario.plant.horizon_days,):
+        raise ValueError(f"{name} needs one value per horizon day ({scenario.plant.horizon_days}), "
+                         f"got shape {x.shape}")
+    return x[None, :]
+
+
+def balance_frame(scenario: Scenario, caco3_pct=None, removal_pct=None) -> pd.DataFrame:
     """The deterministic daily balance of a scenario, one row per planned day.
 
     Columns as `BALANCE_COLUMNS`; ``so2_over_limit`` is true where the rolling average
     [kg/GJ] is above the permit limit.  ``caco3_pct`` [%], one value per day, is the CaCO3
     of the stone fed (the silo's mix under a plan); without it the scrubber sheet's
-    ``limestone_caco3_pct`` (with its period settings) holds.
+    ``limestone_caco3_pct`` (with its period settings) holds.  ``removal_pct`` [%], one
+    value per day, is the SO2 removal of the scrubber (for ``boiler = cfb`` the in-bed
+    capture) chosen for that day; without it the scrubber sheet's ``removal_pct`` (its
+    setpoint, with period settings) holds.  The column ``removal_pct`` is the removal
+    used each day.
     """
     params = BalanceParams.from_scenario(scenario)
     if caco3_pct is not None:
-        params = replace(params, caco3=np.asarray(caco3_pct, dtype=float)[None, :] / 100)
+        params = replace(params, caco3=_per_day(caco3_pct, scenario, "caco3_pct") / 100)
+    if removal_pct is not None:
+        # x 0.01 as `BalanceParams.from_scenario` scales, so the setpoint given back as an
+        # array gives the same balance to the last bit
+        params = replace(params, removal=_per_day(removal_pct, scenario, "removal_pct") * 0.01)
     res = mass_balance(scenario_drivers(scenario), params)
     frame = pd.DataFrame({k: v[0] for k, v in res.items()})
     frame.insert(0, "date", scenario.dates)
     frame["so2_over_limit"] = frame["so2_rolling_kg_per_gj"] > frame["so2_limit_kg_per_gj"]
     return frame[list(BALANCE_COLUMNS)]
+
+
+#: Balance quantities that move with the removal, each an affine function of it on a day
+#: (purity, a ratio, is not; nor is the rolling average across days of different removal).
+RESPONSE_COLUMNS = ("limestone_t", "caco3_need_t", "gypsum_wet_t", "gypsum_dry_t",
+                    "so2_emitted_t", "so2_removed_t", "fly_ash_t", "bottom_ash_t")
+
+
+def removal_response(scenario: Scenario) -> pd.DataFrame:
+    """How the day's balance moves with the scrubber's removal, as affine functions of it.
+
+    For each day and each quantity q of `RESPONSE_COLUMNS`:
+    q(r) = ``q`` + ``q_per_pct`` × (r − ``removal_pct``), r the removal [%].  ``q`` is the
+    balance at the setpoint (the scrubber sheet's ``removal_pct`` with its period
+    settings, as `balance_frame`), ``q_per_pct`` the slope [t per percentage point].
+
+    Exact, not a finite-difference estimate: with everything else fixed the balance is
+    affine in the removal (SO2 removed is the SO2 reaching the scrubber times the
+    removal; the limestone, its CaCO3 and the cake's solids are linear in the SO2
+    removed plus terms that do not depend on it), so two evaluations, at the setpoint and
+    50 points away from it, give the line.  ``fly_ash_t`` and ``bottom_ash_t`` move only
+    for ``boiler = cfb`` (the spent bed sorbent leaves with the ash); for ``pc`` their
+    slope is 0.
+
+    The slopes are at the scrubber sheet's stone (``limestone_caco3_pct``, with period
+    settings): stone tonnes scale with 1 / CaCO3, so a caller with another stone scales
+    ``limestone_t`` and its slope (``caco3_need_t`` is independent of the stone).
+
+    Returns
+    -------
+    DataFrame with ``date``, ``removal_pct`` [%] and, for each quantity, ``q`` [t] and
+    ``q_per_pct`` [t / %-point], one row per horizon day.
+    """
+    base = balance_frame(scenario)
+    setpoint = base["removal_pct"].to_numpy(dtype=float)
+    other = np.where(setpoint >= 50.0, setpoint - 50.0, setpoint + 50.0)  # inside 0-100
+    moved = balance_frame(scenario, removal_pct=other)
+    out = pd.DataFrame({"date": base["date"], "removal_pct": setpoint})
+    for q in RESPONSE_COLUMNS:
+        at = base[q].to_numpy(dtype=float)
+        out[q] = at
+        out[f"{q}_per_pct"] = (at - moved[q].to_numpy(dtype=float)) / (setpoint - other)
+    return out

@@ -74,6 +74,19 @@ class Scrubber:
     injection_ca_s_ratio: float
     prescrubber_hcl_removal_pct: float
     gypsum_chloride_ppm: float
+    #: The range within which the plan may choose the removal day by day [%]; both
+    #: ``None`` = ``removal_pct`` fixed.  With a range, ``removal_pct`` is the setpoint the
+    #: reorder-point baseline and ``reagentplan balance`` use: as written, or, when not
+    #: written, the default 97 % clipped into the range.
+    removal_min_pct: float | None = None
+    removal_max_pct: float | None = None
+
+    @property
+    def removal_range(self) -> tuple[float, float] | None:
+        """``(removal_min_pct, removal_max_pct)`` [%], or ``None`` when the removal is fixed."""
+        if self.removal_min_pct is None or self.removal_max_pct is None:
+            return None
+        return (float(self.removal_min_pct), float(self.removal_max_pct))
 
 
 @dataclass(frozen=True)
@@ -228,6 +241,11 @@ class Scenario:
     #: start are assumed to have used each contract at its even pace.
     month_to_date: dict[str, float] | None = None
     train_sets: tuple[TrainSet, ...] = ()
+    #: SO2 emission allowances (optional ``allowances`` sheet), one row per dated change,
+    #: sorted by date: ``date``, ``holding_t`` (first row only, NaN after), ``allocated_t``
+    #: (0 where none), ``buy_price_per_t``, ``sell_price_per_t``, ``max_trade_t_per_month``
+    #: (NaN = no limit) [t SO2, money/t SO2].  ``None`` = no allowance market.
+    allowances: pd.DataFrame | None = None
 
     def stone_caco3_pct(self, lane: SupplierLane) -> float:
         """CaCO3 of a supplier row's stone [%]: its own value, else the scrubber sheet's."""
@@ -256,6 +274,41 @@ class Scenario:
                     mask = (self.dates >= r.first_date) & (self.dates <= r.last_date)
                     values[mask] = r.value
         return values
+
+    @property
+    def allowance_opening_t(self) -> float | None:
+        """Allowances held at the start of the first planned day [t SO2]: the first row's
+        holding plus every ``allocated_t`` dated before the start; ``None`` without an
+        ``allowances`` sheet."""
+        if self.allowances is None:
+            return None
+        a = self.allowances
+        before = a["date"] < pd.Timestamp(self.plant.start_date)
+        return float(a["holding_t"].iloc[0]) + float(a.loc[before, "allocated_t"].sum())
+
+    def allowance_days(self) -> pd.DataFrame | None:
+        """The allowance terms per horizon day, or ``None`` without an ``allowances`` sheet.
+
+        Index: the horizon's dates (``date``).  Columns: ``allocated_t`` [t SO2] added on
+        that day (0 on days without an allocation; the opening holding,
+        `allowance_opening_t`, is not in it), ``buy_price_per_t`` and ``sell_price_per_t``
+        [money/t SO2] and ``max_trade_t_per_month`` [t SO2/month, NaN = no limit] of the
+        row in force that day (each row's terms hold from its date until the next row).
+        """
+        if self.allowances is None:
+            return None
+        a = self.allowances
+        dates = self.dates
+        row = np.searchsorted(a["date"].to_numpy(dtype="datetime64[ns]"),
+                              dates.to_numpy(dtype="datetime64[ns]"), side="right") - 1
+        # the loader makes the first row's date at most the start date, so row >= 0
+        terms = a[["buy_price_per_t", "sell_price_per_t", "max_trade_t_per_month"]].to_numpy(float)[row]
+        allocated = a.groupby("date")["allocated_t"].sum().reindex(dates, fill_value=0.0)
+        out = pd.DataFrame({"allocated_t": allocated.to_numpy(float),
+                            "buy_price_per_t": terms[:, 0], "sell_price_per_t": terms[:, 1],
+                            "max_trade_t_per_month": terms[:, 2]}, index=dates)
+        out.index.name = "date"
+        return out
 
     def lane_open(self, lane: "SupplierLane | BuyerLane | DisposalSite") -> np.ndarray:
         """Days [bool per horizon day] on which a lane can move material: its weekdays
@@ -606,9 +659,13 @@ def _show(v: Any) -> str:
 
 
 def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector,
-                   boiler: str | None = None) -> dict[str, Any]:
+                   boiler: str | None = None,
+                   written_rows: dict[str, int] | None = None) -> dict[str, Any]:
     """Parse a key/value sheet.  Usual ranges are checked once every key is read, with
-    the sheet's own ``boiler`` if it has one (``plant``), else the one given."""
+    the sheet's own ``boiler`` if it has one (``plant``), else the one given.
+
+    ``written_rows``, when given, is filled with the Excel row of each key whose value
+    was written (and parsed), by canonical name: a default is not written."""
     header = raw.header
     if "key" not in header or "value" not in header:
         out.add(sheet.name, 1, "key" if "key" not in header else "value", "the column is missing",
@@ -655,6 +712,8 @@ def _read_keyvalue(raw: RawSheet, sheet: Sheet, out: _Collector,
         try:
             values[canonical] = _parse_cell(f, _parse_number(value) * factor if factor != 1.0 else value)
             parsed.append((f, excel_row, key))
+            if written_rows is not None:
+                written_rows[canonical] = excel_row
         except _CellError as e:
             bad.add(canonical)
             out.add(sheet.name, excel_row, f"value ({key})", e.found, e.expected or f.expected())
@@ -740,11 +799,13 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
             return []
         return _read_table(by_name[sheet.name], sheet, out, boiler)
 
-    scrub_kv = _read_keyvalue(by_name["scrubber"], schema.SCRUBBER, out, boiler)
+    scrub_rows: dict[str, int] = {}
+    scrub_kv = _read_keyvalue(by_name["scrubber"], schema.SCRUBBER, out, boiler, scrub_rows)
     recs = {s.name: table(s) for s in schema.SHEETS if not s.keyvalue}
     has_gen_history = "generation_history" in by_name
     has_quality_history = "coal_quality_history" in by_name
     out.fail()
+    _check_removal_range(scrub_kv, scrub_rows, out)
 
     plant = _make(Plant, plant_kv)
     if plant.fly_ash_share_pct is None:
@@ -794,12 +855,110 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     firm = _check_firm(recs["firm_orders"], plant, suppliers, buyers, disposal, out)
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
+    _check_period_removal(recs["period_settings"], scrubber, out)
     train_sets = _check_train_sets(recs["train_sets"], recs["suppliers"], out)
     _warn_stone_settings_unused(recs["period_settings"], suppliers, out)
+    allowances = _check_allowances(recs["allowances"], plant, out)
     out.fail()
     return Scenario(plant, scrubber, units, generation, sources, blend, stores, suppliers, buyers,
                     disposal, firm, history, quality, source_name, closures, periods,
-                    warnings=tuple(out.warnings), train_sets=train_sets)
+                    warnings=tuple(out.warnings), train_sets=train_sets, allowances=allowances)
+
+
+def _check_removal_range(kv: dict[str, Any], rows: dict[str, int], out: _Collector) -> None:
+    """``removal_min_pct`` and ``removal_max_pct`` together, min <= max, and a written
+    ``removal_pct`` inside them.  With a range and no written ``removal_pct``, the
+    setpoint becomes the default clipped into the range (``kv`` is changed in place).
+    Each bound's hard range (that of ``removal_pct``) is checked with its cell."""
+    lo, hi = kv.get("removal_min_pct"), kv.get("removal_max_pct")
+    if lo is None and hi is None:
+        return
+    if lo is None or hi is None:
+        given, missing = ("removal_min_pct", "removal_max_pct") if hi is None else (
+            "removal_max_pct", "removal_min_pct")
+        out.add("scrubber", rows.get(given), f"value ({given})",
+                f"{given} = {kv[given]:g} without {missing}",
+                f"both removal_min_pct and removal_max_pct (the range the plan may choose "
+                f"the removal in), or neither (removal_pct fixed)")
+        return
+    if lo > hi:
+        out.add("scrubber", rows.get("removal_min_pct"), "value (removal_min_pct)",
+                f"removal_min_pct = {lo:g} is above removal_max_pct = {hi:g}",
+                "a lowest removal no higher than the highest (equal plans a fixed removal)")
+        return
+    if "removal_pct" in rows:
+        x = kv["removal_pct"]
+        if not lo <= x <= hi:
+            out.add("scrubber", rows["removal_pct"], "value (removal_pct)",
+                    f"removal_pct = {x:g} is outside the removal range {lo:g} to {hi:g} %",
+                    f"a removal_pct from {lo:g} to {hi:g} (the setpoint of the hand baseline "
+                    f"and of 'reagentplan balance'), or the cell left empty to use "
+                    f"{min(max(schema.SCRUBBER.field('removal_pct').default, lo), hi):g}")
+    else:
+        default = schema.SCRUBBER.field("removal_pct").default
+        kv["removal_pct"] = float(min(max(default, lo), hi))
+
+
+def _check_period_removal(records, scrubber: Scrubber, out: _Collector) -> None:
+    """A ``period_settings`` row for ``removal_pct`` outside the scrubber's removal range:
+    a warning (it fixes the setpoint on its days; the range still bounds the plan)."""
+    rng = scrubber.removal_range
+    if rng is None:
+        return
+    lo, hi = rng
+    for r in records:
+        if r["key"] != "removal_pct":
+            continue
+        try:
+            x = _parse_number(r["value"])
+        except _CellError:
+            continue  # reported by _check_periods
+        if not lo <= x <= hi:
+            out.warnings.append(InputWarning(
+                "period_settings", r["_row"], "value", f"{x:g} % for removal_pct",
+                f"{lo:g} to {hi:g} % (the scrubber sheet's removal range)",
+                "the scrubber sheet: the setpoint of these days is outside the range the "
+                "plan chooses the removal in, which still applies on them",
+                "narrow or widen removal_min_pct / removal_max_pct, or change this value"))
+
+
+def _check_allowances(records, plant: Plant, out: _Collector) -> pd.DataFrame | None:
+    """The ``allowances`` sheet: the first row on or before the start date with the
+    holding, later rows without one, and a sell price at most the buy price.  A sheet
+    with no rows (the template's, left as it came) is no allowance market: ``None``."""
+    cols = ["date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t",
+            "max_trade_t_per_month"]
+    if not records:
+        return None  # the template's sheet left as it came: no allowance market
+    first = records[0]
+    if first["date"] > plant.start_date:
+        out.add("allowances", first["_row"], "date",
+                f"the first row is dated {first['date']:%Y-%m-%d}, after the start date "
+                f"{plant.start_date:%Y-%m-%d}",
+                "a first row dated on or before the start date (the holding and prices in "
+                "force on the first planned day)")
+    if first["holding_t"] is None:
+        out.add("allowances", first["_row"], "holding_t", "the cell is empty",
+                "the allowances held on the first row's date [t SO2] (0 if none) on the "
+                "first row")
+    for r in records[1:]:
+        if r["holding_t"] is not None:
+            out.add("allowances", r["_row"], "holding_t",
+                    f"a holding of {r['holding_t']:g} t on a later row (the first row is "
+                    f"row {first['_row']})",
+                    "the holding on the first row only; later additions go in allocated_t")
+    for r in records:
+        if r["sell_price_per_t"] > r["buy_price_per_t"]:
+            out.add("allowances", r["_row"], "sell_price_per_t",
+                    f"a sell price of {r['sell_price_per_t']:g} above the buy price "
+                    f"{r['buy_price_per_t']:g}",
+                    "a sell price at most the buy price (per tonne of SO2)")
+    frame = pd.DataFrame([{c: r[c] for c in cols} for r in records], columns=cols)
+    frame["date"] = pd.to_datetime(frame["date"])
+    frame["allocated_t"] = frame["allocated_t"].fillna(0.0)
+    for c in cols[1:]:
+        frame[c] = frame[c].astype(float)
+    return frame.sort_values("date", kind="stable").reset_index(drop=True)
 
 
 def _check_train_sets(records, suppliers, out: _Collector) -> tuple[TrainSet, ...]:

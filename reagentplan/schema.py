@@ -288,6 +288,12 @@ SCRUBBER = Sheet(
         pct("prescrubber_hcl_removal_pct", "HCl removed before the scrubber", 0.0),
         Field("gypsum_chloride_ppm", "number", False, 50.0, 0, 1e6, unit="ppm",
               note="chloride in the washed cake, as measured"),
+        Field("removal_min_pct", "number", False, None, 0, 100, unit="%",
+              note="lowest SO2 removal the plan may choose on a day (with removal_max_pct; "
+                   "empty = removal_pct fixed)", range_key="removal_pct"),
+        Field("removal_max_pct", "number", False, None, 0, 100, unit="%",
+              note="highest SO2 removal the plan may choose on a day (with removal_min_pct; "
+                   "empty = removal_pct fixed)", range_key="removal_pct"),
     ),
 )
 
@@ -538,9 +544,35 @@ PERIOD_SETTINGS = Sheet(
     note="planned changes for a span of days: oxidation blower outage, burner tuning, ...",
 )
 
+ALLOWANCES = Sheet(
+    "allowances",
+    required=False,
+    key=("date",),
+    sort_by=("date",),
+    fields=(
+        Field("date", "date", note="the row's terms hold from this date until the next row's; "
+              "the first row on or before the start date", example="2030-01-01"),
+        Field("holding_t", "number", False, None, 0, None, unit="t SO2",
+              note="allowances held on the first row's date, in tonnes of SO2 (first row only; "
+                   "empty on later rows)", example=5000),
+        Field("allocated_t", "number", False, None, 0, None, unit="t SO2",
+              note="allowances added to the holding on this date (a new year's allocation); "
+                   "empty = none", example=0),
+        Field("buy_price_per_t", "number", True, None, 0, None, unit="money/t SO2",
+              note="price to buy one tonne of SO2 allowance", example=400),
+        Field("sell_price_per_t", "number", True, None, 0, None, unit="money/t SO2",
+              note="price got for selling one tonne of SO2 allowance (at most the buy price)",
+              example=380),
+        Field("max_trade_t_per_month", "number", False, None, 0, None, unit="t SO2/month",
+              note="most that can be bought, and separately most that can be sold, in a "
+                   "calendar month; empty = no limit", example=2000),
+    ),
+    note="SO2 emission allowances (cap and trade): the holding, allocations, trading prices",
+)
+
 SHEETS: tuple[Sheet, ...] = (
     PLANT, SCRUBBER, UNITS, GENERATION, COAL_SOURCES, COAL_BLEND, STORAGE, SUPPLIERS, BUYERS,
     DISPOSAL, FIRM_ORDERS, LANE_CLOSURES, PERIOD_SETTINGS, GENERATION_HISTORY,
-    COAL_QUALITY_HISTORY, TRAIN_SETS,
+    COAL_QUALITY_HISTORY, TRAIN_SETS, ALLOWANCES,
 )
 SHEETS_BY_NAME: dict[str, Sheet] = {s.name: s for s in SHEETS}

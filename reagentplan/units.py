@@ -87,6 +87,12 @@ VARIANTS: dict[str, Variant] = {
         _price("cost_per_t", "cost_per_st"),
         _price("shortage_penalty_per_t", "shortage_penalty_per_st"),
         _price("overflow_penalty_per_t", "overflow_penalty_per_st"),
+        # SO2 emission allowances: tonnes (short tons) of SO2 and money per tonne of SO2
+        _mass("holding_t", "holding_st"),
+        _mass("allocated_t", "allocated_st"),
+        _mass("max_trade_t_per_month", "max_trade_st_per_month"),
+        _price("buy_price_per_t", "buy_price_per_st"),
+        _price("sell_price_per_t", "sell_price_per_st"),
     ]
 }
 

@@ -15,6 +15,8 @@ SOURCE_LABEL = "source-label"
 LOAD = "load-factor"
 SULFUR = "sulfur-scale"
 REMOVAL = "removal"
+REMOVAL_RANGE = "removal-range"
+ALLOWANCE_PRICE = "allowance-price"
 OUTAGE_ON = "outage-on"
 OUTAGE_RANGE = "outage-range"
 OUTAGE_DATES = "outage-dates"
@@ -46,7 +48,19 @@ def outage_settings(dates: pd.DatetimeIndex) -> dict:
     return {"min": 0, "max": max(n - 1, 0), "marks": outage_marks(dates), "value": [first, last]}
 
 
-def layout(removal_pct: float, dates: pd.DatetimeIndex, source_label: str):
+#: Ends of the removal sliders [%].
+REMOVAL_MIN, REMOVAL_MAX = 80, 99.9
+
+
+def removal_range_value(removal_pct: float, removal_range=None) -> list[float]:
+    """The removal-range slider's value: the scenario's range, else its fixed removal at
+    both ends (a range of one value plans as that fixed removal)."""
+    lo, hi = removal_range if removal_range is not None else (removal_pct, removal_pct)
+    clip = lambda x: round(min(max(float(x), REMOVAL_MIN), REMOVAL_MAX), 1)  # noqa: E731
+    return [clip(lo), clip(hi)]
+
+
+def layout(removal_pct: float, dates: pd.DatetimeIndex, source_label: str, removal_range=None):
     outage = outage_settings(dates)
     return html.Aside(className="rp-side", children=[
         html.H3("Scenario"),
@@ -67,9 +81,19 @@ def layout(removal_pct: float, dates: pd.DatetimeIndex, source_label: str):
                    marks={50: "50", 100: "100", 150: "150", 200: "200"},
                    tooltip={"placement": "bottom", "always_visible": False}),
         html.Label("Scrubber SO2 removal [%]", htmlFor=REMOVAL),
-        dcc.Slider(id=REMOVAL, min=80, max=99.9, step=0.1, value=round(float(removal_pct), 1),
+        dcc.Slider(id=REMOVAL, min=REMOVAL_MIN, max=REMOVAL_MAX, step=0.1,
+                   value=round(float(removal_pct), 1),
                    marks={80: "80", 90: "90", 95: "95", 99.9: "99.9"},
                    tooltip={"placement": "bottom", "always_visible": False}),
+        html.Label("SO2 removal the plan may choose, lowest to highest [%]", htmlFor=REMOVAL_RANGE),
+        dcc.RangeSlider(id=REMOVAL_RANGE, min=REMOVAL_MIN, max=REMOVAL_MAX, step=0.1,
+                        allowCross=False, value=removal_range_value(removal_pct, removal_range),
+                        marks={80: "80", 90: "90", 95: "95", 99.9: "99.9"},
+                        tooltip={"placement": "bottom", "always_visible": False}),
+        html.Label("SO2 allowance price, buy and sell [per t of SO2; empty = the workbook's]",
+                   htmlFor=ALLOWANCE_PRICE),
+        dcc.Input(id=ALLOWANCE_PRICE, type="number", min=0, step="any", value=None,
+                  debounce=True, placeholder="the workbook's", className="rp-input"),
         html.Span("Rail outage", className="rp-field-label"),
         dcc.Checklist(id=OUTAGE_ON, options=[{"label": " close every rail supplier on these days",
                                               "value": "on"}], value=[],
