@@ -230,6 +230,50 @@ def allowance_frame(scenario: Scenario, terms: AllowanceTerms, emitted_t, bought
     return agg.reset_index().round(2)
 
 
-__all__ = ["RemovalLever", "AllowanceTerms", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR",
+def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLever | None) -> list[dict]:
+    """Each run of days the plan runs the scrubber below its setpoint, with the lowest
+    removal [%] and the cause in words: where the plan's own deliveries, at the setpoint,
+    would take the limestone below safety stock within the run or the three days after
+    it, the dip rides out low limestone (a late or missing train); otherwise running
+    lower is simply cheaper than the stone (and allowances) it saves, inside the permit.
+
+    ``balance_of`` gives the balance of a plan (its silo's stone and its removal)."""
+    from dataclasses import replace as dc_replace
+
+    from .evaluate import store_levels
+    from .permit import runs
+
+    if plan.removal is None or lever is None:
+        return []
+    setpoint = removal_setpoint(scenario)
+    low = plan.removal < setpoint - 0.01
+    if not low.any():
+        return []
+    at_setpoint = dc_replace(plan, removal=None)
+    levels, unmet = store_levels(scenario, balance_of(at_setpoint), lanes, at_setpoint)
+    lime = levels["limestone"]
+    safety = scenario.storage["limestone"].safety_t
+    dates = scenario.dates
+    out = []
+    for a, b in runs(low):
+        end = min(b + 3, len(lime) - 1)
+        worst = int(a + np.argmin(lime[a:end + 1]))
+        short = lime[worst] < safety - 1e-6 or unmet[a:end + 1].sum() > 1e-6
+        if short:
+            cause = (f"low limestone: with these deliveries the silo would fall to {lime[worst]:,.0f} t "
+                     f"on {dates[worst]:%Y-%m-%d} at the {setpoint[a]:g} % setpoint (safety stock "
+                     f"{safety:,.0f} t); the lower removal rides it out inside the permit, cheaper "
+                     "than extra trucks or an earlier train")
+        else:
+            cause = ("cheaper: the stone (and allowances) saved by running lower cost more than the "
+                     "SO2 it lets through, inside the permit")
+        out.append({"first_date": f"{dates[a]:%Y-%m-%d}", "last_date": f"{dates[b]:%Y-%m-%d}",
+                    "lowest_pct": round(float(plan.removal[a:b + 1].min()), 3),
+                    "setpoint_pct": round(float(setpoint[a]), 3), "cause": cause,
+                    "kind": "low limestone" if short else "cheaper"})
+    return out
+
+
+__all__ = ["removal_dips", "RemovalLever", "AllowanceTerms", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR",
            "removal_setpoint", "permit_excess_t", "allowance_holding_t", "allowance_costs",
            "baseline_trades", "allowance_frame"]

@@ -18,6 +18,8 @@ from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_da
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import SolveOutcome, solve_plan
 from .permit import permit_breaches
+from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
+                    removal_setpoint)
 from .quality import SiloChemistry
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
@@ -70,6 +72,7 @@ class PlanResult:
     firm_days: int
     baseline_balance: pd.DataFrame | None = None
     iterations: list[dict] | None = None
+    removal_dips: list[dict] | None = None
 
     @property
     def movements(self) -> pd.DataFrame:
@@ -100,7 +103,32 @@ class PlanResult:
             "baseline_shortfalls": self.baseline_evaluation.shortfalls,
             "saving_by_cause": saving_by_cause(self.evaluation, self.baseline_evaluation),
             "caution": CAUTION,
+            **self._lever_summary(),
         }
+
+    def _lever_summary(self) -> dict:
+        """``removal`` (where the plan chooses it) and ``allowances`` (where the station
+        holds them) for `summary.json`."""
+        out = {}
+        scn = self.scenario
+        if self.plan.removal is not None:
+            r = self.plan.removal
+            setpoint = removal_setpoint(scn)
+            lo, hi = scn.scrubber.removal_range
+            out["removal"] = {"min_pct": lo, "max_pct": hi, "setpoint_pct": round(float(np.mean(setpoint)), 3),
+                              "mean_pct": round(float(np.mean(r)), 3), "lowest_pct": round(float(r.min()), 3),
+                              "highest_pct": round(float(r.max()), 3),
+                              "days_below_setpoint": int((r < setpoint - 0.01).sum()),
+                              "days_above_setpoint": int((r > setpoint + 0.01).sum()),
+                              "dips": self.removal_dips or []}
+        terms = AllowanceTerms.from_scenario(scn)
+        if terms is not None:
+            n = len(scn.dates)
+            frame = allowance_frame(scn, terms, self.balance["so2_emitted_t"].to_numpy(float),
+                                    np.zeros(n) if self.plan.bought_t is None else self.plan.bought_t,
+                                    np.zeros(n) if self.plan.sold_t is None else self.plan.sold_t)
+            out["allowances"] = {"opening_t": terms.opening_t, "months": frame.to_dict("records")}
+        return out
 
 
 def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
@@ -136,13 +164,29 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     firm = firm_loads(scenario, lanes)
     guard = guard_margins(balance, flows, risk_level)
     chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
+    lever = RemovalLever.from_scenario(scenario)
+    allow = AllowanceTerms.from_scenario(scenario)
+    if chem is not None:
+        chem.lever = lever
+
+    def bal_of(p: DailyPlan) -> pd.DataFrame:
+        """The balance a plan makes: at its silo's stone and its removal."""
+        if chem is not None:
+            return chem.plan_balance(scenario, lanes, p)
+        if p.removal is not None:
+            return balance_frame(scenario, removal_pct=p.removal)
+        return balance
+
     solver_note = ""
     if chem is not None and solver == "cp-sat":
         # CP-SAT takes integer models only (MathOpt scales continuous ones); the silo's
         # tonnes of CaCO3 and inerts do not scale, so the mixed-integer solver plans them
         solver, solver_note = "scip", " (cp-sat cannot take the silo's mix; solved with scip)"
     base = baseline_plan(scenario, balance, lanes, firm, chem=chem)
-    base_bal = balance if chem is None else chem.plan_balance(scenario, lanes, base)
+    base_bal = bal_of(base)
+    if allow is not None:
+        base.bought_t, base.sold_t = baseline_trades(allow, base_bal["so2_emitted_t"].to_numpy(float),
+                                                     horizon_months(scenario.dates)[0])
     base_ev = evaluate(scenario, base_bal, lanes, base)
     # the money the plan moves (every cost line of the baseline, in absolute value): the
     # scale of the absolute gap a solve may stop at, so a plan whose costs and revenues
@@ -152,8 +196,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                          time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
                          gap=gap, hint=base, progress=progress, chem=chem,
-                         scale=gross, to_days=chem is None)
-    plan_bal = balance if chem is None else chem.plan_balance(scenario, lanes, outcome.plan)
+                         scale=gross, to_days=chem is None, lever=lever, allow=allow)
+    plan_bal = bal_of(outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
     iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
                    "solve_seconds": round(outcome.solve_seconds, 3), "max_caco3_change_pct": None}]
@@ -167,7 +211,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                 break
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                              time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
-                             around=last, scale=gross, to_days=False)
+                             around=last, scale=gross, to_days=False, lever=lever, allow=allow)
             bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
@@ -181,17 +225,21 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             if change < SILO_TOLERANCE_PCT:
                 break
         _, outcome, plan_bal, ev = best
-        # the stone chosen, the byproducts planned again against the gypsum that stone
-        # makes (exact: its silo is now known), so no shipment rests on the linearisation
+    if chem is not None or lever is not None:
+        # the stone and the removal chosen, the byproducts planned again against the
+        # gypsum they make (exact: the silo and the removal are now known), so no shipment
+        # rests on the linearisation
         lanes_x = build_lanes(scenario, plan_bal, exact_quality=True)
         fixed = {l.name: outcome.plan.quantity[l.name] for l in lanes if l.kind == SUPPLY}
         left = max((1 - WALL_RESERVE) * time_limit - (time.perf_counter() - t0) - 1.0, 3.0)
         try:
             pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
                              solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
-                             scale=gross, fixed=fixed)
+                             scale=gross, fixed=fixed, allow=allow)
+            pol.plan.removal = outcome.plan.removal
             ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
-            iterations.append({"iteration": "byproducts at the chosen stone",
+            iterations.append({"iteration": "byproducts at the chosen stone" if chem is not None
+                               else "byproducts at the chosen removal",
                                "total_cost": round(ev_p.total_cost, 2), "gap": pol.gap,
                                "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": 0.0})
             if ev_p.total_cost <= ev.total_cost + 1e-6:
@@ -209,9 +257,11 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         outcome.status += " (baseline kept: the replayed plan priced dearer)"
     removal = scenario.scrubber.removal_pct
     base_ev.breaches = explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal)
-    breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(plan_bal, removal)
+    breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
+        plan_bal, removal if chosen.removal is None else None)
+    dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever)
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days, base_bal, iterations)
+                      firm_days, base_bal, iterations, dips)
 
 
 #: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock

@@ -76,6 +76,15 @@ class SiloChemistry:
     initial_caco3: float
     u_lo: float
     u_hi: float
+    #: the removal lever (`lever.RemovalLever`) when the plan chooses the removal: the
+    #: CaCO3 need then follows each plan's removal
+    lever: object = None
+
+    def need_of(self, plan) -> np.ndarray:
+        """CaCO3 needed per day [t] under a plan: at its removal where it chose one."""
+        if self.lever is None or getattr(plan, "removal", None) is None:
+            return self.need
+        return self.lever.at("caco3_need_t", plan.removal)
 
     @classmethod
     def from_balance(cls, scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane]) -> "SiloChemistry":
@@ -111,13 +120,14 @@ class SiloChemistry:
             comp[:, 0] += t * self.lane_caco3[lane.name]
             comp[:, 1] += t * self.lane_mgco3[lane.name]
         init_mg = 0.0
-        return silo_replay(self.initial_t, [self.initial_caco3, init_mg], arr, comp, self.need)
+        return silo_replay(self.initial_t, [self.initial_caco3, init_mg], arr, comp, self.need_of(plan))
 
     def plan_balance(self, scenario: Scenario, lanes: list[Lane], plan) -> pd.DataFrame:
         """The daily balance at the stone the plan puts in the silo, with the silo's
         CaCO3 [%] (``limestone_caco3_pct``) and MgCO3 [%] (``limestone_mgco3_pct``)."""
         r = self.replay(lanes, plan)
-        frame = balance_frame(scenario, caco3_pct=100 * r["frac"][:, 0])
+        frame = balance_frame(scenario, caco3_pct=100 * r["frac"][:, 0],
+                              removal_pct=getattr(plan, "removal", None))
         frame["limestone_mgco3_pct"] = 100 * r["frac"][:, 1]
         return frame
 

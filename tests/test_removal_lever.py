@@ -1,0 +1,96 @@
+"""The scrubber's removal as a decision of the plan: the permit's rolling average, SO2
+allowances, and a late train ridden out by a planned dip in removal."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import numpy as np
+import pandas as pd
+import pytest
+from molmass import Formula
+
+from helpers import START, minimal_sheets, workbook_bytes
+from reagentplan.balance import balance_frame, trailing_sum
+from reagentplan.scenario import load_scenario
+from reagentplan.schedule import make_plan
+
+
+def M(formula: str) -> float:
+    """Molar mass [g/mol] from IUPAC standard atomic weights, through `molmass`."""
+    return Formula(formula).mass
+
+
+def set_kv(sheets, sheet, key, value):
+    for row in sheets[sheet][1:]:
+        if row[0] == key:
+            row[1] = value
+            return
+    sheets[sheet].append([key, value] + [None] * (len(sheets[sheet][0]) - 2))
+
+
+def one_day_station(days=7, so2_t=100.0, allowed_t=3.0, price_per_t=28.0, allowance=None,
+                    removal=(95, 99), setpoint=98):
+    """A station whose scrubber sees ``so2_t`` of SO2 a day (2 % S coal, 95 % of it to SO2,
+    IUPAC molar masses), a permit of ``allowed_t`` a day (averaged over one day), stone of
+    94 % CaCO3 whose delivered cost is ``price_per_t`` + 2 (freight 2,000 per 1,000 t
+    train), gypsum landfilled at no cost, plenty of stone in the silo."""
+    s = minimal_sheets(days=days)
+    so2_per_t_coal = 0.02 * 0.95 * M("SO2") / M("S")
+    coal = so2_t / so2_per_t_coal
+    heat = coal * 25.0  # GJ at 25 MJ/kg
+    mwh = heat / 10.0
+    s["units"][1][1] = 400  # MW
+    s["generation"] = [s["generation"][0]] + [[START + dt.timedelta(days=i), "U1", mwh] for i in range(days)]
+    set_kv(s, "plant", "so2_limit_kg_per_gj", allowed_t * 1000 / heat)
+    set_kv(s, "plant", "so2_limit_avg_days", 1)
+    set_kv(s, "scrubber", "removal_pct", setpoint)
+    if removal is not None:
+        set_kv(s, "scrubber", "removal_min_pct", removal[0])
+        set_kv(s, "scrubber", "removal_max_pct", removal[1])
+    s["storage"][1] = ["limestone", 100000, 500, 50000]
+    s["storage"][2] = ["gypsum", 100000, 0, 0]
+    s["suppliers"][1][6] = price_per_t
+    del s["buyers"][1]  # no gypsum buyer: the gypsum's worth is nothing either way
+    s["disposal"][1] = ["Cell 1", "gypsum", 0, 100000, 1e7]
+    if allowance is not None:
+        s["allowances"] = [["date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t",
+                            "max_trade_t_per_month"],
+                           [START, 1000, None, allowance, allowance, None]]
+    return s
+
+
+def test_worked_example_cheapest_removal():
+    """A day with 100 t of SO2 reaching the scrubber, a permit that allows 3 t emitted, a
+    removal range of 95-99 %:
+
+    - the permit needs 100 × (1 − r) ≤ 3, so r ≥ 97 %;
+    - each point of removal takes 1 t more SO2 out, which needs 1.03 × 100.086 / 64.064
+      = 1.6092 t CaCO3 (IUPAC molar masses, via molmass), i.e. 1.6092 / 0.94 = 1.7119 t of
+      94 % stone at 30 per t delivered: 51.36 per point;
+    - each point saves one allowance (1 t SO2).  At 40 per allowance a point costs more
+      than it saves: the plan runs at the permit's 97 %.  At 80 it saves more: 99 %.
+    - Without a permit limit or allowances, the stone alone decides: 95 %.
+    (The gypsum is landfilled at no cost, so it weighs nothing either way.)"""
+    per_point = 1.03 * M("CaCO3") / M("SO2") / 0.94 * 30.0
+    assert per_point == pytest.approx(51.36, abs=0.01)
+    for price, expected in ((40.0, 97.0), (80.0, 99.0)):
+        scn = load_scenario(workbook_bytes(one_day_station(allowance=price)))
+        r = make_plan(scn, firm_days=7)
+        assert r.balance["so2_formed_t"].to_numpy() == pytest.approx(100.0, rel=1e-4)  # periodictable and molmass differ in the 5th digit of S
+        assert r.plan.removal == pytest.approx(np.full(7, expected), abs=1e-3), price
+        assert r.balance["removal_pct"].to_numpy() == pytest.approx(np.full(7, expected), abs=1e-3)
+    s = one_day_station()
+    set_kv(s, "plant", "so2_limit_kg_per_gj", None)
+    r = make_plan(load_scenario(workbook_bytes(s)), firm_days=7)
+    assert r.plan.removal == pytest.approx(np.full(7, 95.0), abs=1e-4)
+
+
+def test_collapsed_range_plans_as_the_fixed_removal():
+    """A range of one value plans exactly as the fixed removal does."""
+    fixed = make_plan(load_scenario(workbook_bytes(one_day_station(removal=None, setpoint=97))), firm_days=7)
+    one = make_plan(load_scenario(workbook_bytes(one_day_station(removal=(97, 97), setpoint=97))), firm_days=7)
+    assert one.plan.removal is None
+    pd.testing.assert_frame_equal(fixed.movements, one.movements)
+    assert fixed.summary()["total_cost"] == one.summary()["total_cost"]
+    pd.testing.assert_frame_equal(fixed.balance, one.balance)
