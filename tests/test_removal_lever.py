@@ -94,3 +94,62 @@ def test_collapsed_range_plans_as_the_fixed_removal():
     pd.testing.assert_frame_equal(fixed.movements, one.movements)
     assert fixed.summary()["total_cost"] == one.summary()["total_cost"]
     pd.testing.assert_frame_equal(fixed.balance, one.balance)
+
+
+def outage_station(removal=(95, 99)):
+    """Fifteen days; the quarry's rail line is closed on days 3-6 and its lead time rules
+    out days 0-2, so the first train can come on day 7; the silo starts with 6.9 days of
+    stone above safety at the 98.5 % setpoint; a truck lane at 100 per tonne of freight;
+    allowances at 200 per tonne of SO2 (each point of removal saves more than its stone
+    costs, so the plan runs high when it can); the permit allows 96 % on a 7-day average."""
+    days = 15
+    s = minimal_sheets(days=days)
+    set_kv(s, "plant", "so2_limit_kg_per_gj", None)
+    set_kv(s, "scrubber", "removal_pct", 98.5)
+    if removal is not None:
+        set_kv(s, "scrubber", "removal_min_pct", removal[0])
+        set_kv(s, "scrubber", "removal_max_pct", removal[1])
+    scn = load_scenario(workbook_bytes(s))
+    bal = balance_frame(scn)
+    formed = float(bal["so2_formed_t"].iloc[0])
+    heat = float(bal["heat_input_gj"].iloc[0])
+    set_kv(s, "plant", "so2_limit_kg_per_gj", formed * 0.04 * 1000 / heat)
+    set_kv(s, "plant", "so2_limit_avg_days", 7)
+    use = float(bal["limestone_t"].iloc[0])
+    s["storage"][1] = ["limestone", 5000, 500, 500 + 6.9 * use]
+    s["suppliers"][1][3] = 2  # two trains a day once the line reopens
+    s["suppliers"].append(["Quarry Q", "truck", 25, 40, 1, "Mon-Sun", 15, 2500, None, None])
+    s["lane_closures"] = [["party", "mode", "first_date", "last_date"],
+                          ["Quarry Q", "rail", START + dt.timedelta(days=3), START + dt.timedelta(days=6)]]
+    s["allowances"] = [["date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t",
+                        "max_trade_t_per_month"], [START, 10000, None, 200, 200, None]]
+    return s
+
+
+def test_rail_outage_ridden_out_with_a_planned_dip():
+    """With no train possible before day 7 and the silo 0.1 day of stone short of safety
+    at the setpoint, the plan lowers the removal in the first week (inside the permit)
+    instead of trucking or running the silo under safety, runs high once stone is there,
+    names the dip's cause, and keeps the permit's rolling average, recomputed here
+    independently from the chosen removals, under its limit."""
+    scn = load_scenario(workbook_bytes(outage_station()))
+    r = make_plan(scn, firm_days=15)
+    s = r.summary()
+    dips = s["removal"]["dips"]
+    assert dips and dips[0]["kind"] == "low limestone" and "inside the permit" in dips[0]["cause"], dips
+    assert dips[0]["first_date"] <= f"{START + dt.timedelta(days=6):%Y-%m-%d}"
+    assert r.plan.removal[:7].mean() < 98.5 < r.plan.removal[8:].mean()
+    mv = r.movements
+    assert mv[(mv["lane"].str.contains("truck"))].empty, "trucks at 100 per tonne of freight were booked"
+    assert not [b for b in r.breaches if b["store"] in ("limestone", "so2_permit")]
+    # independent replay of the permit: emitted = SO2 to the scrubber × (1 − removal)
+    plain = balance_frame(scn)
+    to_scrubber = plain["so2_formed_t"].to_numpy()  # no sorbent injection here
+    emitted = to_scrubber * (1 - r.plan.removal / 100)
+    assert r.balance["so2_emitted_t"].to_numpy() == pytest.approx(emitted, rel=1e-9)
+    heat = plain["heat_input_gj"].to_numpy()
+    rolling = trailing_sum(emitted * 1000, 7) / trailing_sum(heat, 7)
+    assert (rolling <= scn.plant.so2_limit_kg_per_gj * (1 + 1e-6)).all()
+    # the fixed setpoint with the same outage costs more (trucks, or the silo under safety)
+    fixed = make_plan(load_scenario(workbook_bytes(outage_station(removal=None))), firm_days=15)
+    assert fixed.evaluation.total_cost > r.evaluation.total_cost

@@ -265,8 +265,8 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
                      f"{safety:,.0f} t); the lower removal rides it out inside the permit, cheaper "
                      "than extra trucks or an earlier train")
         else:
-            cause = ("cheaper: the stone (and allowances) saved by running lower cost more than the "
-                     "SO2 it lets through, inside the permit")
+            cause = ("cheaper: running lower saves stone worth more than the allowances the extra SO2 "
+                     "uses (none where the station holds none), and the permit's rolling average holds")
         out.append({"first_date": f"{dates[a]:%Y-%m-%d}", "last_date": f"{dates[b]:%Y-%m-%d}",
                     "lowest_pct": round(float(plan.removal[a:b + 1].min()), 3),
                     "setpoint_pct": round(float(setpoint[a]), 3), "cause": cause,
