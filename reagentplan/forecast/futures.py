@@ -50,7 +50,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..balance import BalanceParams, Drivers, mass_balance
+from ..balance import BalanceParams, Drivers, mass_balance, rejects_sulfur_share_blend
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario
 from . import streams
@@ -230,15 +230,24 @@ class _Prepared:
     shares: np.ndarray          # (days, sources) blend [-]
     chlorine: np.ndarray        # (days,) blended chlorine [%]
     params: BalanceParams
+    mill_rejects: np.ndarray    # (days,) blended mill rejects [% of coal fed]
+    rejects_sulfur: np.ndarray  # (days,) blended share of sulfur in the rejects [%]
 
 
 def _prepare(scenario: Scenario, model: ForecastModel) -> _Prepared:
+    """The shared part of every block.  Mill rejects and their share of sulfur do not vary
+    between futures: they blend as `reagentplan.balance.scenario_drivers` blends them
+    (the sulfur share weighted by each source's sheet sulfur)."""
     shares = scenario.blend_matrix().to_numpy(dtype=float)
+    sources = scenario.coal_sources
     return _Prepared(
         scenario, model,
         generation_sampler(model.generation, scenario.dates, scenario.generation_matrix()),
-        shares, shares @ np.array([s.chlorine_pct for s in scenario.coal_sources]),
-        BalanceParams.from_scenario(scenario))
+        shares, shares @ np.array([s.chlorine_pct for s in sources]),
+        BalanceParams.from_scenario(scenario),
+        shares @ np.array([s.mill_rejects_pct for s in sources]),
+        rejects_sulfur_share_blend(shares, [s.sulfur_pct for s in sources],
+                                   [s.rejects_sulfur_share_pct for s in sources]))
 
 
 def _block_drivers(prep: _Prepared, n: int, root: np.random.SeedSequence, block: int,
@@ -282,6 +291,9 @@ def _block_drivers(prep: _Prepared, n: int, root: np.random.SeedSequence, block:
     for name in PROPERTIES:
         out[name] = blend([v[name] for v in per_source], prep.shares, dtype)
     out["chlorine_pct"] = prep.chlorine
+    # in the sampled type, so that coal without rejects gives the futures it gave before
+    out["mill_rejects_pct"] = prep.mill_rejects.astype(dtype)
+    out["rejects_sulfur_share_pct"] = prep.rejects_sulfur.astype(dtype)
     return out
 
 
@@ -395,7 +407,7 @@ def sample_futures(scenario: Scenario, n_futures: int = 1000, seed: int | None =
 
 #: The balance's drivers (`reagentplan.balance.Drivers`), in their order.
 DRIVER_NAMES = ("generation_mwh", "heat_input_gj", "coal_heat_gj", "sulfur_pct", "ash_pct",
-                "hhv_mj_per_kg", "chlorine_pct")
+                "hhv_mj_per_kg", "chlorine_pct", "mill_rejects_pct", "rejects_sulfur_share_pct")
 
 
 @dataclass(frozen=True)
