@@ -250,3 +250,97 @@ def test_rejects_mineral_matter_within_the_ash_and_none_for_a_fluidised_bed():
     scn = load_scenario(workbook_bytes(with_rejects(minimal_sheets(), {"Coal A": (5.0, 10.0)})))
     warned = [w for w in scn.warnings if w.column == "mill_rejects_pct"]
     assert len(warned) == 1 and warned[0].row == 2 and "from memory" in warned[0].source
+
+
+# ------------------------------------------------------------------ haul, cost, breach
+
+TWO_SITES = (("Dear Pit", 9.0, 5, 30), ("Cheap Pit", 5.0, 12, None))
+
+
+def test_haul_cheapest_first_within_daily_limit_and_airspace():
+    """20 t of rejects a day for 10 days (the hand-worked coal).  Cheap Pit ($5/t, 12 t/d)
+    takes 12 t every day; Dear Pit ($9/t, 5 t/d, 30 t of airspace) takes 5 t on days
+    0-5, then is full.  Cost 10 × 12 × 5 + 30 × 9 = $870; left over 6 × 3 + 4 × 8 = 50 t,
+    one breach over the ten days naming both limits.  No lane of the model is made."""
+    from reagentplan.schedule.lanes import build_lanes
+    from reagentplan.schedule.rejects import haul_rejects, rejects_breaches
+
+    scn = load_scenario(workbook_bytes(hand_sheets(days=10, sites=TWO_SITES)))
+    frame = balance_frame(scn)
+    np.testing.assert_allclose(frame["mill_rejects_t"], 20.0)
+    haul = haul_rejects(scn, frame["mill_rejects_t"])
+    assert [d.site for d in haul.sites] == ["Cheap Pit", "Dear Pit"]
+    np.testing.assert_allclose(haul.hauled_t["Cheap Pit"], 12.0)
+    np.testing.assert_allclose(haul.hauled_t["Dear Pit"], [5] * 6 + [0] * 4, atol=1e-9)
+    np.testing.assert_allclose(haul.unhauled_t, [3] * 6 + [8] * 4, atol=1e-9)
+    assert haul.cost.sum() == pytest.approx(870.0)
+    (b,) = rejects_breaches(haul, scn.dates)
+    assert b["store"] == "mill_rejects" and b["tonnes"] == pytest.approx(50.0)
+    assert (b["first_date"], b["last_date"]) == ("2030-03-04", "2030-03-13")
+    assert "Cheap Pit at its daily limit of 12 t" in b["cause"]
+    assert "airspace used up at Dear Pit" in b["cause"]
+    assert not any(lane.material == "mill_rejects" for lane in build_lanes(scn, frame))
+
+
+def test_a_closed_site_sends_the_rejects_to_the_next():
+    """Cheap Pit closed on the second day (a lane closure): that day Dear Pit takes its
+    5 t and 15 t are left, the cause naming the closure."""
+    from reagentplan.schedule.rejects import haul_rejects, rejects_breaches
+
+    s = hand_sheets(days=3, sites=(("Dear Pit", 9.0, 5, None), ("Cheap Pit", 5.0, None, None)))
+    day = START + dt.timedelta(days=1)
+    s["lane_closures"] = [["party", "mode", "first_date", "last_date"], ["Cheap Pit", None, day, day]]
+    scn = load_scenario(workbook_bytes(s))
+    haul = haul_rejects(scn, balance_frame(scn)["mill_rejects_t"])
+    np.testing.assert_allclose(haul.hauled_t["Cheap Pit"], [20, 0, 20])
+    np.testing.assert_allclose(haul.unhauled_t, [0, 15, 0], atol=1e-9)
+    (b,) = rejects_breaches(haul, scn.dates)
+    assert b["first_date"] == b["last_date"] == f"{day:%Y-%m-%d}" and "Cheap Pit closed" in b["cause"]
+
+
+def test_plan_and_baseline_pay_the_same_haul_and_report_the_breach(tmp_path):
+    """Through ``reagentplan plan``: the cost line ``mill_rejects_disposal`` is $870 for
+    the plan and the baseline alike (the hand-worked haul above), the 50 t left over is a
+    breach (exit 1) charged at the overflow penalty, and plan.xlsx shows the haul on its
+    Mill rejects, Daily balance and Costs sheets."""
+    path = write_workbook(hand_sheets(days=10, sites=TWO_SITES), tmp_path / "rejects.xlsx")
+    out = tmp_path / "out"
+    assert main(["plan", str(path), "--out", str(out), "--futures", "0", "--time-limit", "20"]) == 1
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["costs"]["mill_rejects_disposal"] == pytest.approx(870.0)
+    assert summary["baseline_costs"]["mill_rejects_disposal"] == pytest.approx(870.0)
+    assert summary["costs"]["overflow_penalty"] >= 50 * 1000 - 1e-6
+    (b,) = [b for b in summary["breaches"] if b["store"] == "mill_rejects"]
+    assert b["tonnes"] == pytest.approx(50.0) and "daily limit" in b["cause"]
+    bal = pd.read_csv(out / "balance.csv")
+    np.testing.assert_allclose(bal["mill_rejects_t"], 20.0)
+    mv = pd.read_csv(out / "movements.csv")
+    assert "mill_rejects" not in set(mv["material"])
+    wb = load_workbook(out / "plan.xlsx", read_only=True)
+    costs = {r[0]: r[1] for r in wb["Costs"].iter_rows(min_row=5, values_only=True)}
+    assert costs["mill rejects disposal"] == pytest.approx(870.0)
+    daily = list(wb["Daily balance"].iter_rows(values_only=True))
+    head = list(daily[0])
+    assert daily[1][head.index("mill rejects [t]")] == pytest.approx(20.0)
+    assert daily[1][head.index("mill rejects hauled [t]")] == pytest.approx(17.0)
+    assert daily[1][head.index("mill rejects haul cost [USD]")] == pytest.approx(12 * 5 + 5 * 9)
+    sheet = list(wb["Mill rejects"].iter_rows(min_row=4, values_only=True))
+    assert list(sheet[0][:3]) == ["date", "rejects made [t]", "to Cheap Pit [t]"]
+    assert sum(r[-1] for r in sheet[1:]) == pytest.approx(870.0)
+
+
+def test_no_rejects_no_sheet_and_a_zero_cost_line(tmp_path):
+    """A plan of coal without rejects: the cost line is 0, no breach names the rejects,
+    and plan.xlsx has no Mill rejects sheet."""
+    from reagentplan.output.plan_workbook import rejects_frame
+    from reagentplan.schedule import make_plan
+
+    scn = load_scenario(workbook_bytes(minimal_sheets(days=8)))
+    r = make_plan(scn, firm_days=8, time_limit=10)
+    assert r.evaluation.costs["mill_rejects_disposal"] == 0.0
+    assert not any(b["store"] == "mill_rejects" for b in r.breaches)
+
+    class Run:
+        plan = r
+
+    assert rejects_frame(Run) is None
