@@ -47,6 +47,8 @@ SOURCES = [
     ("Limestone scrubber chemistry", "Srivastava & Jozewicz (2001), J. Air & Waste Manage. Assoc. 51:1676"),
     ("Fly ash SO3 and LOI reporting", "ASTM C618 (class F: SO3 at most 5 %, LOI at most 6 %)"),
     ("Landfill mark, trigger days, empty-store penalty", "common practice, no source"),
+    ("Mill rejects (coarse pyrite and rock, never burned)", "Abel et al. (1973), US Bureau of Mines "
+     "RI 7732; typical reject shares from memory"),
 ]
 
 
