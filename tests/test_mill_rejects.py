@@ -344,3 +344,20 @@ def test_no_rejects_no_sheet_and_a_zero_cost_line(tmp_path):
         plan = r
 
     assert rejects_frame(Run) is None
+
+
+def test_a_study_variant_gets_its_own_rejects_under_shared_drivers():
+    """Drivers sampled from a scenario without rejects, run through a variant whose coal
+    has them (as a study does): the variant's futures carry its rejects, 2 % of the coal
+    fed, with 20 % of the sulfur; the base scenario's futures carry none."""
+    from reagentplan.forecast.futures import futures_from_drivers, sample_drivers
+
+    base = minimal_sheets(days=5)
+    set_value(base, "coal_sources", 0, "sulfur_pct", 3.0)
+    samples = sample_drivers(load_scenario(workbook_bytes(base)), 4, seed=2)
+    keep = ("coal_t", "mill_rejects_t", "s_rejects_t")
+    plain = futures_from_drivers(samples, load_scenario(workbook_bytes(base)), keep=keep)
+    assert not plain["mill_rejects_t"].any()
+    variant = futures_from_drivers(samples, load_scenario(workbook_bytes(hand_sheets(days=5))), keep=keep)
+    np.testing.assert_allclose(variant["mill_rejects_t"], 0.02 * variant["coal_t"], rtol=1e-5)
+    assert (variant["s_rejects_t"] > 0).all()

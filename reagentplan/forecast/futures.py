@@ -239,15 +239,20 @@ def _prepare(scenario: Scenario, model: ForecastModel) -> _Prepared:
     between futures: they blend as `reagentplan.balance.scenario_drivers` blends them
     (the sulfur share weighted by each source's sheet sulfur)."""
     shares = scenario.blend_matrix().to_numpy(dtype=float)
-    sources = scenario.coal_sources
     return _Prepared(
         scenario, model,
         generation_sampler(model.generation, scenario.dates, scenario.generation_matrix()),
-        shares, shares @ np.array([s.chlorine_pct for s in sources]),
-        BalanceParams.from_scenario(scenario),
-        shares @ np.array([s.mill_rejects_pct for s in sources]),
-        rejects_sulfur_share_blend(shares, [s.sulfur_pct for s in sources],
-                                   [s.rejects_sulfur_share_pct for s in sources]))
+        shares, shares @ np.array([s.chlorine_pct for s in scenario.coal_sources]),
+        BalanceParams.from_scenario(scenario), *_rejects_blend(scenario, shares))
+
+
+def _rejects_blend(scenario: Scenario, shares: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per day (days,): the blend's mill rejects [% of coal fed] and the share of its
+    sulfur in them [%], as `reagentplan.balance.scenario_drivers` blends them."""
+    sources = scenario.coal_sources
+    return (shares @ np.array([s.mill_rejects_pct for s in sources], dtype=float),
+            rejects_sulfur_share_blend(shares, [s.sulfur_pct for s in sources],
+                                       [s.rejects_sulfur_share_pct for s in sources]))
 
 
 def _block_drivers(prep: _Prepared, n: int, root: np.random.SeedSequence, block: int,
@@ -485,6 +490,7 @@ def futures_from_drivers(samples: DriverSamples, scenario: Scenario,
     same sampled generation and coal quality [t/d, MWh/d, %].
 
     ``scenario`` must plan the same days as the scenario the drivers were sampled from.
+    The mill rejects are taken from ``scenario`` (they are not sampled).
     ``Futures.model`` is ``None`` (the drivers carry no fitted model).
     """
     if len(scenario.dates) != len(samples.dates) or not (scenario.dates == samples.dates).all():
@@ -492,7 +498,12 @@ def futures_from_drivers(samples: DriverSamples, scenario: Scenario,
     params = BalanceParams.from_scenario(scenario)
     n, days = samples.n_futures, len(samples.dates)
     flows = {k: np.empty((n, days), dtype=dtype) for k in keep}
-    d = samples.drivers
+    d = dict(samples.drivers)
+    # the mill rejects are the scenario's own (they are not sampled): a variant that
+    # changes them gets its rejects under the shared generation and coal quality
+    rejects = _rejects_blend(scenario, scenario.blend_matrix().to_numpy(dtype=float))
+    for name, x in zip(("mill_rejects_pct", "rejects_sulfur_share_pct"), rejects):
+        d[name] = x[None, :].astype(d[name].dtype)
     for a in range(0, n, CHUNK_FUTURES):
         b = min(a + CHUNK_FUTURES, n)
         part = Drivers(**{k: (v if v.shape[0] == 1 else v[a:b]) for k, v in d.items()})
