@@ -14,6 +14,10 @@ art", J. Air & Waste Manage. Assoc. 51:1676-1688: limestone forced-oxidation che
 Ca/S stoichiometry, by-product composition.
 ASTM C618-19, *Standard Specification for Coal Fly Ash and Raw or Calcined Natural
 Pozzolan for Use in Concrete*: SO3 and LOI reporting of fly ash.
+Abel, W. T., Zulkoski, M., Brady, G. A. and Eckerd, J. W. (1973), *Removing pyrite from
+coal by dry-separation methods*, US Bureau of Mines RI 7732: pyrite liberated by
+pulverising is coarse and dense and can be rejected from pulverised coal; mill rejects
+are that stream (rock and coarse pyrite), never burned.
 """
 
 from __future__ import annotations
@@ -41,6 +45,8 @@ class Drivers:
     coal_heat_gj : heat input from coal [GJ]
     sulfur_pct, ash_pct, chlorine_pct : blended coal, as received [%]
     hhv_mj_per_kg : blended coal higher heating value, as received [MJ/kg]
+    mill_rejects_pct : blended share of the coal fed that the mills reject [%]; 0 = none
+    rejects_sulfur_share_pct : blended share of the coal's sulfur leaving in the rejects [%]
     """
 
     generation_mwh: np.ndarray
@@ -50,6 +56,8 @@ class Drivers:
     ash_pct: np.ndarray
     hhv_mj_per_kg: np.ndarray
     chlorine_pct: np.ndarray
+    mill_rejects_pct: np.ndarray | float = 0.0
+    rejects_sulfur_share_pct: np.ndarray | float = 0.0
 
 
 @dataclass(frozen=True)
@@ -116,7 +124,10 @@ def scenario_drivers(scenario: Scenario) -> Drivers:
 
     Heat input per unit is generation [MWh] × net heat rate [GJ/MWh]; the gas share of
     each unit carries no sulfur or ash.  Coal quality is the blend of the day: shares are
-    of as-received tonnes, so every property (including HHV per kg) mixes by mass.
+    of as-received tonnes, so every property (including HHV per kg) mixes by mass.  The
+    mill rejects [% of coal fed] mix by mass too; the share of sulfur in them [% of the
+    coal's sulfur] mixes by the sulfur each source brings (a source of no sulfur adds
+    none), so the blend's sulfur in rejects is the sum of the sources'.
     """
     from .forecast.generation import median_generation  # lazy: the forecast imports this module
 
@@ -139,15 +150,67 @@ def scenario_drivers(scenario: Scenario) -> Drivers:
         ash_pct=blend("ash_pct")[None, :],
         hhv_mj_per_kg=blend("hhv_mj_per_kg")[None, :],
         chlorine_pct=blend("chlorine_pct")[None, :],
+        mill_rejects_pct=blend("mill_rejects_pct")[None, :],
+        rejects_sulfur_share_pct=rejects_sulfur_share_blend(
+            shares, [s.sulfur_pct for s in scenario.coal_sources],
+            [s.rejects_sulfur_share_pct for s in scenario.coal_sources])[None, :],
     )
+
+
+def rejects_sulfur_share_blend(shares, sulfur_pct, share_pct):
+    """Share of a blend's sulfur leaving in the mill rejects [%].
+
+    ``shares`` (days × sources) [-] of as-received tonnes, each source's sulfur [%] and
+    its share of that sulfur in the rejects [%]: the sulfur in rejects per tonne of blend
+    over the blend's sulfur per tonne, 0 where the blend has no sulfur.
+    """
+    shares = np.asarray(shares, dtype=float)
+    sulfur = shares @ np.asarray(sulfur_pct, dtype=float)
+    in_rejects = shares @ (np.asarray(sulfur_pct, dtype=float) * np.asarray(share_pct, dtype=float))
+    return np.divide(in_rejects, sulfur, out=np.zeros_like(sulfur), where=sulfur > 0)
 
 
 # --------------------------------------------------------------------------- steps
 
 
 def coal_burned_t(coal_heat_gj, hhv_mj_per_kg):
-    """Coal burned [t] = coal heat input [GJ] / HHV as received [MJ/kg = GJ/t]."""
+    """Coal fed to the mills [t] = coal heat input [GJ] / HHV as received [MJ/kg = GJ/t].
+
+    The as-received HHV is that of the coal as delivered, mill rejects included; the
+    rejects (rock, pyrite) carry negligible heating value, so the heat comes from the
+    coal that is burned and this is the tonnage fed, rejects and all.
+    """
     return coal_heat_gj / hhv_mj_per_kg
+
+
+def mill_rejects_t(coal_fed_t, mill_rejects_pct):
+    """Mill rejects [t] from coal fed [t] at a reject share [% of the coal fed].
+
+    References
+    ----------
+    Abel et al. (1973), US Bureau of Mines RI 7732: coarse pyrite and rock separated from
+    pulverised coal.  Typical shares: `reagentplan.schema.PLAUSIBLE` (from memory).
+    """
+    return coal_fed_t * mill_rejects_pct * 0.01
+
+
+def sulfur_burned_pct(sulfur_pct, rejects_sulfur_share_pct):
+    """Sulfur that reaches the burners [% of the coal fed]: the coal's sulfur [%] less the
+    share [%] of it that leaves in the mill rejects."""
+    return sulfur_pct * (1 - rejects_sulfur_share_pct * 0.01)
+
+
+def boiler_ash_t(coal_fed_t, ash_pct, rejects_t, s_rejects_t):
+    """Ash reaching the boiler [t]: the ash of the coal fed [t, at ash % as received] less
+    the rejects' mineral matter, the rejects [t] less their sulfur [t].
+
+    The rejects are taken as rock and pyrite that would have reported to the ash; their
+    sulfur is counted apart (``s_rejects_t``).  The oxygen that iron takes up when pyrite
+    is ashed in the laboratory (FeS2 to Fe2O3) is neglected: the ash removed is slightly
+    understated, the ash to the boiler slightly overstated (common practice, no source).
+    The loader keeps the rejects' mineral matter within the coal's ash.
+    """
+    return coal_fed_t * ash_pct * 0.01 - (rejects_t - s_rejects_t)
 
 
 def so2_formed_t(coal_t, sulfur_pct, conversion):
@@ -267,14 +330,22 @@ def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
 
     Returns a dict of arrays named as the columns of ``balance.csv``: masses [t], heat
     [GJ], rates [kg/GJ, lb/MMBtu, kg/MWh], contents [%] and the sulfur accounting
-    ``s_in_t``, ``s_emitted_t``, ``s_gypsum_t``, ``s_fly_ash_t``, ``s_bottom_ash_t`` [t S]
-    that must close.
+    ``s_in_t``, ``s_rejects_t``, ``s_emitted_t``, ``s_gypsum_t``, ``s_fly_ash_t``,
+    ``s_bottom_ash_t`` [t S] that must close.
+
+    ``coal_t`` is the coal fed to the mills; ``mill_rejects_t`` of it leaves the mills
+    unburned with ``s_rejects_t`` of its sulfur and its mineral matter (`boiler_ash_t`);
+    only the rest of the sulfur forms SO2.  Coal chlorine is taken to be burned whole.
     """
     coal = coal_burned_t(d.coal_heat_gj, d.hhv_mj_per_kg)
+    rejects = mill_rejects_t(coal, d.mill_rejects_pct)
     s_in = coal * d.sulfur_pct * 0.01
-    so2_formed = so2_formed_t(coal, d.sulfur_pct, p.so2_conversion)
-    s_retained = s_in * (1 - p.so2_conversion)
-    ash = coal * d.ash_pct * 0.01
+    burned_pct = sulfur_burned_pct(d.sulfur_pct, d.rejects_sulfur_share_pct)
+    s_burned = coal * burned_pct * 0.01
+    s_rejects = s_in - s_burned
+    so2_formed = so2_formed_t(coal, burned_pct, p.so2_conversion)
+    s_retained = s_burned * (1 - p.so2_conversion)
+    ash = boiler_ash_t(coal, d.ash_pct, rejects, s_rejects)
     zero = np.zeros_like(coal)
 
     if p.boiler == "cfb":
@@ -367,6 +438,8 @@ def mass_balance(d: Drivers, p: BalanceParams) -> dict[str, np.ndarray]:
         "caco3_need_t": (lime_scrub + lime_inj + lime_hcl) * p.caco3,
         "gypsum_inerts_t": gyp_parts[3],
         "removal_pct": 100 * p.removal + zero,
+        "mill_rejects_t": rejects,
+        "s_rejects_t": s_rejects,
     }
     shape = np.broadcast_shapes(*(np.shape(v) for v in out.values()))
     return {k: np.broadcast_to(v, shape) for k, v in zip(out, b(*out.values()))}
@@ -444,6 +517,7 @@ BALANCE_COLUMNS = (
     "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj", "so2_over_limit",
     "limestone_caco3_pct", "caco3_need_t", "gypsum_inerts_t",
     "removal_pct",
+    "mill_rejects_t", "s_rejects_t",
 )
 
 

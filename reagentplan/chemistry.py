@@ -45,3 +45,6 @@ HEMIHYDRATE_SULFITE = molar_mass("CaSO3(H2O)0.5")
 CL = molar_mass("Cl")
 HCL = molar_mass("HCl")
 C = molar_mass("C")
+PYRITE = molar_mass("FeS2")
+#: Sulfur's mass share of pyrite FeS2 [-]: the most sulfur mill rejects can carry per tonne.
+PYRITE_S_SHARE = 2 * S / PYRITE

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from . import schema
+from .chemistry import PYRITE_S_SHARE
 from .errors import InputWarning, Problem, ScenarioError
 from .schema import Field, Sheet
 from .units import BY_US_NAME, VARIANTS
@@ -106,6 +107,10 @@ class CoalSource:
     hhv_mj_per_kg: float
     chlorine_pct: float
     sulfur_sd_pct: float
+    #: Share of the coal fed to the mills that they reject (rock, coarse pyrite) [%].
+    mill_rejects_pct: float = 0.0
+    #: Share of the coal's sulfur that leaves in those rejects, never burned [%].
+    rejects_sulfur_share_pct: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -856,6 +861,7 @@ def _build(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     closures = _check_closures(recs["lane_closures"], suppliers, buyers, disposal, out)
     periods = _check_periods(recs["period_settings"], plant, out)
     _check_period_removal(recs["period_settings"], scrubber, out)
+    _check_rejects(plant, recs["coal_sources"], recs["disposal"], out)
     train_sets = _check_train_sets(recs["train_sets"], recs["suppliers"], out)
     _warn_stone_settings_unused(recs["period_settings"], suppliers, out)
     allowances = _check_allowances(recs["allowances"], plant, out)
@@ -982,6 +988,58 @@ def _check_train_sets(records, suppliers, out: _Collector) -> tuple[TrainSet, ..
             out.add("suppliers", r["_row"], "tier_freight_per_load", "found only one of the two tier columns",
                     "tier_loads_per_month and tier_freight_per_load together")
     return sets
+
+
+def _check_rejects(plant: Plant, sources: list[dict[str, Any]], disposal: list[dict[str, Any]],
+                   out: _Collector) -> None:
+    """Mill rejects that the coal can carry and that a site takes away.
+
+    Per coal source: no rejects for a fluidised bed (it has crushers, not pulverisers);
+    the rejects' sulfur at most what pyrite FeS2 carries (53.4 % S, IUPAC weights via
+    `reagentplan.chemistry`); the rejects' mineral part (less their sulfur) at most the
+    coal's ash, since it is taken out of the ash reaching the boiler
+    (`reagentplan.balance.boiler_ash_t`).  Coal with rejects needs a ``disposal`` row
+    for ``mill_rejects``.
+    """
+    rejecting = []
+    for r in sources:
+        rej = r.get("mill_rejects_pct") or 0.0
+        share = r.get("rejects_sulfur_share_pct") or 0.0
+        s_rej = r["sulfur_pct"] * share / 100  # [% of the coal fed]
+        if rej > 0:
+            rejecting.append(r)
+        if rej > 0 and plant.boiler == "cfb":
+            out.add("coal_sources", r["_row"], "mill_rejects_pct",
+                    f"found {rej:g} % with boiler = cfb",
+                    "0 or empty for a fluidised bed (it crushes its coal; it has no pulverisers "
+                    "and no mill rejects)")
+        if s_rej > rej * PYRITE_S_SHARE + 1e-9:
+            out.add("coal_sources", r["_row"], "rejects_sulfur_share_pct",
+                    f"found {share:g} % of {r['sulfur_pct']:g} % S, i.e. {s_rej:.3g} % of the coal "
+                    f"fed, in rejects of {rej:g} %",
+                    f"rejects carrying at most {100 * PYRITE_S_SHARE:.1f} % sulfur (pure pyrite "
+                    f"FeS2): a share of at most {_share_cap(rej, r['sulfur_pct']):.3g} % here, or "
+                    "more mill_rejects_pct")
+        elif rej - s_rej > r["ash_pct"] + 1e-9:
+            out.add("coal_sources", r["_row"], "mill_rejects_pct",
+                    f"found rejects of {rej:g} % with {rej - s_rej:.3g} % of mineral matter besides "
+                    f"their sulfur, above the coal's ash of {r['ash_pct']:g} %",
+                    "rejects whose mineral matter (rejects less their sulfur) is at most the "
+                    "coal's ash_pct")
+    if rejecting and not any(d["material"] == schema.MILL_REJECTS for d in disposal):
+        rows = ", ".join(str(r["_row"]) for r in rejecting)
+        out.add("disposal", None, "material",
+                f"no row for '{schema.MILL_REJECTS}', while coal_sources row(s) {rows} give "
+                "mill_rejects_pct above 0",
+                f"a row with material '{schema.MILL_REJECTS}' (site, cost_per_t, and optionally "
+                "max_t_per_day and airspace_t) for the sites that take the mill rejects, or "
+                "mill_rejects_pct empty")
+
+
+def _share_cap(rejects_pct: float, sulfur_pct: float) -> float:
+    """Largest share of the coal's sulfur [%] that rejects of ``rejects_pct`` [% of the
+    coal fed] can carry as pyrite."""
+    return min(100.0, 100 * rejects_pct * PYRITE_S_SHARE / sulfur_pct) if sulfur_pct > 0 else 100.0
 
 
 def _make(cls, record: dict[str, Any]):

@@ -13,6 +13,10 @@ from typing import Any
 
 STORES = ("limestone", "gypsum", "fly_ash", "bottom_ash")
 BYPRODUCTS = ("gypsum", "fly_ash", "bottom_ash")
+#: Pulveriser (mill) rejects: hauled straight from the mills, no store of their own.
+MILL_REJECTS = "mill_rejects"
+#: Materials a disposal site may take: the stored byproducts and the mill rejects.
+DISPOSAL_MATERIALS = BYPRODUCTS + (MILL_REJECTS,)
 SUPPLIER_MODES = ("rail", "truck")
 BUYER_MODES = ("rail", "truck", "barge")
 BOILERS = ("pc", "cfb")
@@ -121,6 +125,17 @@ PLAUSIBLE: dict[str, Range] = {
     "chlorine_pct": Range((0, 5), (0, 0.5), "steam coals carry 0.01-0.3 % chlorine (common practice, "
                           "from memory)", what="coal chlorine"),
     "sulfur_sd_pct": Range((0, 10), (0, 1), _CP, what="spread of sulfur between deliveries"),
+    "mill_rejects_pct": Range((0, 20), (0, 1.5), "pulverisers reject a few tenths of a per cent "
+                              "of the coal fed, rarely above 1-2 % on high-pyrite coal (common "
+                              "practice, from memory); above 20 % the stream is a coal cleaning "
+                              "plant's, not a mill's (no source)", what="coal rejected by the mills"),
+    "rejects_sulfur_share_pct": Range((0, 100), (0, 30), "mill rejects are mostly coarse pyrite and "
+                                      "rock, so they take at most the pyritic sulfur, about half the "
+                                      "sulfur of an average bituminous coal; a dedicated dry separator "
+                                      "on pulverised coal took 35-55 % of the pyrite in a 10-20 % "
+                                      "reject (US Bureau of Mines RI 7732, Abel et al. 1973), a mill's "
+                                      "own rejects take less (common practice, from memory)",
+                                      what="coal sulfur leaving in the mill rejects"),
     "share_pct": Range((0, 100), (0, 100), _CP, what="blend share"),
     # buyers' limits
     "min_purity_pct": Range((0, 100), (85, 98), "wallboard plants ask for 90-95 % CaSO4·2H2O "
@@ -345,6 +360,12 @@ COAL_SOURCES = Sheet(
         pct("chlorine_pct", "chlorine, as received", 0.0, hi=5.0, example=0.1),
         Field("sulfur_sd_pct", "number", False, 0.0, 0, 10, unit="% S",
               note="standard deviation of sulfur between deliveries", example=0.2),
+        Field("mill_rejects_pct", "number", False, 0.0, 0, 20, unit="%",
+              note="share of the coal fed to the mills that they reject (rock, coarse pyrite), "
+                   "hauled away by a 'mill_rejects' disposal row; empty = 0", example=0.3),
+        Field("rejects_sulfur_share_pct", "number", False, 0.0, 0, 100, unit="%",
+              note="share of the coal's sulfur that leaves in the mill rejects (never burned); "
+                   "empty = 0", example=10),
     ),
 )
 
@@ -443,7 +464,9 @@ DISPOSAL = Sheet(
     key=("site", "material"),
     fields=(
         Field("site", "text", note="landfill or disposal site", example="Ash Landfill"),
-        Field("material", "code", choices=BYPRODUCTS, note="material it takes", example="fly_ash"),
+        Field("material", "code", choices=DISPOSAL_MATERIALS,
+              note="material it takes (mill_rejects: hauled daily from the mills, no store)",
+              example="fly_ash"),
         Field("cost_per_t", "number", True, None, 0, None, unit="money/t",
               note="haul and disposal cost", example=15),
         Field("max_t_per_day", "number", False, None, 0, None, unit="t/d",

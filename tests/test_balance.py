@@ -165,7 +165,8 @@ def test_vectorised_equals_per_day_loop():
     rng = np.random.default_rng(7)
     shape = (4, 20)
     d = Drivers(*(rng.uniform(lo, hi, shape) for lo, hi in
-                  [(0, 5000), (0, 50000), (0, 40000), (0.3, 4), (4, 15), (18, 28), (0, 0.2)]))
+                  [(0, 5000), (0, 50000), (0, 40000), (0.3, 4), (4, 15), (18, 28), (0, 0.2),
+                   (0, 2), (0, 30)]))
     p = params(oxidation=0.98, fly_ash_loi=0.03, esp_efficiency=0.99, injection_removal=0.1,
                so2_limit_avg_days=1)
     vec = mass_balance(d, p)
@@ -173,7 +174,8 @@ def test_vectorised_equals_per_day_loop():
         for t in range(shape[1]):
             one = Drivers(*(np.array([[getattr(d, k.name)[f, t]]]) for k in dataclasses.fields(d)))
             res = mass_balance(one, p)
-            for key in ("limestone_t", "gypsum_wet_t", "fly_ash_t", "so2_emitted_t"):
+            for key in ("limestone_t", "gypsum_wet_t", "fly_ash_t", "so2_emitted_t",
+                        "mill_rejects_t", "s_rejects_t"):
                 assert vec[key][f, t] == pytest.approx(res[key][0, 0], rel=1e-12)
 
 

@@ -50,7 +50,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..balance import BalanceParams, Drivers, mass_balance
+from ..balance import BalanceParams, Drivers, mass_balance, rejects_sulfur_share_blend
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario
 from . import streams
@@ -230,15 +230,29 @@ class _Prepared:
     shares: np.ndarray          # (days, sources) blend [-]
     chlorine: np.ndarray        # (days,) blended chlorine [%]
     params: BalanceParams
+    mill_rejects: np.ndarray    # (days,) blended mill rejects [% of coal fed]
+    rejects_sulfur: np.ndarray  # (days,) blended share of sulfur in the rejects [%]
 
 
 def _prepare(scenario: Scenario, model: ForecastModel) -> _Prepared:
+    """The shared part of every block.  Mill rejects and their share of sulfur do not vary
+    between futures: they blend as `reagentplan.balance.scenario_drivers` blends them
+    (the sulfur share weighted by each source's sheet sulfur)."""
     shares = scenario.blend_matrix().to_numpy(dtype=float)
     return _Prepared(
         scenario, model,
         generation_sampler(model.generation, scenario.dates, scenario.generation_matrix()),
         shares, shares @ np.array([s.chlorine_pct for s in scenario.coal_sources]),
-        BalanceParams.from_scenario(scenario))
+        BalanceParams.from_scenario(scenario), *_rejects_blend(scenario, shares))
+
+
+def _rejects_blend(scenario: Scenario, shares: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per day (days,): the blend's mill rejects [% of coal fed] and the share of its
+    sulfur in them [%], as `reagentplan.balance.scenario_drivers` blends them."""
+    sources = scenario.coal_sources
+    return (shares @ np.array([s.mill_rejects_pct for s in sources], dtype=float),
+            rejects_sulfur_share_blend(shares, [s.sulfur_pct for s in sources],
+                                       [s.rejects_sulfur_share_pct for s in sources]))
 
 
 def _block_drivers(prep: _Prepared, n: int, root: np.random.SeedSequence, block: int,
@@ -282,6 +296,9 @@ def _block_drivers(prep: _Prepared, n: int, root: np.random.SeedSequence, block:
     for name in PROPERTIES:
         out[name] = blend([v[name] for v in per_source], prep.shares, dtype)
     out["chlorine_pct"] = prep.chlorine
+    # in the sampled type, so that coal without rejects gives the futures it gave before
+    out["mill_rejects_pct"] = prep.mill_rejects.astype(dtype)
+    out["rejects_sulfur_share_pct"] = prep.rejects_sulfur.astype(dtype)
     return out
 
 
@@ -395,7 +412,7 @@ def sample_futures(scenario: Scenario, n_futures: int = 1000, seed: int | None =
 
 #: The balance's drivers (`reagentplan.balance.Drivers`), in their order.
 DRIVER_NAMES = ("generation_mwh", "heat_input_gj", "coal_heat_gj", "sulfur_pct", "ash_pct",
-                "hhv_mj_per_kg", "chlorine_pct")
+                "hhv_mj_per_kg", "chlorine_pct", "mill_rejects_pct", "rejects_sulfur_share_pct")
 
 
 @dataclass(frozen=True)
@@ -473,6 +490,7 @@ def futures_from_drivers(samples: DriverSamples, scenario: Scenario,
     same sampled generation and coal quality [t/d, MWh/d, %].
 
     ``scenario`` must plan the same days as the scenario the drivers were sampled from.
+    The mill rejects are taken from ``scenario`` (they are not sampled).
     ``Futures.model`` is ``None`` (the drivers carry no fitted model).
     """
     if len(scenario.dates) != len(samples.dates) or not (scenario.dates == samples.dates).all():
@@ -480,7 +498,12 @@ def futures_from_drivers(samples: DriverSamples, scenario: Scenario,
     params = BalanceParams.from_scenario(scenario)
     n, days = samples.n_futures, len(samples.dates)
     flows = {k: np.empty((n, days), dtype=dtype) for k in keep}
-    d = samples.drivers
+    d = dict(samples.drivers)
+    # the mill rejects are the scenario's own (they are not sampled): a variant that
+    # changes them gets its rejects under the shared generation and coal quality
+    rejects = _rejects_blend(scenario, scenario.blend_matrix().to_numpy(dtype=float))
+    for name, x in zip(("mill_rejects_pct", "rejects_sulfur_share_pct"), rejects):
+        d[name] = x[None, :].astype(d[name].dtype)
     for a in range(0, n, CHUNK_FUTURES):
         b = min(a + CHUNK_FUTURES, n)
         part = Drivers(**{k: (v if v.shape[0] == 1 else v[a:b]) for k, v in d.items()})

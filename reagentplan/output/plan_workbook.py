@@ -22,6 +22,7 @@ from openpyxl.utils import get_column_letter
 
 from .. import CAUTION
 from ..schedule.lanes import SALE, SUPPLY, horizon_months
+from ..schedule.rejects import haul_frame, has_rejects
 from .files import save_workbook
 
 HEAD_FILL = PatternFill("solid", fgColor="2F4858")
@@ -46,6 +47,8 @@ SOURCES = [
     ("Limestone scrubber chemistry", "Srivastava & Jozewicz (2001), J. Air & Waste Manage. Assoc. 51:1676"),
     ("Fly ash SO3 and LOI reporting", "ASTM C618 (class F: SO3 at most 5 %, LOI at most 6 %)"),
     ("Landfill mark, trigger days, empty-store penalty", "common practice, no source"),
+    ("Mill rejects (coarse pyrite and rock, never burned)", "Abel et al. (1973), US Bureau of Mines "
+     "RI 7732; typical reject shares from memory"),
 ]
 
 
@@ -188,6 +191,20 @@ def costs_frame(run) -> pd.DataFrame:
     return pd.concat([frame, total], ignore_index=True)
 
 
+def rejects_frame(run) -> pd.DataFrame | None:
+    """The mill rejects' daily haul (`reagentplan.schedule.rejects.haul_frame`) with
+    plain headers, or ``None`` when the coal has no rejects and no site takes them."""
+    plan = run.plan
+    haul = plan.evaluation.rejects
+    if haul is None or not has_rejects(plan.scenario):
+        return None
+    frame = haul_frame(haul, plan.balance["mill_rejects_t"], plan.scenario.dates)
+    cur = plan.scenario.plant.currency
+    names = {"made_t": "rejects made [t]", "not_hauled_t": "not hauled [t]",
+             "cost": f"haul cost [{cur}]"}
+    return frame.rename(columns=lambda c: names.get(c, c[:-2] + " [t]" if c.endswith("_t") else c))
+
+
 def _records(objs) -> pd.DataFrame:
     rows = []
     for o in objs:
@@ -313,17 +330,32 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     # --- stone in the silo and the gypsum it makes
     _stone_sheet(wb, run)
 
-    # --- balance, costs, assumptions
+    # --- mill rejects, balance, costs, assumptions
+    rejects = rejects_frame(run)
+    if rejects is not None:
+        ws = wb.create_sheet("Mill rejects")
+        _title(ws, "Mill rejects hauled each day from the mills, cheapest site first",
+               "Not a decision of the plan: the coal burned sets them, so the plan and the baseline "
+               "haul and pay the same. Not hauled = more than the sites take (a breach).")
+        _frame_to_sheet(ws, rejects, start_row=4,
+                        formats={c: "#,##0.0" for c in rejects.columns if "[t]" in c}
+                        | {rejects.columns[-1]: money}, widths={"date": 12})
     ws = wb.create_sheet("Daily balance")
     bal = plan.balance.copy()
+    if rejects is not None:
+        bal["mill_rejects_hauled_t"] = plan.evaluation.rejects.total_hauled_t
+        bal["mill_rejects_not_hauled_t"] = plan.evaluation.rejects.unhauled_t
     bal.columns = [_with_unit(c) for c in bal.columns]
+    if rejects is not None:
+        bal[f"mill rejects haul cost [{cur}]"] = plan.evaluation.rejects.cost
     _frame_to_sheet(ws, bal, formats={c: "#,##0.0" for c in bal.columns if "[t]" in c or "[GJ]" in c
                                       or "[MWh]" in c} | {c: "0.000" for c in bal.columns if "/" in c})
     ws = wb.create_sheet("Costs")
     costs = costs_frame(run)
     _title(ws, "Costs of the plan and of the reorder-point baseline",
            "Positive = the plant pays. Limestone left at the end is credited at its cheapest "
-           "delivered cost; byproduct left is charged at its landfill cost.")
+           "delivered cost; byproduct left is charged at its landfill cost. Mill rejects "
+           "disposal is the same for both (the coal sets it).")
     _frame_to_sheet(ws, costs, start_row=4, formats={c: money for c in costs.columns[1:]},
                     widths={"item": 30, costs.columns[1]: 20, costs.columns[2]: 28})
     _assumptions(wb.create_sheet("Assumptions"), run)

@@ -12,6 +12,7 @@ import numpy as np
 from ..scenario import Scenario
 from .evaluate import DailyPlan, Evaluation
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, horizon_months
+from .rejects import NOT_HAULED
 
 
 def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluation) -> list[dict]:
@@ -21,7 +22,9 @@ def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluati
     out = []
     for b in ev.breaches:
         a, z = b["_first"], b["_last"]
-        if b["kind"] == "shipped outside the buyer's limits":
+        if b["kind"] == NOT_HAULED:
+            pass  # the haul of the mill rejects says why (`rejects.rejects_breaches`)
+        elif b["kind"] == "shipped outside the buyer's limits":
             b["cause"] = ("the day's product missed the buyer's quality limit (gypsum purity follows "
                           "the stone in the silo); firm orders or a linearised silo put it there")
         elif b["kind"] == "more trains than the set has":

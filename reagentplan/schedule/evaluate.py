@@ -2,7 +2,9 @@
 
 Both the optimiser's plan and the reorder-point baseline are priced here, in the same
 way, so their costs compare like for like.  Costs are in the scenario's currency;
-positive is money the plant spends.
+positive is money the plant spends.  The mill rejects' daily haul
+(`reagentplan.schedule.rejects`) is priced here too, as its own line: it follows from the
+coal burned, not from the plan, so plan and baseline pay the same for it.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ import pandas as pd
 
 from ..scenario import Scenario
 from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+from .rejects import RejectsHaul, haul_rejects, rejects_breaches
 
 #: A tonne of limestone demand that cannot be met (the store is empty) costs this many
 #: times the shortage penalty: the scrubber cannot run.  Common practice, no source.
@@ -96,6 +99,7 @@ class Evaluation:
     month_totals: dict[str, np.ndarray]    # lane -> tonnes per horizon month
     shortfalls: list[dict] = field(default_factory=list)  # take-or-pay shortfalls paid at the contract's rate
     end_parts: dict = field(default_factory=dict)  # end_stock_value split: limestone credit, byproduct charge
+    rejects: RejectsHaul | None = None     # the mill rejects' daily haul (the same for every plan)
 
 
 def store_levels(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
@@ -131,13 +135,19 @@ def store_levels(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
 
 
 def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan: DailyPlan) -> Evaluation:
-    """Levels, costs (with the end-of-horizon stock value) and breaches of a daily plan."""
+    """Levels, costs (with the end-of-horizon stock value) and breaches of a daily plan.
+
+    ``mill_rejects_disposal`` is the haul of the balance's ``mill_rejects_t`` [t/d] to the
+    mill-reject sites (`haul_rejects`); rejects no site takes are a breach and are charged
+    at the overflow penalty per tonne [money/t], as a tonne with nowhere to go.
+    """
     p = scenario.plant
     levels, unmet = store_levels(scenario, balance, lanes, plan)
     month_index, months, _ = horizon_months(scenario.dates)
     costs = dict.fromkeys(["limestone_purchase", "freight", "byproduct_sales", "landfill",
                            "shortage_penalty", "overflow_penalty", "empty_penalty",
-                           "contract_penalty", "quality_penalty", "end_stock_value"], 0.0)
+                           "contract_penalty", "quality_penalty", "end_stock_value",
+                           "mill_rejects_disposal"], 0.0)
     month_totals: dict[str, np.ndarray] = {}
     breaches: list[dict] = []
     shortfalls: list[dict] = []
@@ -184,6 +194,12 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     for name, a, trains in train_set_excess(scenario, lanes, plan.quantity):
         breaches.append(_breach(f"train set {name}", scenario.dates, a, a, trains, "more trains than the set has"))
     _permit_and_allowances(scenario, balance, plan, costs, breaches)
+    rejects_t = (balance["mill_rejects_t"].to_numpy(float) if "mill_rejects_t" in balance
+                 else np.zeros(len(balance)))
+    haul = haul_rejects(scenario, rejects_t)
+    costs["mill_rejects_disposal"] = float(haul.cost.sum())
+    costs["overflow_penalty"] += float(p.overflow_penalty_per_t * haul.unhauled_t.sum())
+    breaches += rejects_breaches(haul, scenario.dates)
     costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
     for a, b in _runs(unmet > 1e-6):
         breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
@@ -206,7 +222,7 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
         end_value += end_parts["allowances"]
     costs["end_stock_value"] = float(end_value)
     return Evaluation(levels, unmet, costs, float(sum(costs.values())), breaches, month_totals, shortfalls,
-                      end_parts)
+                      end_parts, haul)
 
 
 def _permit_and_allowances(scenario: Scenario, balance: pd.DataFrame, plan: DailyPlan,

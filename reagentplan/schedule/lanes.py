@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import BuyerLane, Scenario, SupplierLane
+from ..schema import MILL_REJECTS
 
 SUPPLY, SALE, LANDFILL = "supply", "sale", "landfill"
 
@@ -182,6 +183,9 @@ def _calendar_why(scenario: Scenario, lane) -> tuple[np.ndarray, list[str]]:
 def build_lanes(scenario: Scenario, balance: pd.DataFrame, exact_quality: bool = False) -> list[Lane]:
     """All lanes of the scenario with their daily calendars and pro-rated limits.
 
+    The ``mill_rejects`` disposal rows make no lane: the rejects have no store and their
+    haul is no decision of the plan (`reagentplan.schedule.rejects`).
+
     With stone of several qualities the gypsum purity is left out of the buyers' open
     days (the plan decides it), unless ``exact_quality``: ``balance`` is then the balance
     of a plan's own silo and its purity closes the days it fails."""
@@ -213,6 +217,8 @@ def build_lanes(scenario: Scenario, balance: pd.DataFrame, exact_quality: bool =
                           limit(b, "min_t_per_month", "min"),
                           limit(b, "max_t_per_month", "max"), np.inf, tuple(why), b))
     for d in scenario.disposal:
+        if d.material == MILL_REJECTS:
+            continue  # hauled daily from the mills, not planned (`reagentplan.schedule.rejects`)
         open_, why = _calendar_why(scenario, d)
         cap = np.inf if d.max_t_per_day is None else d.max_t_per_day
         lanes.append(Lane(LANDFILL, d.material, d.site, None, f"{d.site} {d.material}", None, cap,

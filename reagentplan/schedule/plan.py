@@ -267,7 +267,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
 #: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock
 #: left at the end goes with what it is: limestone with the stone, byproducts with landfill.
 SAVING_CAUSES = {"stone": ("limestone_purchase", "end:limestone"), "freight": ("freight",),
-                 "byproduct_sales": ("byproduct_sales",), "landfill": ("landfill", "end:byproducts"),
+                 "byproduct_sales": ("byproduct_sales",),
+                 "landfill": ("landfill", "end:byproducts", "mill_rejects_disposal"),
                  "allowances": ("allowances", "end:allowances"),
                  "penalties": ("shortage_penalty", "overflow_penalty", "empty_penalty",
                                "contract_penalty", "quality_penalty", "permit_penalty",

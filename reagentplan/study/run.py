@@ -75,8 +75,10 @@ EXTRA_COLUMNS = ("expected_cost", "baseline_total_cost", "gap", "breaches", "fut
                  "case_seconds", "message")
 #: Statuses of a case that has a plan.
 PLANNED = ("optimal", "feasible")
-#: Movement costs of a plan: the same in every future, the movements being fixed.
-FIXED_COSTS = ("limestone_purchase", "freight", "byproduct_sales", "landfill", "contract_penalty")
+#: Movement costs of a plan: the same in every future, the movements being fixed (the mill
+#: rejects' haul at the deterministic balance's rejects).
+FIXED_COSTS = ("limestone_purchase", "freight", "byproduct_sales", "landfill", "contract_penalty",
+               "mill_rejects_disposal")
 
 
 @dataclass(frozen=True)
