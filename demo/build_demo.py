@@ -134,6 +134,15 @@ SCRUBBER_ROWS: tuple[tuple[str, Any, str], ...] = (
     ("injection_ca_s_ratio", 2.5, "would apply if sorbent injection were used"),
     ("prescrubber_hcl_removal_pct", 0.0, "no prescrubber"),
     ("gypsum_chloride_ppm", 60, "washed cake, monthly lab average"),
+    ("removal_min_pct", 96.0, "lowest removal the operators will run for a few days (the plan may choose)"),
+    ("removal_max_pct", 99.0, "highest removal the absorbers hold with all recycle pumps in service"),
+)
+
+# SO2 allowances (invented market): (day offset, holding_t, allocated_t, buy, sell, most
+# traded per month); the station's allocation for the year is on hand at the start
+ALLOWANCES: tuple[tuple[Any, ...], ...] = (
+    (0, 2600.0, None, 95.0, 85.0, 600.0),
+    (181, None, None, 110.0, 100.0, 600.0),  # the summer market is tighter
 )
 
 # store: (capacity_t, safety_t, initial_t)
@@ -605,6 +614,11 @@ def build_demo_workbook(
     )
     _write_table(wb, "suppliers", SUPPLIER_COLUMNS, SUPPLIERS)
     _write_table(wb, "train_sets", ("train_set", "max_trains", "window_days"), TRAIN_SETS)
+    _write_table(
+        wb, "allowances",
+        ("date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t", "max_trade_t_per_month"),
+        [(start + timedelta(days=a), *rest) for a, *rest in ALLOWANCES if a < horizon_days],
+    )
     _write_table(wb, "buyers", BUYER_COLUMNS, BUYERS)
     _write_table(
         wb, "disposal",
