@@ -10,6 +10,8 @@ import datetime as dt
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import pandas as pd
+
 from .balance import balance_frame
 from .scenario import Scenario
 from .risk import RiskResult, replay
@@ -54,7 +56,7 @@ class PlanRun:
 
 def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
              time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
-             progress: bool = False) -> PlanRun:
+             progress: bool = False, previous: pd.DataFrame | None = None) -> PlanRun:
     """Sample ``futures`` futures (none when 0), plan against them, replay the plan
     against them (the risk)."""
     fut = None
@@ -63,12 +65,13 @@ def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: s
 
         fut = sample_futures(scenario, futures, seed=seed, progress=progress, keep=FUTURE_FLOWS)
     return plan_with_futures(scenario, fut, solver=solver, time_limit=time_limit,
-                             firm_days=firm_days, risk_level=risk_level, progress=progress)
+                             firm_days=firm_days, risk_level=risk_level, progress=progress,
+                             previous=previous)
 
 
 def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_limit: float = 60.0,
                       firm_days: int = 56, risk_level: float = 0.05,
-                      progress: bool = False) -> PlanRun:
+                      progress: bool = False, previous: pd.DataFrame | None = None) -> PlanRun:
     """Plan ``scenario`` against futures already sampled (`reagentplan.forecast.Futures`
     holding at least `FUTURE_FLOWS`, or ``None`` for none) and replay the plan against
     them.  `run_plan` is this after sampling; a study calls it with futures shared
@@ -79,7 +82,7 @@ def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_li
         flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
                  if store in scenario.storage and q in fut.flows}
     plan = make_plan(scenario, balance, flows=flows, risk_level=risk_level, firm_days=firm_days,
-                     solver=solver, time_limit=time_limit, progress=progress)
+                     solver=solver, time_limit=time_limit, progress=progress, previous=previous)
     risk = None
     if fut is not None:
         from .schedule.plan import flows_at_plan_stone
@@ -122,12 +125,14 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     record = load_record(engine)
     state = asof_state(scenario, record, as_of)
     planned = apply_asof(scenario, state, horizon_days)
+    if options.get("previous") is None and store:
+        options["previous"] = plan_in_force(engine)
     run = run_plan(planned, **options)
     run.summary_extra.update(state.summary())
     if not store:
         run.summary_extra["plan_id"] = None
         return run
-    opts = {k: v for k, v in options.items() if k != "progress"} | {"horizon_days": horizon_days}
+    opts = {k: v for k, v in options.items() if k not in ("progress", "previous")} | {"horizon_days": horizon_days}
     plan_id = store_plan(engine, summary=run_summary(run), movements=run.plan.movements,
                          inventory=run.plan.inventory, workbook_bytes=data,
                          workbook_name=Path(workbook).name, as_of=as_of,
@@ -136,6 +141,15 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
                          last_import_id=state.last_import_id)
     run.summary_extra["plan_id"] = plan_id
     return run
+
+
+def plan_in_force(engine) -> pd.DataFrame | None:
+    """The movements of the newest stored plan version (the plan the coordinator is
+    following), or None when the record holds none."""
+    from .record.versions import load_plan, plan_ids
+
+    ids = plan_ids(engine)
+    return load_plan(engine, ids[-1]).movements if ids else None
 
 
 def baseline_from_record(workbook: str | Path, engine, as_of: dt.date, *, scenario: Scenario,

@@ -83,12 +83,13 @@ def _xlsx(frames: dict[str, pd.DataFrame]) -> bytes:
 
 
 def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver,
-                 plan_futures: int = 0, seed: int = 0):
-    """(movements, lanes, status) of the policy's plan as of ``as_of``."""
+                 plan_futures: int = 0, seed: int = 0, previous: pd.DataFrame | None = None):
+    """(movements, lanes, status) of the policy's plan as of ``as_of``; ``previous`` is the
+    plan in force (its firm-window loads cost something to move)."""
     if policy == "plan":
         run = run_plan_from_record(workbook, engine, as_of, scenario=scenario, horizon_days=lookahead_days,
                                    store=False, futures=plan_futures, seed=seed, firm_days=firm_days, time_limit=time_limit,
-                                   solver=solver)
+                                   solver=solver, previous=previous)
         return run.plan.movements, run.plan.lanes, run.plan.outcome.status
     _, lanes, _, mv = baseline_from_record(workbook, engine, as_of, scenario=scenario,
                                            horizon_days=lookahead_days, firm_days=firm_days)
@@ -143,7 +144,7 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                 t0 = time.perf_counter()
                 mv, lanes, status = _policy_plan(policy, workbook, engine, as_of, scenario, lookahead_days,
                                                  firm_days, time_limit, solver, plan_futures,
-                                                 seed + 1000 + week)
+                                                 seed + 1000 + week, None if prev is None else prev[0])
                 plan_seconds += time.perf_counter() - t0
                 statuses.append(status)
                 lane_of = {ln.name: ln for ln in lanes}

@@ -44,6 +44,13 @@ SILO_SAFETY_MARGIN = 0.03
 #: its own median levels inside the limits, then buys what protection it can.
 GUARD_WEIGHT = 0.25
 
+#: Money per load the plan gives up by moving or cancelling a load that the previous plan
+#: held inside the firm window (a train re-booked, a buyer told of a new day): the price
+#: of nervousness, so the coordinator is not asked to re-book for pennies.  Common
+#: practice, no source; `make_plan(change_cost_per_load=...)` sets it.  Not a cost of the
+#: plan: `evaluate` leaves it out.
+CHANGE_COST_PER_LOAD = 250.0
+
 SOLVERS = {"highs": mathopt.SolverType.HIGHS, "cp-sat": mathopt.SolverType.CP_SAT,
            "scip": mathopt.SolverType.GSCIP}
 
@@ -81,7 +88,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                gap: float = 5e-4, hint: DailyPlan | None = None,
                progress: bool = False, chem=None, around: DailyPlan | None = None,
                scale: float | None = None, fixed: dict | None = None,
-               to_days: bool = True, lever=None, allow=None) -> SolveOutcome:
+               to_days: bool = True, lever=None, allow=None, keep: dict | None = None,
+               change_cost: float = CHANGE_COST_PER_LOAD) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -95,7 +103,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                                  _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
-                           scale=scale, fixed=fixed, lever=lever, allow=allow)
+                           scale=scale, fixed=fixed, lever=lever, allow=allow, keep=keep,
+                           change_cost=change_cost)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"], first, lever)
     if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
@@ -193,7 +202,8 @@ class SolveProgress:
 def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
                    label: str = "solving", chem=None, lin=None, scale: float | None = None,
-                   fixed: dict | None = None, lever=None, allow=None) -> dict:
+                   fixed: dict | None = None, lever=None, allow=None, keep: dict | None = None,
+                   change_cost: float = CHANGE_COST_PER_LOAD) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums;
     ``lever`` (`lever.RemovalLever`) makes the removal a decision per period, ``allow``
     (`lever.AllowanceTerms`) adds the allowance account."""
@@ -263,6 +273,17 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 if v is not None:
                     v.lower_bound = v.upper_bound = float(max(q[k], 0.0))
         cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
+        if keep and lane.name in keep and lane.load_t:
+            # loads the previous plan held on these days (not booked): moving or
+            # cancelling one costs CHANGE_COST_PER_LOAD
+            held = keep[lane.name]
+            for k, (a, b) in enumerate(periods):
+                if a != b or a >= len(held) or held[a] <= 0:
+                    continue
+                v = x[lane.name][k]
+                gone = m.add_variable(lb=0, ub=float(held[a]), name=f"moved[{lane.name},{k}]")
+                m.add_linear_constraint(gone >= float(held[a]) - (v if v is not None else 0.0))
+                cost_terms.append(change_cost * gone)
 
     # ---- stone quality: gypsum sales that need the silo's stone good enough (quality.py)
     quality_rows = []

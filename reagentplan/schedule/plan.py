@@ -16,11 +16,12 @@ from .baseline import baseline_plan
 from .causes import explain
 from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
-from .model import SolveOutcome, solve_plan
+from .model import CHANGE_COST_PER_LOAD, SolveOutcome, solve_plan
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint)
 from .quality import SiloChemistry
+from .settle import earliest_departures
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
 MAX_SILO_ITERATIONS = 5
@@ -131,6 +132,32 @@ class PlanResult:
         return out
 
 
+def held_loads(scenario: Scenario, lanes: list[Lane], firm: dict, previous: pd.DataFrame | None,
+               firm_days: int) -> dict[str, np.ndarray]:
+    """Per lane with whole loads, the loads [-] the previous plan held on each day of this
+    plan's firm window, less what is booked (firm orders stay whatever happens): what
+    moving or cancelling costs ``CHANGE_COST_PER_LOAD`` a load."""
+    if previous is None or previous.empty:
+        return {}
+    n = len(scenario.dates)
+    start = pd.Timestamp(scenario.plant.start_date)
+    days = (pd.to_datetime(previous["date"]) - start).dt.days.to_numpy()
+    out = {}
+    for lane in lanes:
+        if not lane.load_t:
+            continue
+        rows = (previous["lane"].to_numpy() == lane.name) & (days >= 0) & (days < min(firm_days, n))
+        if not rows.any():
+            continue
+        held = np.zeros(n)
+        np.add.at(held, days[rows], pd.to_numeric(previous["loads"][rows], errors="coerce").fillna(0).to_numpy(float))
+        booked = firm.get(lane.name, (np.zeros(n, int), None))[0]
+        held = np.clip(held - booked, 0, None)
+        if held.any():
+            out[lane.name] = held
+    return out
+
+
 def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
     """What the reported gap proves, in words: the whole model's optimum, or (stone of
     several qualities) only the byproduct plan at the stone the successive solves chose."""
@@ -147,7 +174,8 @@ def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-              gap: float = 5e-4, progress: bool = False) -> PlanResult:
+              gap: float = 5e-4, progress: bool = False, previous: pd.DataFrame | None = None,
+              change_cost_per_load: float = CHANGE_COST_PER_LOAD) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -157,12 +185,16 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         or byproduct production; they set the guard margins (`guard_margins`).
     risk_level : accepted chance of breaking safety stock or capacity on a day [-].
     firm_days : days planned one by one; weekly buckets after [d].
+    previous : the movements (``movements.csv`` rows: lane, date, loads) of the plan in
+        force; a load it held inside this plan's firm window that is moved or cancelled
+        costs ``change_cost_per_load`` [money] in the model (not in the plan's cost).
     """
     if balance is None:
         balance = balance_frame(scenario)
     lanes = build_lanes(scenario, balance)
     firm = firm_loads(scenario, lanes)
     guard = guard_margins(balance, flows, risk_level)
+    keep = held_loads(scenario, lanes, firm, previous, firm_days)
     chem = SiloChemistry.from_balance(scenario, balance, lanes) if scenario.quality_coupled else None
     lever = RemovalLever.from_scenario(scenario)
     allow = AllowanceTerms.from_scenario(scenario)
@@ -196,7 +228,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                          time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
                          gap=gap, hint=base, progress=progress, chem=chem,
-                         scale=gross, to_days=chem is None, lever=lever, allow=allow)
+                         scale=gross, to_days=chem is None, lever=lever, allow=allow, keep=keep,
+                         change_cost=change_cost_per_load)
     plan_bal = bal_of(outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
     iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
@@ -211,7 +244,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                 break
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                              time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
-                             around=last, scale=gross, to_days=False, lever=lever, allow=allow)
+                             around=last, scale=gross, to_days=False, lever=lever, allow=allow,
+                             keep=keep, change_cost=change_cost_per_load)
             bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
@@ -235,7 +269,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         try:
             pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
                              solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
-                             scale=gross, fixed=fixed, allow=allow)
+                             scale=gross, fixed=fixed, allow=allow, keep=keep,
+                             change_cost=change_cost_per_load)
             pol.plan.removal = outcome.plan.removal
             ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
             iterations.append({"iteration": "byproducts at the chosen stone" if chem is not None
@@ -255,6 +290,12 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         # dearer than the warm start: keep the warm start (the baseline)
         chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
         outcome.status += " (baseline kept: the replayed plan priced dearer)"
+    settled, n_moved = earliest_departures(scenario, plan_bal, lanes, chosen)
+    if n_moved:
+        ev_s = evaluate(scenario, plan_bal, lanes, settled)
+        if ev_s.total_cost <= ev.total_cost + 1e-6 * max(abs(ev.total_cost), 1.0):
+            chosen, ev = settled, ev_s
+            outcome.status += f" ({n_moved} sale loads moved to the earliest equal day)"
     removal = scenario.scrubber.removal_pct
     base_ev.breaches = explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal)
     breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
