@@ -1,7 +1,7 @@
 """Benchmark: the scheduler on the demo station for several horizons and solvers.
 
 Run:  python bench/schedule.py [--solvers highs,scip,cp-sat] [--horizons 30,90,120,180,365]
-      [--time-limit 60] [--plain]
+      [--time-limit 60] [--plain] [--lever]
 
 The demo station is quality-coupled: two quarries of different CaCO3 in a well-mixed
 silo, a board plant with a purity limit and a season, freight tiers, a shared train set.
@@ -12,7 +12,9 @@ cost, the reorder-point baseline's cost (both replayed through the exact silo an
 the same way), the saving and its split by cause (stone = purchase less the stone left at
 the end; freight; byproduct sales; landfill; penalties incl. take-or-pay), and the limits
 each breaks.  ``--plain`` also runs each case with every quarry's stone set to the silo's
-(no chemistry in the plan), for comparison.
+(no chemistry in the plan), for comparison.  ``--lever`` also runs each case with the
+scrubber's removal fixed at its setpoint (case ``fixed-r``: the range taken away), so the
+time the removal decision costs reads off the two rows (target: at most 1.5 x).
 
 Targets on 2 cores: 120 days every day <= 10 s with a proven gap <= 0.1 %; 365 days with
 the firm/outlook split <= 60 s with gap <= 1 %; never dearer than the baseline and never
@@ -35,13 +37,19 @@ from reagentplan.balance import balance_frame  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 from reagentplan.schedule import make_plan  # noqa: E402
 
-CAUSES = ("stone", "freight", "byproduct_sales", "landfill", "penalties")
+CAUSES = ("stone", "freight", "byproduct_sales", "landfill", "allowances", "penalties")
 
 
 def plain(scn):
     """The same scenario with every quarry's stone equal to the silo's: no chemistry."""
     return dataclasses.replace(scn, suppliers=tuple(dataclasses.replace(s, caco3_pct=None)
                                                     for s in scn.suppliers))
+
+
+def fixed_removal(scn):
+    """The same scenario with the removal fixed at the setpoint (no range): the lever off."""
+    return dataclasses.replace(scn, scrubber=dataclasses.replace(scn.scrubber, removal_min_pct=None,
+                                                                 removal_max_pct=None))
 
 
 def main() -> None:
@@ -51,6 +59,8 @@ def main() -> None:
     ap.add_argument("--time-limit", type=float, default=60.0)
     ap.add_argument("--gap", type=float, default=5e-4)
     ap.add_argument("--plain", action="store_true")
+    ap.add_argument("--lever", action="store_true",
+                    help="also run each case with the removal fixed (no range), and print the time ratio")
     args = ap.parse_args()
     head = (f"{'days':>4} {'mode':>6} {'case':>7} {'solver':>6} {'time s':>7} {'gap %':>7} {'plan cost':>12} "
             f"{'baseline':>12} {'saving':>10} " + " ".join(f"{c[:9]:>9}" for c in CAUSES)
@@ -59,7 +69,8 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         for h in [int(x) for x in args.horizons.split(",")]:
             scn0 = load_scenario(build_demo_workbook(Path(tmp) / f"demo{h}.xlsx", horizon_days=h))
-            cases = [("quality", scn0)] + ([("plain", plain(scn0))] if args.plain else [])
+            cases = ([("quality", scn0)] + ([("plain", plain(scn0))] if args.plain else [])
+                     + ([("fixed-r", fixed_removal(scn0))] if args.lever else []))
             for case, scn in cases:
                 bal = balance_frame(scn)
                 for mode, firm in (("daily", h), ("firm56", 56)):

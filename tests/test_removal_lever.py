@@ -133,7 +133,7 @@ def test_rail_outage_ridden_out_with_a_planned_dip():
     names the dip's cause, and keeps the permit's rolling average, recomputed here
     independently from the chosen removals, under its limit."""
     scn = load_scenario(workbook_bytes(outage_station()))
-    r = make_plan(scn, firm_days=15)
+    r = make_plan(scn, firm_days=15, late_days=0)  # the lever alone, no late-train margin
     s = r.summary()
     dips = s["removal"]["dips"]
     assert dips and dips[0]["kind"] == "low limestone" and "inside the permit" in dips[0]["cause"], dips
@@ -151,5 +151,5 @@ def test_rail_outage_ridden_out_with_a_planned_dip():
     rolling = trailing_sum(emitted * 1000, 7) / trailing_sum(heat, 7)
     assert (rolling <= scn.plant.so2_limit_kg_per_gj * (1 + 1e-6)).all()
     # the fixed setpoint with the same outage costs more (trucks, or the silo under safety)
-    fixed = make_plan(load_scenario(workbook_bytes(outage_station(removal=None))), firm_days=15)
+    fixed = make_plan(load_scenario(workbook_bytes(outage_station(removal=None))), firm_days=15, late_days=0)
     assert fixed.evaluation.total_cost > r.evaluation.total_cost

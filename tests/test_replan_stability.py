@@ -22,15 +22,16 @@ def previous_train_on(day: str) -> pd.DataFrame:
 
 def test_moving_a_held_train_costs_the_change_cost():
     """The tiny station's cheapest plan takes its one train on Monday 1 April (April
-    freight 1,000 against 3,000 in March: test_schedule's hand-worked optimum).  If the
+    freight 1,000 against 3,000 in March: test_schedule's hand-worked optimum, without the
+    late-train margin).  If the
     plan in force held it on Friday 29 March, moving it saves 2,000: worth a 250 change
     cost, not a 5,000 one."""
     scn = load_scenario(workbook_bytes(tiny()))
     held = previous_train_on("2030-03-29")
-    moved = make_plan(scn, firm_days=10, previous=held)
+    moved = make_plan(scn, firm_days=10, previous=held, late_days=0)
     inbound = moved.movements[moved.movements["direction"] == "in"]
     assert list(inbound["date"]) == [pd.Timestamp("2030-04-01")]
-    kept = make_plan(scn, firm_days=10, previous=held, change_cost_per_load=5000.0)
+    kept = make_plan(scn, firm_days=10, previous=held, change_cost_per_load=5000.0, late_days=0)
     inbound = kept.movements[kept.movements["direction"] == "in"]
     assert list(inbound["date"]) == [pd.Timestamp("2030-03-29")]
     # the change cost is the model's, not the plan's: the plan kept costs 2,000 more

@@ -44,9 +44,10 @@ def test_hand_worked_optimum_cheapest_train_day():
     April (day 9), too late, since day 8 would be below safety.  April freight is $1,000 a
     train against $3,000 in March, and one train of 600 t covers the ten days (700 + 600
     − 630.45 = 669.6 t left).  So the optimum is one train on Monday 1 April, after which the
-    level is 700 − 8 × 63.045 + 600 = 795.6 t, below the 1,200 t capacity."""
+    level is 700 − 8 × 63.045 + 600 = 795.6 t, below the 1,200 t capacity.  (Without the
+    late-train margin: see the next test.)"""
     scn = load_scenario(workbook_bytes(tiny()))
-    r = make_plan(scn, firm_days=10)
+    r = make_plan(scn, firm_days=10, late_days=0)
     mv = r.movements
     inbound = mv[mv["direction"] == "in"]
     assert len(inbound) == 1
@@ -58,6 +59,20 @@ def test_hand_worked_optimum_cheapest_train_day():
     level = r.evaluation.levels["limestone"]
     assert level[7] == pytest.approx(700 - 8 * 63.045 + 600, rel=1e-3)
     assert r.evaluation.total_cost <= r.baseline_evaluation.total_cost + 1e-6
+
+
+def test_late_train_margin_moves_the_train_earlier():
+    """With a margin of two days for a late train, Monday 1 April no longer does: were the
+    train a day late, day 8 (Tuesday) would end at 700 − 9 × 63.045 = 132.6 t, 17.4 t
+    under safety, priced at the guard's 0.25 × 1,000 per tonne = 4,350, more than the
+    2,000 of freight the April rate saves.  So the train comes on Friday 29 March: even
+    without it the level stays above safety until it comes (700 − 5 × 63.045 = 384.8 t),
+    and it ends at 669.6 t."""
+    scn = load_scenario(workbook_bytes(tiny()))
+    r = make_plan(scn, firm_days=10, late_days=2)
+    inbound = r.movements[r.movements["direction"] == "in"]
+    assert list(inbound["date"]) == [pd.Timestamp("2030-03-29")]
+    assert r.evaluation.levels["limestone"][-1] == pytest.approx(700 + 600 - 10 * 63.045, rel=1e-3)
 
 
 def test_impossible_scenario_names_the_cause(tmp_path):

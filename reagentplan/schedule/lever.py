@@ -230,12 +230,15 @@ def allowance_frame(scenario: Scenario, terms: AllowanceTerms, emitted_t, bought
     return agg.reset_index().round(2)
 
 
-def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLever | None) -> list[dict]:
+def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLever | None,
+                 late_days: int = 0) -> list[dict]:
     """Each run of days the plan runs the scrubber below its setpoint, with the lowest
     removal [%] and the cause in words: where the plan's own deliveries, at the setpoint,
     would take the limestone below safety stock within the run or the three days after
-    it, the dip rides out low limestone (a late or missing train); otherwise running
-    lower is simply cheaper than the stone (and allowances) it saves, inside the permit.
+    it, the dip rides out low limestone (a late or missing train); where only a train of
+    the last ``late_days`` days coming late would take it there, the dip holds stock
+    against a late train; otherwise running lower is simply cheaper than the stone (and
+    allowances) it saves, inside the permit.
 
     ``balance_of`` gives the balance of a plan (its silo's stone and its removal)."""
     from dataclasses import replace as dc_replace
@@ -253,6 +256,14 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
     levels, unmet = store_levels(scenario, balance_of(at_setpoint), lanes, at_setpoint)
     lime = levels["limestone"]
     safety = scenario.storage["limestone"].safety_t
+    rail = sum((at_setpoint.tonnes(l) for l in lanes if l.kind == "supply" and l.mode == "rail"),
+               np.zeros(len(lime)))
+    if late_days > 0:
+        from ..balance import trailing_sum
+
+        without_late = lime - trailing_sum(rail, late_days)
+    else:
+        without_late = lime
     dates = scenario.dates
     out = []
     for a, b in runs(low):
@@ -264,13 +275,19 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
                      f"on {dates[worst]:%Y-%m-%d} at the {setpoint[a]:g} % setpoint (safety stock "
                      f"{safety:,.0f} t); the lower removal rides it out inside the permit, cheaper "
                      "than extra trucks or an earlier train")
+        elif (without_late[a:end + 1] < safety - 1e-6).any():
+            cause = (f"a late train: were a train of the last {late_days} days late, the silo would fall under "
+                     f"its safety stock of {safety:,.0f} t; the lower removal holds stock against it inside the "
+                     "permit")
         else:
             cause = ("cheaper: running lower saves stone worth more than the allowances the extra SO2 "
-                     "uses (none where the station holds none), and the permit's rolling average holds")
+                     "uses, and the permit's rolling average holds" if AllowanceTerms.from_scenario(scenario)
+                     else "cheaper: running lower saves stone, and the permit's rolling average holds")
         out.append({"first_date": f"{dates[a]:%Y-%m-%d}", "last_date": f"{dates[b]:%Y-%m-%d}",
                     "lowest_pct": round(float(plan.removal[a:b + 1].min()), 3),
                     "setpoint_pct": round(float(setpoint[a]), 3), "cause": cause,
-                    "kind": "low limestone" if short else "cheaper"})
+                    "kind": "low limestone" if short else ("late train" if "late train" in cause
+                                                            else "cheaper")})
     return out
 
 

@@ -51,6 +51,19 @@ GUARD_WEIGHT = 0.25
 #: plan: `evaluate` leaves it out.
 CHANGE_COST_PER_LOAD = 250.0
 
+#: Days a train may come late that the plan holds stock against in its firm window: on
+#: each day, the silo less the rail deliveries of the last this-many days (any of which
+#: may not have come yet) is kept above safety stock, at the guard's weight.  Common
+#: practice, no source (unit trains a day or two late are routine; the reorder-point rule
+#: keeps five days of use at each arrival).
+LATE_TRAIN_DAYS = 2
+
+#: Share of a byproduct's cheapest landfill cost the model charges for a tonne left in
+#: the store at the horizon's end (the plan's cost, `evaluate`, charges all of it): what
+#: is still in the shed may yet be sold, so landfilling it now is not the same as holding
+#: it, and the tie between the two does not fall to the solver's accident.
+END_HOLD_SHARE = 0.9
+
 SOLVERS = {"highs": mathopt.SolverType.HIGHS, "cp-sat": mathopt.SolverType.CP_SAT,
            "scip": mathopt.SolverType.GSCIP}
 
@@ -89,7 +102,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                progress: bool = False, chem=None, around: DailyPlan | None = None,
                scale: float | None = None, fixed: dict | None = None,
                to_days: bool = True, lever=None, allow=None, keep: dict | None = None,
-               change_cost: float = CHANGE_COST_PER_LOAD) -> SolveOutcome:
+               change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -104,7 +117,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
                            scale=scale, fixed=fixed, lever=lever, allow=allow, keep=keep,
-                           change_cost=change_cost)
+                           change_cost=change_cost, late_days=late_days)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"], first, lever)
     if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
@@ -115,7 +128,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
             lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
                                     plan, totals, progress=progress, label="outlook to days",
-                                    chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow)
+                                    chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow,
+                                    late_days=late_days)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"], second, lever)
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
@@ -203,7 +217,7 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
                    label: str = "solving", chem=None, lin=None, scale: float | None = None,
                    fixed: dict | None = None, lever=None, allow=None, keep: dict | None = None,
-                   change_cost: float = CHANGE_COST_PER_LOAD) -> dict:
+                   change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums;
     ``lever`` (`lever.RemovalLever`) makes the removal a decision per period, ``allow``
     (`lever.AllowanceTerms`) adds the allowance account."""
@@ -479,6 +493,16 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             over = m.add_variable(lb=0, ub=most, name=f"over[{store},{k}]")
             m.add_linear_constraint(level - over <= capacity)
             cost_terms.append(pen.overflow_penalty_per_t * w * over)
+            if store == "limestone" and late_days > 0 and periods[k][0] == periods[k][1]:
+                # a train of the last late_days days may not have come yet
+                d = periods[k][0]
+                late = sum((tonnes(l, int(pid[t])) for l in ins if l.mode == "rail"
+                            for t in range(max(d - late_days + 1, 0), d + 1)
+                            if periods[int(pid[t])][0] == periods[int(pid[t])][1]), 0.0)
+                if not isinstance(late, float):
+                    lg = m.add_variable(lb=0, ub=most, name=f"late[{k}]")
+                    m.add_linear_constraint(level - late + lg >= safety)
+                    cost_terms.append(GUARD_WEIGHT * pen.shortage_penalty_per_t * lg)
             if g is not None and g_end[k] > 0:
                 gs = m.add_variable(lb=0, ub=most, name=f"guard[{store},{k}]")
                 if store == "limestone":
@@ -492,7 +516,7 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             end_value.append(-end_caco3_value(scenario, chem) * prev_j)
             continue
         value = (-cheapest_delivered_cost(scenario) if store == "limestone"
-                 else cheapest_disposal_cost(scenario, store))
+                 else END_HOLD_SHARE * cheapest_disposal_cost(scenario, store))
         end_value.append(value * prev)
     for k, um, z in quality_rows:
         # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
@@ -563,8 +587,10 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     if r_var is not None:
         out["removal"] = np.array([values[v] for v in r_var])
     if trades is not None:
-        out["bought"] = np.array([values[v] for v in trades[0]])
-        out["sold"] = np.array([values[v] for v in trades[1]])
+        # buying and selling in one period nets out (at equal prices the solver may do
+        # both): keep the net, which holds the same and never costs more
+        net = np.array([values[b] - values[s_] for b, s_ in zip(*trades)])
+        out["bought"], out["sold"] = np.clip(net, 0, None), np.clip(-net, 0, None)
     return out
 
 

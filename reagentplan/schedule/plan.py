@@ -16,7 +16,7 @@ from .baseline import baseline_plan
 from .causes import explain
 from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
-from .model import CHANGE_COST_PER_LOAD, SolveOutcome, solve_plan
+from .model import CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, solve_plan
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint)
@@ -175,7 +175,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
               gap: float = 5e-4, progress: bool = False, previous: pd.DataFrame | None = None,
-              change_cost_per_load: float = CHANGE_COST_PER_LOAD) -> PlanResult:
+              change_cost_per_load: float = CHANGE_COST_PER_LOAD,
+              late_days: int = LATE_TRAIN_DAYS) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -188,6 +189,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     previous : the movements (``movements.csv`` rows: lane, date, loads) of the plan in
         force; a load it held inside this plan's firm window that is moved or cancelled
         costs ``change_cost_per_load`` [money] in the model (not in the plan's cost).
+    late_days : days a train may come late that the firm window holds stock against
+        (`model.LATE_TRAIN_DAYS`; 0: none) [d].
     """
     if balance is None:
         balance = balance_frame(scenario)
@@ -229,7 +232,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
                          time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
                          gap=gap, hint=base, progress=progress, chem=chem,
                          scale=gross, to_days=chem is None, lever=lever, allow=allow, keep=keep,
-                         change_cost=change_cost_per_load)
+                         change_cost=change_cost_per_load, late_days=late_days)
     plan_bal = bal_of(outcome.plan)
     ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
     iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
@@ -245,7 +248,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
                              time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
                              around=last, scale=gross, to_days=False, lever=lever, allow=allow,
-                             keep=keep, change_cost=change_cost_per_load)
+                             keep=keep, change_cost=change_cost_per_load, late_days=late_days)
             bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
@@ -270,7 +273,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
                              solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
                              scale=gross, fixed=fixed, allow=allow, keep=keep,
-                             change_cost=change_cost_per_load)
+                             change_cost=change_cost_per_load, late_days=late_days)
             pol.plan.removal = outcome.plan.removal
             ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
             iterations.append({"iteration": "byproducts at the chosen stone" if chem is not None
@@ -300,7 +303,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     base_ev.breaches = explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal)
     breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
         plan_bal, removal if chosen.removal is None else None)
-    dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever)
+    dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever, late_days)
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
                       firm_days, base_bal, iterations, dips)
 
@@ -333,10 +336,12 @@ def saving_by_cause(plan: Evaluation, baseline: Evaluation) -> dict:
 def flows_at_plan_stone(result: "PlanResult", flows: dict[str, np.ndarray] | None,
                         balance: pd.DataFrame) -> dict[str, np.ndarray] | None:
     """Sampled futures' limestone use and gypsum [t/d] moved to the stone the plan puts
-    in the silo: each day's flow scaled by the plan's balance over the balance at the
-    initial stone (``balance``).  Limestone use is exactly proportional (need / CaCO3);
-    for gypsum the stone's inerts are a small share of the cake and are scaled with it."""
-    if not flows or not result.scenario.quality_coupled:
+    in the silo and to the removal it chose: each day's flow scaled by the plan's balance
+    over the balance at the initial stone and the setpoint (``balance``).  Limestone use
+    is exactly proportional to the stone (need / CaCO3) and nearly so to the removal (the
+    HCl's share does not move with it); for gypsum the stone's inerts and the fly ash in
+    the cake are a small share and are scaled with it."""
+    if not flows or (not result.scenario.quality_coupled and result.plan.removal is None):
         return flows
     out = dict(flows)
     for store, column in (("limestone", "limestone_t"), ("gypsum", "gypsum_wet_t")):
