@@ -268,6 +268,8 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
 #: Colours of the removal panel: the removal chosen, the range's band, the setpoint.
 REMOVAL_COLOUR = "#2b5c7a"
 SETPOINT_COLOUR = "#c98b2b"
+#: Height of the removal figure [px] (its panel titles name what it shows).
+REMOVAL_FIGURE_HEIGHT = 520
 
 
 def removal_figure(days: pd.DataFrame, dips: list[dict] | None = None, avg_days: int = 30) -> go.Figure:
@@ -308,18 +310,21 @@ def removal_figure(days: pd.DataFrame, dips: list[dict] | None = None, avg_days:
     for d in dips or []:
         a = pd.Timestamp(d["first_date"]) - pd.Timedelta(hours=12)
         b = pd.Timestamp(d["last_date"]) + pd.Timedelta(hours=12)
+        colour = SAFETY if d.get("kind") == "low limestone" else OUTLOOK
         for row in (1, 2):
-            fig.add_vrect(x0=a, x1=b, fillcolor=_rgba(SAFETY if d.get("kind") == "low limestone" else OUTLOOK, 0.16),
-                          line_width=0, layer="below", row=row, col=1)
+            fig.add_vrect(x0=a, x1=b, fillcolor=_rgba(colour, 0.16), line_width=0, layer="below", row=row, col=1,
+                          **(dict(annotation_text=f"below setpoint: {d.get('kind', '')}".strip(": "),
+                                  annotation_position="bottom left",
+                                  annotation_font=dict(size=10, color=MUTED)) if row == 1 else {}))
     values = days[[c for c in ("removal_pct", "removal_min_pct", "setpoint_pct") if c in days]].to_numpy(float)
     low = float(np.floor(np.nanmin(values) - 0.5))
     fig.update_yaxes(range=[low, 100.2], ticksuffix=" %", tickformat=".1f", row=1, col=1)
     top = float(np.nanmax(np.r_[days["so2_rolling_kg_per_gj"].to_numpy(float), limit.to_numpy(float)]))
     fig.update_yaxes(range=[0, 1.12 * top if top > 0 else 1.0], tickformat=".3f", row=2, col=1)
-    fig.update_layout(template=TEMPLATE, title="SO2 removal and permit", height=500, hovermode="x unified",
-                      margin=dict(t=92, b=40),
-                      legend=dict(orientation="h", y=1.09, yanchor="bottom", x=0, xanchor="left"))
-    fig.update_annotations(font=dict(size=12, color=MUTED))
+    fig.update_layout(template=TEMPLATE, height=REMOVAL_FIGURE_HEIGHT, hovermode="x unified",
+                      margin=dict(t=36, b=40),
+                      legend=dict(orientation="h", y=-0.07, yanchor="top", x=0, xanchor="left"))
+    fig.update_annotations(font=dict(size=12, color=MUTED), selector=dict(showarrow=False, xref="paper"))
     return fig
 
 

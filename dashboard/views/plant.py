@@ -90,7 +90,8 @@ def lever_panel(run) -> list:
                          f"({removal['days_above_setpoint']} day(s) above the setpoint).")]
     else:
         words = [html.Li(dip_sentence(d)) for d in dips]
-    kids = [dcc.Graph(id=LEVER_GRAPH, config=GRAPH_CONFIG, className="rp-graph", figure=fig),
+    kids = [dcc.Graph(id=LEVER_GRAPH, config=GRAPH_CONFIG, className="rp-graph", figure=fig,
+                      style={"height": f"{figures.REMOVAL_FIGURE_HEIGHT}px"}),
             html.H4("Days below the setpoint"), html.Ul(words, id="plant-dips")]
     allowances = summary.get("allowances")
     if allowances is not None:
