@@ -265,6 +265,69 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
     return fig
 
 
+#: Colours of the removal panel: the removal chosen, the range's band, the setpoint.
+REMOVAL_COLOUR = "#2b5c7a"
+SETPOINT_COLOUR = "#c98b2b"
+#: Height of the removal figure [px] (its panel titles name what it shows).
+REMOVAL_FIGURE_HEIGHT = 520
+
+
+def removal_figure(days: pd.DataFrame, dips: list[dict] | None = None, avg_days: int = 30) -> go.Figure:
+    """The SO2 removal per day (the plan's choice, or the fixed removal) inside the range
+    the plan may choose (a shaded band from its min to its max, where there is one) with
+    the setpoint, above the permit's rolling average against its limit; the days of each
+    dip below the setpoint are shaded.  ``days`` is
+    `reagentplan.schedule.lever.lever_days`; ``dips`` the summary's ``removal.dips``."""
+    chose = "removal_min_pct" in days
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.12, row_heights=[0.55, 0.45],
+                        subplot_titles=["SO2 removal [%]" + (" chosen by the plan, within its range"
+                                                             if chose else " (fixed)"),
+                                        f"SO2 {avg_days}-day rolling average against the permit limit [kg/GJ]"])
+    x = days["date"]
+    if chose:
+        fig.add_trace(go.Scatter(x=x, y=days["removal_max_pct"], mode="lines", line=dict(width=0),
+                                 showlegend=False, hoverinfo="skip", legendgroup="range"), row=1, col=1)
+        fig.add_trace(go.Scatter(x=x, y=days["removal_min_pct"], mode="lines", line=dict(width=0),
+                                 fill="tonexty", fillcolor=_rgba(REMOVAL_COLOUR, 0.13), legendgroup="range",
+                                 name=f"range the plan may choose ({days['removal_min_pct'].iloc[0]:g}-"
+                                      f"{days['removal_max_pct'].iloc[0]:g} %)",
+                                 hoverinfo="skip"), row=1, col=1)
+    fig.add_trace(go.Scatter(x=x, y=days["setpoint_pct"], mode="lines", name="setpoint",
+                             line=dict(color=SETPOINT_COLOUR, width=1.8, dash="dash"),
+                             hovertemplate="setpoint %{y:.2f} %<extra></extra>"), row=1, col=1)
+    fig.add_trace(go.Scatter(x=x, y=days["removal_pct"], mode="lines",
+                             name="SO2 removal chosen" if chose else "SO2 removal",
+                             line=dict(color=REMOVAL_COLOUR, width=2.6, shape="hv"),
+                             hovertemplate="removal %{y:.2f} %<extra></extra>"), row=1, col=1)
+    fig.add_trace(go.Scatter(x=x, y=days["so2_rolling_kg_per_gj"], mode="lines", name="rolling average",
+                             line=dict(color="#1e2a30", width=2.2),
+                             hovertemplate="rolling average %{y:.4f} kg/GJ<extra></extra>"), row=2, col=1)
+    limit = days["so2_limit_kg_per_gj"]
+    if limit.notna().any():
+        fig.add_trace(go.Scatter(x=x, y=limit, mode="lines", name="permit limit",
+                                 line=dict(color=CAPACITY, width=1.8, dash="dash"),
+                                 hovertemplate="permit limit %{y:.4f} kg/GJ<extra></extra>"), row=2, col=1)
+    for d in dips or []:
+        a = pd.Timestamp(d["first_date"]) - pd.Timedelta(hours=12)
+        b = pd.Timestamp(d["last_date"]) + pd.Timedelta(hours=12)
+        colour = SAFETY if d.get("kind") == "low limestone" else OUTLOOK
+        for row in (1, 2):
+            fig.add_vrect(x0=a, x1=b, fillcolor=_rgba(colour, 0.16), line_width=0, layer="below", row=row, col=1,
+                          **(dict(annotation_text=f"below setpoint: {d.get('kind', '')}".strip(": "),
+                                  annotation_position="bottom left",
+                                  annotation_font=dict(size=10, color=MUTED)) if row == 1 else {}))
+    values = days[[c for c in ("removal_pct", "removal_min_pct", "setpoint_pct") if c in days]].to_numpy(float)
+    low = float(np.floor(np.nanmin(values) - 0.5))
+    fig.update_yaxes(range=[low, 100.2], ticksuffix=" %", tickformat=".1f", row=1, col=1)
+    top = float(np.nanmax(np.r_[days["so2_rolling_kg_per_gj"].to_numpy(float), limit.to_numpy(float)]))
+    fig.update_yaxes(range=[0, 1.12 * top if top > 0 else 1.0], tickformat=".3f", row=2, col=1)
+    fig.update_layout(template=TEMPLATE, height=REMOVAL_FIGURE_HEIGHT, hovermode="x unified",
+                      margin=dict(t=36, b=40),
+                      legend=dict(orientation="h", y=-0.07, yanchor="top", x=0, xanchor="left"))
+    fig.update_annotations(font=dict(size=12, color=MUTED), selector=dict(showarrow=False, xref="paper"))
+    return fig
+
+
 # --------------------------------------------------------------------------- sales
 
 _PROPERTY_TITLES = {"purity": "Gypsum purity (CaSO4·2H2O) [%]", "moisture": "Gypsum free moisture [%]",
@@ -378,7 +441,7 @@ def landfill_figure(monthly: pd.DataFrame) -> go.Figure:
 
 
 __all__ = ["empty_figure", "inbound_calendar_figure", "contract_figure", "lane_use_figure",
-           "store_figure", "so2_figure", "quality_figure", "season_figure", "landfill_figure"]
+           "store_figure", "so2_figure", "removal_figure", "quality_figure", "season_figure", "landfill_figure"]
 
 
 def silo_figure(stone: pd.DataFrame, deliveries: pd.DataFrame, colours: dict[str, str] | None = None) -> go.Figure:

@@ -111,6 +111,7 @@ def describe_plan(result) -> str:
     for (material, kind), g in out.groupby(["material", "kind"]):
         word = "sold" if kind == "sale" else "landfilled"
         lines.append(f"  {material:12} {word:11} {g['tonnes'].sum():>14,.0f} t")
+    lines += describe_lever(s)
     if s["breaches"]:
         lines.append(f"  {len(s['breaches'])} limit(s) broken:")
         for b in s["breaches"][:8]:
@@ -118,6 +119,44 @@ def describe_plan(result) -> str:
     else:
         lines.append("  no limit broken in the planned (median) case")
     return "\n".join(lines)
+
+
+#: Removal dips named one by one on the console; the rest are counted.
+DIPS_SHOWN = 3
+
+
+def describe_lever(summary: dict) -> list[str]:
+    """The lines on the scrubber's removal (where the plan chose it: its mean and lowest
+    against the setpoint and the range, then each dip below the setpoint with its cause,
+    at most `DIPS_SHOWN`) and on the allowances (bought, sold, held at the end), from a
+    plan's ``summary()``; none where neither applies."""
+    lines = []
+    r = summary.get("removal")
+    if r:
+        lines.append(f"  SO2 removal chosen: mean {r['mean_pct']:.2f} %, lowest {r['lowest_pct']:.2f} % "
+                     f"(setpoint {r['setpoint_pct']:g} %, range {r['min_pct']:g}-{r['max_pct']:g} %); "
+                     f"{r['days_below_setpoint']} day(s) below the setpoint, "
+                     f"{r['days_above_setpoint']} above")
+        dips = r.get("dips") or []
+        for d in dips[:DIPS_SHOWN]:
+            when = (d["first_date"] if d["first_date"] == d["last_date"]
+                    else f"{d['first_date']} to {d['last_date']}")
+            lines.append(f"    - below the setpoint {when}, down to {d['lowest_pct']:.2f} %; "
+                         f"cause: {d['cause']}")
+        if len(dips) > DIPS_SHOWN:
+            lines.append(f"    ... and {len(dips) - DIPS_SHOWN} more in summary.json")
+    a = summary.get("allowances")
+    if a:
+        months = a["months"]
+        bought = sum(m["bought_t"] for m in months)
+        sold = sum(m["sold_t"] for m in months)
+        money = sum(m["cost"] for m in months)
+        end = months[-1]["holding_end_t"] if months else a["opening_t"]
+        cur = summary.get("currency", "")
+        paid = (f"paid {money:,.0f} {cur}" if money >= 0 else f"received {-money:,.0f} {cur}").strip()
+        lines.append(f"  SO2 allowances: held {a['opening_t']:,.0f} t at the start, bought {bought:,.0f} t, "
+                     f"sold {sold:,.0f} t ({paid}), holding {end:,.0f} t at the end")
+    return lines
 
 
 def describe_risk(run) -> str:
@@ -157,6 +196,7 @@ def describe_demo(run, out, files: list[str]) -> str:
              f"  {'  of which penalty weights':34} {bpen - pen:>14,.0f} {cur}"
              "   (the workbook's price on a tonne below safety or over capacity)",
              f"  {'limestone trains / trucks booked':34} {trains:>8} / {trucks}",
+             *describe_lever(s),
              ""]
     out_rows = mv[mv["direction"] == "out"]
     lines.append(f"  {'product':12} {'sold [t]':>12} {'landfilled [t]':>15}")

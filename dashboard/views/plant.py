@@ -6,14 +6,19 @@ import pandas as pd
 from dash import dcc, html
 
 from .. import figures, frames
-from ..views.common import GRAPH_CONFIG, card, fmt_date, fmt_pct, graph, table
+from ..views.common import GRAPH_CONFIG, card, fmt_date, fmt_money, fmt_pct, fmt_t, graph, table
 from reagentplan.risk import ALERT_LEVEL
+from reagentplan.schedule.lever import lever_days
 
 HEADLINES = "plant-headlines"
 STORES = "plant-stores"
 SO2 = "plant-so2"
 BREACHES = "plant-breaches"
-OUTPUTS = (HEADLINES, STORES, SO2, BREACHES)
+#: The "SO2 removal and permit" panel: empty unless the plan chose the removal or the
+#: station holds allowances.
+LEVER = "plant-lever"
+LEVER_GRAPH = "plant-removal"
+OUTPUTS = (HEADLINES, STORES, LEVER, SO2, BREACHES)
 FIGURE_OUTPUTS = (SO2,)
 
 
@@ -25,6 +30,7 @@ def layout():
                className="rp-view-intro"),
         html.Div(id=HEADLINES, className="rp-headlines"),
         html.Div(id=STORES, className="rp-grid"),
+        html.Div(id=LEVER, className="rp-grid", style={"marginTop": "14px"}),
         html.Div(className="rp-grid", style={"marginTop": "14px"}, children=[
             card(graph(SO2, 340), wide=True),
             card(html.Div(id=BREACHES), title="What the plan itself breaks (on the expected balance)",
@@ -57,6 +63,52 @@ def _headline(h: dict) -> html.Div:
         html.Div(detail, className="detail")])
 
 
+def dip_sentence(d: dict) -> str:
+    """A removal dip (`reagentplan.schedule.lever.removal_dips`) in plain words."""
+    when = (f"On {fmt_date(d['first_date'])}" if d["first_date"] == d["last_date"]
+            else f"From {fmt_date(d['first_date'])} to {fmt_date(d['last_date'])}")
+    return (f"{when} the plan runs the scrubber down to {d['lowest_pct']:.2f} % SO2 removal "
+            f"(setpoint {d['setpoint_pct']:g} %). Why: {d['cause']}.")
+
+
+def lever_panel(run) -> list:
+    """The "SO2 removal and permit" card, or nothing where the plan neither chose the
+    removal nor the station holds allowances."""
+    plan = run.plan
+    days = lever_days(plan)
+    if days is None:
+        return []
+    summary = plan.summary()
+    removal = summary.get("removal")
+    dips = (removal or {}).get("dips") or []
+    fig = figures.removal_figure(days, dips, plan.scenario.plant.so2_limit_avg_days)
+    if removal is None:
+        words = [html.Li("The removal is fixed in this scenario (no range on the scrubber sheet).")]
+    elif not dips:
+        words = [html.Li(f"The plan never runs the scrubber below its {removal['setpoint_pct']:g} % setpoint; "
+                         f"it runs at {removal['mean_pct']:.2f} % on average "
+                         f"({removal['days_above_setpoint']} day(s) above the setpoint).")]
+    else:
+        words = [html.Li(dip_sentence(d)) for d in dips]
+    kids = [dcc.Graph(id=LEVER_GRAPH, config=GRAPH_CONFIG, className="rp-graph", figure=fig,
+                      style={"height": f"{figures.REMOVAL_FIGURE_HEIGHT}px"}),
+            html.H4("Days below the setpoint"), html.Ul(words, id="plant-dips")]
+    allowances = summary.get("allowances")
+    if allowances is not None:
+        cur = summary["currency"]
+        kids += [html.H4(f"SO2 allowances by month (held at the start: {fmt_t(allowances['opening_t'])} t)"),
+                 table(pd.DataFrame(allowances["months"]), [
+                     ("month", "Month", str, False),
+                     ("emitted_t", "Emitted [t]", fmt_t, True),
+                     ("allocated_t", "Allocated [t]", fmt_t, True),
+                     ("bought_t", "Bought [t]", fmt_t, True),
+                     ("sold_t", "Sold [t]", fmt_t, True),
+                     ("cost", f"Paid [{cur}] (bought less sold)", fmt_money, True),
+                     ("holding_end_t", "Held at month end [t]", fmt_t, True),
+                 ], empty="No months in the horizon.", table_id="plant-allowances")]
+    return [card(*kids, wide=True, title="SO2 removal and permit", card_id="plant-lever-card")]
+
+
 def content(run) -> dict:
     plan = run.plan
     scn = plan.scenario
@@ -73,6 +125,7 @@ def content(run) -> dict:
     return {
         HEADLINES: [_headline(h) for h in heads],
         STORES: stores,
+        LEVER: lever_panel(run),
         SO2: figures.so2_figure(plan.balance, risk.frame if risk is not None else None,
                                 scn.plant.so2_limit_avg_days),
         BREACHES: table(breaches, [

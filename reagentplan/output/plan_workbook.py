@@ -22,6 +22,7 @@ from openpyxl.utils import get_column_letter
 
 from .. import CAUTION
 from ..schedule.lanes import SALE, SUPPLY, horizon_months
+from ..schedule.lever import lever_days
 from ..schedule.rejects import haul_frame, has_rejects
 from .files import save_workbook
 
@@ -330,6 +331,9 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     # --- stone in the silo and the gypsum it makes
     _stone_sheet(wb, run)
 
+    # --- the scrubber's removal, the permit and the allowances
+    _scrubber_sheet(wb, run)
+
     # --- mill rejects, balance, costs, assumptions
     rejects = rejects_frame(run)
     if rejects is not None:
@@ -355,7 +359,8 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     _title(ws, "Costs of the plan and of the reorder-point baseline",
            "Positive = the plant pays. Limestone left at the end is credited at its cheapest "
            "delivered cost; byproduct left is charged at its landfill cost. Mill rejects "
-           "disposal is the same for both (the coal sets it).")
+           "disposal is the same for both (the coal sets it). Allowances: bought less sold "
+           "(allowances left at the end are credited in the end-stock value at the last sell price).")
     _frame_to_sheet(ws, costs, start_row=4, formats={c: money for c in costs.columns[1:]},
                     widths={"item": 30, costs.columns[1]: 20, costs.columns[2]: 28})
     _assumptions(wb.create_sheet("Assumptions"), run)
@@ -423,6 +428,154 @@ def _stone_sheet(wb, run) -> None:
                 cell.number_format = "yyyy-mm-dd"
             if deliveries.columns[j - start_col] == "chosen for quality" and v:
                 ws.cell(i, j).fill = WATCH_FILL
+
+
+#: Plain headers of the "Scrubber and permit" sheet's daily table, by `lever_days` column.
+SCRUBBER_HEADERS = {"date": "date", "removal_pct": "SO2 removal chosen [%]",
+                    "removal_min_pct": "removal min [%]", "removal_max_pct": "removal max [%]",
+                    "setpoint_pct": "setpoint [%]", "so2_emitted_t": "SO2 emitted [t]",
+                    "so2_rolling_kg_per_gj": "rolling average [kg/GJ]",
+                    "so2_limit_kg_per_gj": "permit limit [kg/GJ]"}
+#: Headers of the removal dips table, by `removal_dips` key.
+DIP_HEADERS = {"first_date": "from", "last_date": "to", "lowest_pct": "lowest removal [%]",
+               "setpoint_pct": "setpoint [%]", "cause": "cause"}
+#: Chart lines of the removal: chosen in slate, min and max in brick, setpoint in ochre.
+REMOVAL_COLOURS = {"SO2 removal chosen [%]": ("2F4858", "solid"), "removal min [%]": ("A8442A", "dash"),
+                   "removal max [%]": ("A8442A", "dash"), "setpoint [%]": ("C98B2B", "sysDot"),
+                   "SO2 removal [%]": ("2F4858", "solid"),
+                   "rolling average [kg/GJ]": ("2F4858", "solid"), "permit limit [kg/GJ]": ("A8442A", "dash")}
+
+
+def scrubber_frame(run) -> pd.DataFrame | None:
+    """The plan's removal, SO2 emitted and permit average per day with plain headers
+    (`reagentplan.schedule.lever.lever_days`), or ``None`` where the plan neither chose the
+    removal nor the station holds allowances.  A fixed removal is headed "SO2 removal"."""
+    days = lever_days(run.plan)
+    if days is None:
+        return None
+    headers = dict(SCRUBBER_HEADERS)
+    if run.plan.plan.removal is None:
+        headers["removal_pct"] = "SO2 removal [%]"
+    return days.rename(columns=headers)
+
+
+def allowance_months_frame(run) -> pd.DataFrame | None:
+    """The allowance account per month (``summary()["allowances"]``) with plain headers,
+    or ``None`` without an allowances sheet."""
+    block = run.plan.summary().get("allowances")
+    if block is None:
+        return None
+    cur = run.plan.scenario.plant.currency
+    frame = pd.DataFrame(block["months"], columns=["month", "emitted_t", "allocated_t", "bought_t",
+                                                   "sold_t", "cost", "holding_end_t"])
+    return frame.rename(columns={"emitted_t": "SO2 emitted [t]", "allocated_t": "allocated [t]",
+                                 "bought_t": "bought [t]", "sold_t": "sold [t]",
+                                 "cost": f"money paid [{cur}]",
+                                 "holding_end_t": "holding at month end [t]"})
+
+
+def _small_table(ws, frame: pd.DataFrame, row: int, col: int, formats: dict, widths: dict) -> int:
+    """``frame`` with the sheet's header look at (row, col); returns the row after it."""
+    for j, name in enumerate(frame.columns, start=col):
+        c = ws.cell(row, j, name)
+        c.fill, c.font = HEAD_FILL, HEAD_FONT
+        c.alignment = Alignment(wrap_text=True, vertical="center", horizontal="center")
+        ws.column_dimensions[get_column_letter(j)].width = widths.get(name, 12)
+    for i, rec in enumerate(frame.itertuples(index=False), start=row + 1):
+        for j, v in enumerate(rec, start=col):
+            if isinstance(v, np.generic):
+                v = v.item()
+            cell = ws.cell(i, j, v)
+            name = frame.columns[j - col]
+            if name in formats:
+                cell.number_format = formats[name]
+            cell.alignment = Alignment(wrap_text=True, vertical="top")
+    return row + len(frame) + 1
+
+
+def _scrubber_chart(data_ws, title: str, y_title: str, cols: list[tuple[int, str]], header_row: int,
+                    n: int, y_min: float | None, y_max: float | None, y_format: str) -> LineChart:
+    chart = LineChart()
+    chart.title, chart.y_axis.title, chart.x_axis.title = title, y_title, "date"
+    chart.height, chart.width = 9, 24
+    chart.x_axis.number_format = "mmm-yy"
+    chart.x_axis.delete = False
+    chart.y_axis.delete = False
+    chart.y_axis.number_format = y_format
+    chart.y_axis.scaling.min, chart.y_axis.scaling.max = y_min, y_max
+    for j, _ in cols:
+        chart.add_data(Reference(data_ws, min_col=j, min_row=header_row, max_row=header_row + n),
+                       titles_from_data=True)
+    for series, (_, name) in zip(chart.series, cols):
+        colour, dash = REMOVAL_COLOURS.get(name, ("2F4858", "solid"))
+        series.graphicalProperties.line.solidFill = colour
+        series.graphicalProperties.line.dashStyle = dash
+        series.graphicalProperties.line.width = 22225 if dash == "solid" else 12700
+        series.smooth = False
+    chart.set_categories(Reference(data_ws, min_col=1, min_row=header_row + 1, max_row=header_row + n))
+    return chart
+
+
+def _scrubber_sheet(wb, run) -> None:
+    """"Scrubber and permit": where the plan chose the removal or the station holds
+    allowances, the daily removal against its range and setpoint with the SO2 emitted and
+    the permit's rolling average against its limit (left), the removal dips with their
+    cause and the allowance months (top right), and a chart of each (below them)."""
+    daily = scrubber_frame(run)
+    if daily is None:
+        return
+    plan = run.plan
+    scn = plan.scenario
+    cur = scn.plant.currency
+    avg = scn.plant.so2_limit_avg_days
+    ws = wb.create_sheet("Scrubber and permit")
+    chose = plan.plan.removal is not None
+    _title(ws, "SO2 removal chosen by the plan, the permit's rolling average and the allowances"
+           if chose else "SO2 removal, the permit's rolling average and the allowances",
+           (f"The plan chooses the removal each day between removal min and max; the setpoint is the "
+            f"fixed removal the reorder-point baseline runs at. " if chose else
+            "The removal is fixed (no range in the scrubber sheet). ")
+           + f"Rolling average = SO2 emitted over the last {avg} days per GJ of heat input.")
+    header = 4
+    _frame_to_sheet(ws, daily, start_row=header,
+                    formats={c: "0.00" for c in daily.columns if "[%]" in c}
+                    | {"SO2 emitted [t]": "#,##0.0"} | {c: "0.0000" for c in daily.columns if "kg/GJ" in c},
+                    widths={"date": 12})
+    n = len(daily)
+    side = len(daily.columns) + 2
+    row = header - 1
+    ws.cell(row, side, "Days the plan runs the scrubber below its setpoint").font = Font(bold=True)
+    dips = (plan.summary().get("removal") or {}).get("dips") or []
+    if not chose:
+        ws.cell(row + 1, side, "none: the removal is fixed").font = NOTE_FONT
+        row += 3
+    elif not dips:
+        ws.cell(row + 1, side, "none: the plan never runs below the setpoint").font = NOTE_FONT
+        row += 3
+    else:
+        frame = pd.DataFrame(dips)[list(DIP_HEADERS)].rename(columns=DIP_HEADERS)
+        row = _small_table(ws, frame, row + 1, side, {"lowest removal [%]": "0.00", "setpoint [%]": "0.00"},
+                           {"from": 11, "to": 11, "lowest removal [%]": 11, "setpoint [%]": 10, "cause": 70}) + 1
+    months = allowance_months_frame(run)
+    if months is not None:
+        opening = plan.summary()["allowances"]["opening_t"]
+        ws.cell(row, side, f"SO2 allowances by month (held at the start: {opening:,.0f} t; "
+                           "money paid: bought less sold)").font = Font(bold=True)
+        row = _small_table(ws, months, row + 1, side,
+                           {c: "#,##0.0" for c in months.columns if "[t]" in c}
+                           | {f"money paid [{cur}]": f'#,##0 "{cur}"'},
+                           {"month": 11, f"money paid [{cur}]": 14}) + 1
+    removal_cols = [(daily.columns.get_loc(c) + 1, c) for c in daily.columns if "[%]" in c]
+    lows = [float(daily[c].min()) for _, c in removal_cols]
+    ws.add_chart(_scrubber_chart(ws, "SO2 removal chosen, its range and the setpoint" if chose
+                                 else "SO2 removal", "%", removal_cols, header, n,
+                                 float(np.floor(min(lows) - 0.5)), 100.0, "0.0"),
+                 f"{get_column_letter(side)}{row + 1}")
+    permit_cols = [(daily.columns.get_loc(c) + 1, c) for c in daily.columns if "kg/GJ" in c
+                   and daily[c].notna().any()]
+    ws.add_chart(_scrubber_chart(ws, f"{avg}-day rolling average of SO2 against the permit limit",
+                                 "kg/GJ", permit_cols, header, n, 0.0, None, "0.000"),
+                 f"{get_column_letter(side)}{row + 20}")
 
 
 _UNITS = {"_t": "[t]", "_gj": "[GJ]", "_mwh": "[MWh]", "_pct": "[%]", "_ppm": "[ppm]",

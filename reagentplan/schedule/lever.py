@@ -291,6 +291,34 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
     return out
 
 
-__all__ = ["removal_dips", "RemovalLever", "AllowanceTerms", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR",
+def lever_days(result) -> pd.DataFrame | None:
+    """Per horizon day, what the scrubber and the permit look like in a plan (a
+    `PlanResult`), or ``None`` when the plan neither chose the removal nor the station
+    holds allowances.
+
+    Columns: ``date``; ``removal_pct`` (the removal the plan's balance uses [%]: chosen
+    where the plan chooses it, else the fixed removal); ``removal_min_pct`` and
+    ``removal_max_pct`` (the range, only where the plan chooses the removal); ``setpoint_pct``
+    (the fixed removal with its period settings [%]); ``so2_emitted_t`` [t];
+    ``so2_rolling_kg_per_gj`` (the permit's rolling average [kg/GJ]);
+    ``so2_limit_kg_per_gj`` (NaN without a limit).  Straight from the plan's balance."""
+    scn = result.scenario
+    chosen = result.plan.removal is not None
+    if not chosen and scn.allowance_days() is None:
+        return None
+    bal = result.balance
+    out = pd.DataFrame({"date": pd.to_datetime(bal["date"]).to_numpy(),
+                        "removal_pct": bal["removal_pct"].to_numpy(float)})
+    if chosen:
+        lo, hi = scn.scrubber.removal_range
+        out["removal_min_pct"] = float(lo)
+        out["removal_max_pct"] = float(hi)
+    out["setpoint_pct"] = removal_setpoint(scn)
+    for col in ("so2_emitted_t", "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj"):
+        out[col] = bal[col].to_numpy(float)
+    return out
+
+
+__all__ = ["lever_days", "removal_dips", "RemovalLever", "AllowanceTerms", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR",
            "removal_setpoint", "permit_excess_t", "allowance_holding_t", "allowance_costs",
            "baseline_trades", "allowance_frame"]
