@@ -80,6 +80,19 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
         raise ScenarioError(problems, "The rehearsal's options")
 
 
+def at_setpoint(scenario: Scenario) -> Scenario:
+    """The scenario with the scrubber's removal fixed at its setpoint and no allowance
+    market: the futures the rehearsal takes as the truth are sampled at the setpoint, and
+    the weekly loop it carries out books stone and byproducts, not removal or allowances,
+    so a plan that chose another removal would be judged against the wrong stone use."""
+    import dataclasses
+
+    if scenario.scrubber.removal_range is None and scenario.allowances is None:
+        return scenario
+    scrub = dataclasses.replace(scenario.scrubber, removal_min_pct=None, removal_max_pct=None)
+    return dataclasses.replace(scenario, scrubber=scrub, allowances=None)
+
+
 def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: int = 0,
              lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
              solver: str = "highs", disturbances: Disturbances = Disturbances(),
@@ -91,7 +104,7 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
 
     from ..forecast import sample_futures
 
-    scenario = scenario or load_scenario(workbook)
+    scenario = at_setpoint(scenario or load_scenario(workbook))
     _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures)
     t0 = time.perf_counter()
     fut = sample_futures(scenario, futures, seed=seed, keep=tuple(TRUE_FLOWS.values()))
@@ -122,6 +135,8 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     settings = {"workbook": Path(workbook).name, "weeks": weeks, "futures": futures, "seed": seed,
                 "lookahead_days": lookahead_days, "firm_days": firm_days, "time_limit": time_limit,
                 "solver": solver, "plan_futures": plan_futures, "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
+                "removal": "fixed at the setpoint (the truth is sampled at it; a removal range and "
+                           "allowances are left out)",
                 "currency": scenario.plant.currency, **disturbances.as_dict()}
     return RehearsalResult(pd.DataFrame(rows), runs, settings,
                            {"total": round(total, 2), "sampling": round(t_sample, 2),
