@@ -19,6 +19,14 @@ def describe_scenario(s: Scenario) -> str:
         f"Byproduct lanes: {', '.join(x.lane for x in s.buyers) or 'none'}; "
         f"disposal: {', '.join(f'{d.site} ({d.material})' for d in s.disposal) or 'none'}.",
     ]
+    rng = s.scrubber.removal_range
+    removal = f"SO2 removal {s.scrubber.removal_pct:g} % (setpoint)"
+    if rng is not None and rng[1] > rng[0]:
+        removal += f"; the plan chooses it day by day within {rng[0]:g}-{rng[1]:g} %, inside the permit"
+    lines.append(removal + ".")
+    if s.allowances is not None:
+        lines.append(f"SO2 allowances: {s.allowance_opening_t or 0:,.0f} t held at the start; "
+                     f"{len(s.allowances)} dated row(s) of prices.")
     if s.firm_orders:
         lines.append(f"Firm orders: {len(s.firm_orders)}.")
     if s.generation_history is not None:
