@@ -153,3 +153,38 @@ def test_rail_outage_ridden_out_with_a_planned_dip():
     # the fixed setpoint with the same outage costs more (trucks, or the silo under safety)
     fixed = make_plan(load_scenario(workbook_bytes(outage_station(removal=None))), firm_days=15, late_days=0)
     assert fixed.evaluation.total_cost > r.evaluation.total_cost
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_random_ranges_keep_the_permit_and_close_sulfur(seed):
+    """Random ranges, setpoints, permits and averaging periods on a 20-day station with
+    two coals: wherever the highest removal keeps the permit, the plan's rolling average,
+    recomputed here from its chosen removals (emitted = SO2 to the scrubber × (1 − r)),
+    stays under the limit; every chosen removal lies in the range; the SO2 still closes
+    (formed = removed + emitted) at the chosen removals."""
+    rng = np.random.default_rng(seed)
+    lo = float(rng.uniform(90, 96))
+    hi = float(rng.uniform(lo + 0.5, 99.5))
+    days, avg = 20, int(rng.integers(1, 8))
+    s = minimal_sheets(days=days)
+    s["coal_blend"] = [["date", "source", "share_pct"], [START, "Coal A", 60], [START, "Coal B", 40],
+                       [START + dt.timedelta(days=10), "Coal A", 90], [START + dt.timedelta(days=10), "Coal B", 10]]
+    set_kv(s, "scrubber", "removal_pct", round(float(rng.uniform(lo, hi)), 2))
+    set_kv(s, "scrubber", "removal_min_pct", round(lo, 2))
+    set_kv(s, "scrubber", "removal_max_pct", round(hi, 2))
+    set_kv(s, "plant", "so2_limit_avg_days", avg)
+    scn0 = load_scenario(workbook_bytes(s))
+    plain = balance_frame(scn0)
+    rate_at_hi = plain["so2_formed_t"].to_numpy() * (1 - hi / 100) * 1000 / plain["heat_input_gj"].to_numpy()
+    limit = float(rate_at_hi.max() * rng.uniform(1.05, 2.0))
+    set_kv(s, "plant", "so2_limit_kg_per_gj", limit)
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=days)
+    removal = r.plan.removal
+    assert removal is not None and (removal >= round(lo, 2) - 1e-6).all() and (removal <= round(hi, 2) + 1e-6).all()
+    emitted = plain["so2_formed_t"].to_numpy() * (1 - removal / 100)
+    assert r.balance["so2_emitted_t"].to_numpy() == pytest.approx(emitted, rel=1e-9)
+    rolling = trailing_sum(emitted * 1000, avg) / trailing_sum(plain["heat_input_gj"].to_numpy(), avg)
+    assert (rolling <= limit * (1 + 1e-6)).all()
+    b = r.balance
+    assert (b["so2_removed_t"] + b["so2_emitted_t"]).to_numpy() == pytest.approx(b["so2_formed_t"].to_numpy(), rel=1e-9)
