@@ -132,6 +132,11 @@ class PlanResult:
         return out
 
 
+def _penalties(ev: Evaluation) -> float:
+    """The penalty weights of an evaluation [money]: below safety, over capacity, empty."""
+    return sum(ev.costs.get(k, 0.0) for k in ("shortage_penalty", "overflow_penalty", "empty_penalty"))
+
+
 def held_loads(scenario: Scenario, lanes: list[Lane], firm: dict, previous: pd.DataFrame | None,
                firm_days: int) -> dict[str, np.ndarray]:
     """Per lane with whole loads, the loads [-] the previous plan held on each day of this
@@ -288,11 +293,16 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         outcome.solve_seconds = time.perf_counter() - t0
     outcome.status += solver_note
     chosen = outcome.plan
-    if not guard and ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost):
+    dearer = ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost)
+    if dearer and (not guard or _penalties(ev) > _penalties(base_ev) + 1e-6):
         # the outlook weeks, once spread to days (or the silo, replayed exactly), priced
-        # dearer than the warm start: keep the warm start (the baseline)
+        # dearer than the warm start: keep the warm start (the baseline).  A guarded plan
+        # may cost more than the baseline on the median (it buys protection), but not
+        # while it also breaks more of the limits on the median: a time-limited solve on a
+        # loaded machine can end that badly, and then the baseline is the better plan
         chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
-        outcome.status += " (baseline kept: the replayed plan priced dearer)"
+        outcome.status += " (baseline kept: the replayed plan priced dearer"
+        outcome.status += ")" if not guard else " and broke more limits)"
     settled, n_moved = earliest_departures(scenario, plan_bal, lanes, chosen)
     if n_moved:
         ev_s = evaluate(scenario, plan_bal, lanes, settled)
