@@ -76,9 +76,10 @@ EXTRA_COLUMNS = ("expected_cost", "baseline_total_cost", "gap", "breaches", "fut
 #: Statuses of a case that has a plan.
 PLANNED = ("optimal", "feasible")
 #: Movement costs of a plan: the same in every future, the movements being fixed (the mill
-#: rejects' haul at the deterministic balance's rejects).
+#: rejects' haul at the deterministic balance's rejects; the SO2 allowances traded, with
+#: the holding left at the end valued at the deterministic balance's emissions).
 FIXED_COSTS = ("limestone_purchase", "freight", "byproduct_sales", "landfill", "contract_penalty",
-               "mill_rejects_disposal")
+               "mill_rejects_disposal", "allowances")
 
 
 @dataclass(frozen=True)
@@ -184,7 +185,8 @@ def replay_costs(result, flows: dict[str, np.ndarray]) -> ReplayFigures:
     scn, lanes, plan = result.scenario, result.lanes, result.plan
     p = scn.plant
     n = len(scn.dates)
-    fixed = float(sum(result.evaluation.costs[k] for k in FIXED_COSTS))
+    fixed = float(sum(result.evaluation.costs.get(k, 0.0) for k in FIXED_COSTS)
+                  + result.evaluation.end_parts.get("allowances", 0.0))
     n_futures = int(np.shape(next(iter(flows.values())))[0])
     costs = np.full(n_futures, fixed)
     p_below = np.zeros(n)
