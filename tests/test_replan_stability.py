@@ -34,6 +34,9 @@ def test_moving_a_held_train_costs_the_change_cost():
     kept = make_plan(scn, firm_days=10, previous=held, change_cost_per_load=5000.0, late_days=0)
     inbound = kept.movements[kept.movements["direction"] == "in"]
     assert list(inbound["date"]) == [pd.Timestamp("2030-03-29")]
+    assert moved.summary()["stability"] == {"change_cost_per_load": 250.0, "loads_held_in_firm_window": 1,
+                                            "of_them_kept_on_their_day": 0}
+    assert kept.summary()["stability"]["of_them_kept_on_their_day"] == 1
     # the change cost is the model's, not the plan's: the plan kept costs 2,000 more
     assert kept.evaluation.total_cost - moved.evaluation.total_cost == pytest.approx(2000.0)
 

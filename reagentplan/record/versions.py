@@ -258,6 +258,11 @@ def describe_diff(before: StoredPlan, after: StoredPlan, diff: pd.DataFrame, fir
     if known:
         lines.append(f"({known} change(s) came from orders booked, moved or cancelled in the record "
                      "itself: nothing to do for them.)")
+    held = after.summary.get("stability")
+    if held:
+        lines.append(f"The new plan weighed each move or cancellation of a load the plan in force held in its "
+                     f"firm window at {held['change_cost_per_load']:,.0f} per load: "
+                     f"{held['of_them_kept_on_their_day']} of {held['loads_held_in_firm_window']} kept on their day.")
     dt_cost = after.summary.get("total_cost", 0) - before.summary.get("total_cost", 0)
     lines.append(f"Total cost {before.summary.get('total_cost', 0):,.0f} -> "
                  f"{after.summary.get('total_cost', 0):,.0f} ({dt_cost:+,.0f}).")

@@ -21,7 +21,7 @@ from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint)
 from .quality import SiloChemistry
-from .settle import earliest_departures
+from .settle import earliest_departures, off_spec_to_landfill
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
 MAX_SILO_ITERATIONS = 5
@@ -74,6 +74,7 @@ class PlanResult:
     baseline_balance: pd.DataFrame | None = None
     iterations: list[dict] | None = None
     removal_dips: list[dict] | None = None
+    stability: dict | None = None
 
     @property
     def movements(self) -> pd.DataFrame:
@@ -105,6 +106,7 @@ class PlanResult:
             "saving_by_cause": saving_by_cause(self.evaluation, self.baseline_evaluation),
             "caution": CAUTION,
             **self._lever_summary(),
+            **({"stability": self.stability} if self.stability else {}),
         }
 
     def _lever_summary(self) -> dict:
@@ -245,7 +247,12 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     if chem is not None:
         # successive linear solves: linearise the silo at the last plan until its mix settles
         last = outcome.plan
-        best = (ev.total_cost, outcome, plan_bal, ev)
+        # candidates are judged with their off-spec sales landfilled instead (what the
+        # byproduct solve that follows does at worst), not at the quality penalty
+        judged = evaluate(scenario, plan_bal, lanes, off_spec_to_landfill(scenario, plan_bal, lanes,
+                                                                          outcome.plan)).total_cost
+        iterations[0]["judged_cost"] = round(judged, 2)
+        best = (judged, outcome, plan_bal, ev)
         for it in range(2, MAX_SILO_ITERATIONS + 1):
             left = SILO_SHARE * time_limit - (time.perf_counter() - t0)
             if left < 1.0:
@@ -258,11 +265,13 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
                                          - chem.plan_balance(scenario, lanes, last)["limestone_caco3_pct"].to_numpy())))
+            judged = evaluate(scenario, bal_n, lanes, off_spec_to_landfill(scenario, bal_n, lanes,
+                                                                           nxt.plan)).total_cost
             iterations.append({"iteration": it, "total_cost": round(ev_n.total_cost, 2), "gap": nxt.gap,
                                "solve_seconds": round(nxt.solve_seconds, 3),
-                               "max_caco3_change_pct": round(change, 4)})
-            if ev_n.total_cost < best[0] - 1e-6:
-                best = (ev_n.total_cost, nxt, bal_n, ev_n)
+                               "max_caco3_change_pct": round(change, 4), "judged_cost": round(judged, 2)})
+            if judged < best[0] - 1e-6:
+                best = (judged, nxt, bal_n, ev_n)
             last = nxt.plan
             if change < SILO_TOLERANCE_PCT:
                 break
@@ -314,8 +323,14 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
         plan_bal, removal if chosen.removal is None else None)
     dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever, late_days)
+    stability = None
+    if keep:
+        held = sum(float(v.sum()) for v in keep.values())
+        kept = sum(float(np.minimum(v, chosen.quantity[k]).sum()) for k, v in keep.items())
+        stability = {"change_cost_per_load": change_cost_per_load, "loads_held_in_firm_window": int(held),
+                     "of_them_kept_on_their_day": int(kept)}
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days, base_bal, iterations, dips)
+                      firm_days, base_bal, iterations, dips, stability)
 
 
 #: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock
