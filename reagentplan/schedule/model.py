@@ -58,12 +58,6 @@ CHANGE_COST_PER_LOAD = 250.0
 #: keeps five days of use at each arrival).
 LATE_TRAIN_DAYS = 2
 
-#: Share of a byproduct's cheapest landfill cost the model charges for a tonne left in
-#: the store at the horizon's end (the plan's cost, `evaluate`, charges all of it): what
-#: is still in the shed may yet be sold, so landfilling it now is not the same as holding
-#: it, and the tie between the two does not fall to the solver's accident.
-END_HOLD_SHARE = 0.9
-
 SOLVERS = {"highs": mathopt.SolverType.HIGHS, "cp-sat": mathopt.SolverType.CP_SAT,
            "scip": mathopt.SolverType.GSCIP}
 
@@ -516,7 +510,7 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             end_value.append(-end_caco3_value(scenario, chem) * prev_j)
             continue
         value = (-cheapest_delivered_cost(scenario) if store == "limestone"
-                 else END_HOLD_SHARE * cheapest_disposal_cost(scenario, store))
+                 else cheapest_disposal_cost(scenario, store))
         end_value.append(value * prev)
     for k, um, z in quality_rows:
         # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
