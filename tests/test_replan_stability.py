@@ -76,3 +76,21 @@ def test_equal_sales_settle_on_the_earliest_day():
     first = int(np.flatnonzero(settled.quantity[name])[0])
     level = 10 + np.cumsum(bal["gypsum_wet_t"].to_numpy())
     assert level[first] - 25 >= 20 and (first == 0 or level[first - 1] - 25 < 20 + 1e-9)
+
+
+def test_late_train_margin_counts_a_booked_train():
+    """A booked train is as likely to be late as a planned one: with the only train of the
+    tiny station booked for Monday 1 April (day 7) the margin still asks for stock that
+    covers it being two days late: day 8 would end at 700 − 9 × 63.045 = 132.6 t, 17.4 t
+    under the 150 t safety stock, were it late (4,350 at the guard's 250 per tonne), so
+    the plan adds a train on Friday 29 March (9,000 less the 7,000 its stone is worth at
+    the end); the silo is made big enough to take both."""
+    s = tiny(capacity=2500)
+    s["firm_orders"] = [["date", "material", "party", "mode", "loads", "tonnes"],
+                        [dt.date(2030, 4, 1), "limestone", "Quarry Q", "rail", 1, 600]]
+    scn = load_scenario(workbook_bytes(s))
+    without = make_plan(scn, firm_days=10, late_days=0)
+    assert (without.movements["direction"] == "in").sum() == 1  # the booked train alone
+    r = make_plan(scn, firm_days=10, late_days=2)
+    inbound = r.movements[r.movements["direction"] == "in"]
+    assert len(inbound) == 2 and inbound["date"].min() < pd.Timestamp("2030-04-01")

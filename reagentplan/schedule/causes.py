@@ -38,6 +38,10 @@ def explain(scenario: Scenario, lanes: list[Lane], plan: DailyPlan, ev: Evaluati
         elif b["store"] != "limestone" and b["kind"] == "below safety stock":
             b["cause"] = ("room kept for the futures of higher production: the plan ships below "
                           "safety stock rather than risk overflowing in the worse futures")
+        elif b["store"] == "so2_allowances":
+            b["cause"] = ("the SO2 emitted uses more allowances than the station holds, is allocated and may "
+                          "buy within the allowances sheet's monthly limit: raise the removal, buy earlier "
+                          "or in a month with room, or ask the permit's engineer")
         elif b["store"] == "limestone":
             b["cause"] = _limestone_cause(scenario, lanes, plan, a, month_index)
         else:

@@ -19,7 +19,7 @@ the permit only where nothing else can keep it; each run of days over it is stil
 breach (`permit.py`).
 
 Allowances (optional sheet ``allowances``): every tonne emitted uses one allowance; the
-holding (opening + allocations + bought − sold − emitted) may not go below zero (a tonne
+holding (opening + allocations + bought − sold − emitted) may not go below zero (a tonne-day
 short is priced at `ALLOWANCE_SHORT_PENALTY_FACTOR` × the shortage penalty and reported);
 buying and selling are at the sheet's prices within its monthly limits; allowances left at
 the end are valued at the last sell price, so holding and selling compare fairly.

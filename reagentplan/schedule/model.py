@@ -111,7 +111,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
                            scale=scale, fixed=fixed, lever=lever, allow=allow, keep=keep,
-                           change_cost=change_cost, late_days=late_days)
+                           change_cost=change_cost, late_days=late_days, margin_days=firm_days)
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"], first, lever)
     if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
@@ -123,7 +123,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
             second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
                                     plan, totals, progress=progress, label="outlook to days",
                                     chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow,
-                                    late_days=late_days)
+                                    keep=keep, change_cost=change_cost, late_days=late_days,
+                                    margin_days=firm_days)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"], second, lever)
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
@@ -211,13 +212,16 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                    hint: DailyPlan | None, totals: dict | None = None, progress: bool = False,
                    label: str = "solving", chem=None, lin=None, scale: float | None = None,
                    fixed: dict | None = None, lever=None, allow=None, keep: dict | None = None,
-                   change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS) -> dict:
+                   change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS,
+                   margin_days: int | None = None) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums;
     ``lever`` (`lever.RemovalLever`) makes the removal a decision per period, ``allow``
     (`lever.AllowanceTerms`) adds the allowance account."""
     dates = scenario.dates
     n = len(dates)
     P = len(periods)
+    if margin_days is None:
+        margin_days = n
     pid = np.empty(n, dtype=int)
     for k, (a, b) in enumerate(periods):
         pid[a:b + 1] = k
@@ -487,13 +491,14 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             over = m.add_variable(lb=0, ub=most, name=f"over[{store},{k}]")
             m.add_linear_constraint(level - over <= capacity)
             cost_terms.append(pen.overflow_penalty_per_t * w * over)
-            if store == "limestone" and late_days > 0 and periods[k][0] == periods[k][1]:
-                # a train of the last late_days days may not have come yet
+            if (store == "limestone" and late_days > 0 and periods[k][0] == periods[k][1]
+                    and periods[k][0] < margin_days):
+                # a train of the last late_days days (booked or planned) may not have come yet
                 d = periods[k][0]
                 late = sum((tonnes(l, int(pid[t])) for l in ins if l.mode == "rail"
                             for t in range(max(d - late_days + 1, 0), d + 1)
                             if periods[int(pid[t])][0] == periods[int(pid[t])][1]), 0.0)
-                if not isinstance(late, float):
+                if not (isinstance(late, float) and late == 0.0):
                     lg = m.add_variable(lb=0, ub=most, name=f"late[{k}]")
                     m.add_linear_constraint(level - late + lg >= safety)
                     cost_terms.append(GUARD_WEIGHT * pen.shortage_penalty_per_t * lg)
@@ -645,7 +650,7 @@ def _allowance_rows(m, allow, emitted: list, periods, period_month, emitted_most
         m.add_linear_constraint(hold == prev + alloc + buys[k] - sells[k] - emitted[k])
         m.add_linear_constraint(hold + short >= 0)
         terms += [float(allow.buy_price[a]) * buys[k], -float(allow.sell_price[b]) * sells[k],
-                  ALLOWANCE_SHORT_PENALTY_FACTOR * shortage_penalty * short]
+                  ALLOWANCE_SHORT_PENALTY_FACTOR * shortage_penalty * (b - a + 1) * short]
         prev = hold
     terms.append(-float(allow.sell_price[-1]) * prev)
     return (buys, sells), terms

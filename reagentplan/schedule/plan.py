@@ -135,8 +135,10 @@ class PlanResult:
 
 
 def _penalties(ev: Evaluation) -> float:
-    """The penalty weights of an evaluation [money]: below safety, over capacity, empty."""
-    return sum(ev.costs.get(k, 0.0) for k in ("shortage_penalty", "overflow_penalty", "empty_penalty"))
+    """The penalty weights of an evaluation [money]: below safety, over capacity, empty,
+    off-spec shipments, over the permit, without allowances."""
+    return sum(ev.costs.get(k, 0.0) for k in ("shortage_penalty", "overflow_penalty", "empty_penalty",
+                                               "quality_penalty", "permit_penalty", "allowance_penalty"))
 
 
 def held_loads(scenario: Scenario, lanes: list[Lane], firm: dict, previous: pd.DataFrame | None,
@@ -326,7 +328,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     stability = None
     if keep:
         held = sum(float(v.sum()) for v in keep.values())
-        kept = sum(float(np.minimum(v, chosen.quantity[k]).sum()) for k, v in keep.items())
+        kept = sum(float(np.minimum(v, chosen.quantity[k] - chosen.booked.get(k, 0)).sum())
+                   for k, v in keep.items())
         stability = {"change_cost_per_load": change_cost_per_load, "loads_held_in_firm_window": int(held),
                      "of_them_kept_on_their_day": int(kept)}
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
