@@ -82,7 +82,10 @@ def lever_panel(run) -> list:
     removal = summary.get("removal")
     dips = (removal or {}).get("dips") or []
     fig = figures.removal_figure(days, dips, plan.scenario.plant.so2_limit_avg_days)
-    if removal is None:
+    if removal is None and plan.scenario.scrubber.removal_range is not None:
+        words = [html.Li("The plan kept the reorder-point baseline (see the plan's status), which runs "
+                         "the scrubber at its setpoint.")]
+    elif removal is None:
         words = [html.Li("The removal is fixed in this scenario (no range on the scrubber sheet).")]
     elif not dips:
         words = [html.Li(f"The plan never runs the scrubber below its {removal['setpoint_pct']:g} % setpoint; "

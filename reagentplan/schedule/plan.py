@@ -314,7 +314,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         chosen, ev, plan_bal = base, evaluate(scenario, base_bal, lanes, base), base_bal
         outcome.status += " (baseline kept: the replayed plan priced dearer"
         outcome.status += ")" if not guard else " and broke more limits)"
-    settled, n_moved = earliest_departures(scenario, plan_bal, lanes, chosen)
+    settled, n_moved = (chosen, 0) if chosen is base else earliest_departures(scenario, plan_bal, lanes, chosen)
     if n_moved:
         ev_s = evaluate(scenario, plan_bal, lanes, settled)
         if ev_s.total_cost <= ev.total_cost + 1e-6 * max(abs(ev.total_cost), 1.0):
