@@ -21,7 +21,7 @@ from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint)
 from .quality import SiloChemistry
-from .settle import earliest_departures, off_spec_to_landfill
+from .settle import earliest_departures
 
 #: Successive linear solves of the silo's mix at most (`quality.py`).
 MAX_SILO_ITERATIONS = 5
@@ -249,12 +249,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     if chem is not None:
         # successive linear solves: linearise the silo at the last plan until its mix settles
         last = outcome.plan
-        # candidates are judged with their off-spec sales landfilled instead (what the
-        # byproduct solve that follows does at worst), not at the quality penalty
-        judged = evaluate(scenario, plan_bal, lanes, off_spec_to_landfill(scenario, plan_bal, lanes,
-                                                                          outcome.plan)).total_cost
-        iterations[0]["judged_cost"] = round(judged, 2)
-        best = (judged, outcome, plan_bal, ev)
+        best = (ev.total_cost, outcome, plan_bal, ev)
         for it in range(2, MAX_SILO_ITERATIONS + 1):
             left = SILO_SHARE * time_limit - (time.perf_counter() - t0)
             if left < 1.0:
@@ -267,13 +262,11 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
             change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
                                          - chem.plan_balance(scenario, lanes, last)["limestone_caco3_pct"].to_numpy())))
-            judged = evaluate(scenario, bal_n, lanes, off_spec_to_landfill(scenario, bal_n, lanes,
-                                                                           nxt.plan)).total_cost
             iterations.append({"iteration": it, "total_cost": round(ev_n.total_cost, 2), "gap": nxt.gap,
                                "solve_seconds": round(nxt.solve_seconds, 3),
-                               "max_caco3_change_pct": round(change, 4), "judged_cost": round(judged, 2)})
-            if judged < best[0] - 1e-6:
-                best = (judged, nxt, bal_n, ev_n)
+                               "max_caco3_change_pct": round(change, 4)})
+            if ev_n.total_cost < best[0] - 1e-6:
+                best = (ev_n.total_cost, nxt, bal_n, ev_n)
             last = nxt.plan
             if change < SILO_TOLERANCE_PCT:
                 break

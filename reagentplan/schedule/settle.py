@@ -25,7 +25,7 @@ import pandas as pd
 
 from ..scenario import Scenario
 from .evaluate import DailyPlan, off_spec_days, store_levels
-from .lanes import LANDFILL, SALE, Lane, horizon_months
+from .lanes import SALE, Lane, horizon_months
 
 
 def earliest_departures(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
@@ -67,30 +67,4 @@ def earliest_departures(scenario: Scenario, balance: pd.DataFrame, lanes: list[L
     return out, moved
 
 
-def off_spec_to_landfill(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
-                         plan: DailyPlan) -> DailyPlan:
-    """A copy of ``plan`` in which every sale shipped on a day its product breaks the
-    buyer's limits goes instead to the cheapest landfill of that material, the same day
-    (within nothing: a judge's plan, not one to follow).  It prices a candidate of the
-    successive silo solves as the byproduct solve that follows will at worst leave it:
-    that solve re-plans the byproducts at the stone chosen, so a shipment the mixed silo
-    puts off-spec is not a penalty the candidate will pay, only a sale it will lose."""
-    qty = {k: v.copy() for k, v in plan.quantity.items()}
-    for lane in lanes:
-        if lane.kind != SALE:
-            continue
-        bad = off_spec_days(lane, balance) & (qty[lane.name] > 0)
-        if not bad.any():
-            continue
-        dumps = [l for l in lanes if l.kind == LANDFILL and l.material == lane.material]
-        t = np.where(bad, qty[lane.name] * (lane.load_t or 1.0), 0.0)
-        booked = plan.booked.get(lane.name)
-        keep = np.zeros_like(qty[lane.name]) if booked is None else np.minimum(booked, qty[lane.name])
-        qty[lane.name] = np.where(bad, keep, qty[lane.name])
-        if dumps:
-            cheapest = min(dumps, key=lambda l: l.cost_per_t)
-            qty[cheapest.name] = qty[cheapest.name] + t - np.where(bad, keep * (lane.load_t or 1.0), 0.0)
-    return DailyPlan(qty, plan.booked, plan.removal, plan.bought_t, plan.sold_t)
-
-
-__all__ = ["earliest_departures", "off_spec_to_landfill"]
+__all__ = ["earliest_departures"]
