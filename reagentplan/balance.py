@@ -563,7 +563,8 @@ RESPONSE_COLUMNS = ("limestone_t", "caco3_need_t", "gypsum_wet_t", "gypsum_dry_t
                     "so2_emitted_t", "so2_removed_t", "fly_ash_t", "bottom_ash_t")
 
 
-def removal_response(scenario: Scenario) -> pd.DataFrame:
+def removal_response(scenario: Scenario, columns: tuple[str, ...] = RESPONSE_COLUMNS,
+                     caco3_pct=None) -> pd.DataFrame:
     """How the day's balance moves with the scrubber's removal, as affine functions of it.
 
     For each day and each quantity q of `RESPONSE_COLUMNS`:
@@ -583,17 +584,21 @@ def removal_response(scenario: Scenario) -> pd.DataFrame:
     settings): stone tonnes scale with 1 / CaCO3, so a caller with another stone scales
     ``limestone_t`` and its slope (``caco3_need_t`` is independent of the stone).
 
+    ``columns`` are the balance columns to give (any of `BALANCE_COLUMNS`; one that does
+    not move with the removal gets a slope of 0), ``caco3_pct`` [%] a stone per day as
+    `balance_frame` takes it.
+
     Returns
     -------
     DataFrame with ``date``, ``removal_pct`` [%] and, for each quantity, ``q`` [t] and
     ``q_per_pct`` [t / %-point], one row per horizon day.
     """
-    base = balance_frame(scenario)
+    base = balance_frame(scenario, caco3_pct=caco3_pct)
     setpoint = base["removal_pct"].to_numpy(dtype=float)
     other = np.where(setpoint >= 50.0, setpoint - 50.0, setpoint + 50.0)  # inside 0-100
-    moved = balance_frame(scenario, removal_pct=other)
+    moved = balance_frame(scenario, caco3_pct=caco3_pct, removal_pct=other)
     out = pd.DataFrame({"date": base["date"], "removal_pct": setpoint})
-    for q in RESPONSE_COLUMNS:
+    for q in columns:
         at = base[q].to_numpy(dtype=float)
         out[q] = at
         out[f"{q}_per_pct"] = (at - moved[q].to_numpy(dtype=float)) / (setpoint - other)

@@ -5,9 +5,9 @@ When the scrubber sheet gives a range (``removal_min_pct`` < ``removal_max_pct``
 chooses the removal r of each period within it.  Everything the balance makes of the SO2
 that reaches the scrubber is affine in r at a given stone and coal: the SO2 removed is the
 SO2 reaching the scrubber × r, and the limestone (its CaCO3), the gypsum and the SO2
-emitted follow it linearly (the stoichiometry of `reagentplan.balance`).  So two balances,
-at the range's ends, give each day's quantity as ``intercept + slope × r`` exactly, and
-the model stays mixed-integer linear.  Gypsum purity is a ratio and is not affine; the
+emitted follow it linearly (the stoichiometry of `reagentplan.balance`).  So
+`reagentplan.balance.removal_response` (two balances) gives each day's quantity as
+``intercept + slope × r`` exactly, and the model stays mixed-integer linear.  Gypsum purity is a ratio and is not affine; the
 plan judges it at the setpoint and the byproducts are re-planned at the chosen removal
 (exact), as they are at the chosen stone.
 
@@ -90,24 +90,21 @@ class RemovalLever:
     def from_scenario(cls, scenario: Scenario, caco3_pct=None) -> "RemovalLever | None":
         """The lever of a scenario with a removal range of some width, else None (a range
         of one value plans exactly as a fixed removal)."""
-        from ..balance import balance_frame
+        from ..balance import removal_response
 
         rng = scenario.scrubber.removal_range
         if rng is None or rng[1] - rng[0] < 1e-9:
             return None
         lo, hi = float(rng[0]), float(rng[1])
-        n = len(scenario.dates)
-        b_lo = balance_frame(scenario, caco3_pct=caco3_pct, removal_pct=np.full(n, lo))
-        b_hi = balance_frame(scenario, caco3_pct=caco3_pct, removal_pct=np.full(n, hi))
-        slope, icpt = {}, {}
-        for c in AFFINE_COLUMNS:
-            a, b = b_lo[c].to_numpy(float), b_hi[c].to_numpy(float)
-            slope[c] = (b - a) / (hi - lo)
-            icpt[c] = a - slope[c] * lo
+        resp = removal_response(scenario, AFFINE_COLUMNS + ("heat_input_gj", "limestone_caco3_pct"),
+                                caco3_pct=caco3_pct)
+        setpoint = resp["removal_pct"].to_numpy(float)
+        slope = {c: resp[f"{c}_per_pct"].to_numpy(float) for c in AFFINE_COLUMNS}
+        icpt = {c: resp[c].to_numpy(float) - slope[c] * setpoint for c in AFFINE_COLUMNS}
         p = scenario.plant
-        return cls(lo, hi, removal_setpoint(scenario), icpt, slope,
-                   b_lo["heat_input_gj"].to_numpy(float), p.so2_limit_kg_per_gj, int(p.so2_limit_avg_days),
-                   b_lo["limestone_caco3_pct"].to_numpy(float) / 100, p.boiler == "cfb")
+        return cls(lo, hi, setpoint, icpt, slope, resp["heat_input_gj"].to_numpy(float),
+                   p.so2_limit_kg_per_gj, int(p.so2_limit_avg_days),
+                   resp["limestone_caco3_pct"].to_numpy(float) / 100, p.boiler == "cfb")
 
     def chem_affine(self, name: str, chem) -> tuple[np.ndarray, np.ndarray]:
         """(intercept, slope per %-point) per day of a quantity of the silo's chemistry
