@@ -4,7 +4,8 @@ Target (issue 14): 16 weeks x 20 futures; the plan's median realised cost at lea
 of the controllable cost below the reorder-point baseline's under the same disturbances;
 no stockout and no overflow in at least 95 % of futures; nervousness reported; the whole
 rehearsal in a few minutes.  Prints the figures, the cost by cause and where the time
-went.  Usage: python bench/rehearse.py [WEEKS] [FUTURES] [OUT_DIR|-] [GUARD_FUTURES]
+went.  Usage: python bench/rehearse.py [WEEKS] [FUTURES] [OUT_DIR|-] [GUARD_FUTURES] [WORKERS]
+(defaults 16, 20, -, the command's default guard futures, 2 workers)
 """
 
 from __future__ import annotations
@@ -19,24 +20,27 @@ from reagentplan.output import staged_output
 from reagentplan.output.rehearse import write_rehearsal
 from reagentplan.rehearse import rehearse
 from reagentplan.rehearse.metrics import COST_CAUSES
+from reagentplan.rehearse.run import PLAN_FUTURES
 
 
-def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_futures: int = 0) -> None:
+def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_futures: int = PLAN_FUTURES,
+         workers: int = 2) -> None:
     lookahead = 120
     with tempfile.TemporaryDirectory() as tmp:
         wb = build_demo_workbook(Path(tmp) / "demo.xlsx", horizon_days=7 * weeks + lookahead + 7)
         t0 = time.perf_counter()
         res = rehearse(wb, weeks=weeks, futures=futures, seed=14, lookahead_days=lookahead, firm_days=14,
-                       time_limit=20, plan_futures=plan_futures, progress=True)
+                       time_limit=20, plan_futures=plan_futures, progress=True, workers=workers)
         wall = time.perf_counter() - t0
     s = res.summary()
     print(f"rehearsal: demo station, {weeks} weeks x {futures} futures, lookahead {lookahead} d, firm 14 d, "
-          f"{plan_futures} guard futures per weekly plan")
+          f"{plan_futures} guard futures per weekly plan, {workers} workers")
     print(f"wall {wall:.1f} s; " + ", ".join(f"{k} {v:.1f} s" for k, v in res.seconds.items()))
     n_solves = weeks * futures
     plan_s = res.table.loc[res.table["policy"] == "plan", "plan_seconds"].sum()
     base_s = res.table.loc[res.table["policy"] == "baseline", "plan_seconds"].sum()
-    print(f"planning: optimised {plan_s:.1f} s over {n_solves} weekly plans ({plan_s / n_solves:.2f} s each), "
+    print(f"planning (summed over workers): optimised {plan_s:.1f} s over {n_solves} weekly plans "
+          f"({plan_s / n_solves:.2f} s each), "
           f"baseline {base_s:.1f} s ({base_s / n_solves:.2f} s each)")
     print(f"{'cause':<20}{'plan P50':>14}{'baseline P50':>14}{'plan - base':>14}")
     for k in COST_CAUSES:
@@ -65,4 +69,4 @@ def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_future
 if __name__ == "__main__":
     a = sys.argv[1:]
     main(int(a[0]) if a else 16, int(a[1]) if len(a) > 1 else 20, a[2] if len(a) > 2 and a[2] != '-' else None,
-         int(a[3]) if len(a) > 3 else 0)
+         int(a[3]) if len(a) > 3 else PLAN_FUTURES, int(a[4]) if len(a) > 4 else 2)

@@ -339,7 +339,8 @@ def _cmd_rehearse(args) -> int:
     result = rehearse(args.workbook, weeks=args.weeks, futures=args.futures, seed=args.seed,
                       lookahead_days=args.lookahead_days, firm_days=args.firm_days,
                       time_limit=args.time_limit, solver=args.solver, disturbances=dist,
-                      plan_futures=args.plan_futures, progress=True)
+                      plan_futures=args.plan_futures, progress=True,
+                      workers=args.workers or min(os.cpu_count() or 1, 4))
     with staged_output(args.out) as tmp:
         written = write_rehearsal(result, tmp)
     print(describe_rehearsal(result))
@@ -565,8 +566,11 @@ def build_parser() -> argparse.ArgumentParser:
                    help="days each weekly plan covers (default %(default)s)")
     p.add_argument("--firm-days", type=int, default=14,
                    help="days of each weekly plan planned one by one (default %(default)s)")
-    p.add_argument("--plan-futures", type=int, default=0,
-                   help="futures guarding each weekly plan (0 = none; default %(default)s)")
+    p.add_argument("--plan-futures", type=int, default=50,
+                   help="futures guarding each weekly plan, sampled once with a seed of their own "
+                        "and cut to each week (0 = none; default %(default)s)")
+    p.add_argument("--workers", type=int, default=None,
+                   help="processes playing futures at once (default: one per CPU, at most 4)")
     p.add_argument("--time-limit", type=float, default=20.0,
                    help="solver seconds per weekly plan (default %(default)s)")
     _solver_option(p)

@@ -56,11 +56,16 @@ class PlanRun:
 
 def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
              time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
-             progress: bool = False, previous: pd.DataFrame | None = None) -> PlanRun:
+             progress: bool = False, previous: pd.DataFrame | None = None,
+             sampler=None) -> PlanRun:
     """Sample ``futures`` futures (none when 0), plan against them, replay the plan
-    against them (the risk)."""
+    against them (the risk).  ``sampler(scenario)``, when given, returns the futures
+    instead (futures sampled once and cut to the scenario's days, as a rehearsal's
+    weekly plans take them; see `reagentplan.rehearse.guard`)."""
     fut = None
-    if futures > 0:
+    if sampler is not None:
+        fut = sampler(scenario)
+    elif futures > 0:
         from .forecast import sample_futures
 
         fut = sample_futures(scenario, futures, seed=seed, progress=progress, keep=FUTURE_FLOWS)

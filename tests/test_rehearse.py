@@ -125,8 +125,12 @@ def test_same_seed_same_figures(rehearsal):
     world = worlds_from_futures(sample_futures(sc, FUTURES, seed=3, keep=("limestone_t", "gypsum_wet_t",
                                                                          "fly_ash_t", "bottom_ash_t")),
                                 sc.storage)[1]
+    from reagentplan.rehearse.guard import GuardFutures
+    from reagentplan.rehearse.run import PLAN_FUTURES
+
     run = rehearse_policy(path, sc, world, "plan", weeks=WEEKS, disturbances=ROUGH, seed=3,
-                          lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10)
+                          lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10,
+                          guard=GuardFutures.sample(sc, PLAN_FUTURES, 3))
     again = policy_figures(sc, run)
     first = res.table[(res.table["policy"] == "plan") & (res.table["future"] == 1)].iloc[0].to_dict()
     for k, v in again.items():
@@ -168,3 +172,53 @@ def test_cli_writes_files_and_names_bad_sheet(tmp_path, capsys):
     assert meta["settings"]["survey_sd"] == pytest.approx(0.02)
     assert meta["settings"]["partial_chance"] == 0
     assert dt.date.fromisoformat(meta["settings"]["start_date"]) == dt.date(2030, 3, 4)
+
+
+def test_guard_futures_are_cut_and_scaled_to_each_week(tmp_path):
+    """The weekly plans' guard futures: sampled once from a seed that is not the truth's,
+    cut to the week's days, the limestone use scaled to the week's stone.  Limestone
+    needed is the CaCO3 needed over the stone's CaCO3 share (stoichiometry; a
+    conservation identity, no source needed), so stone of 90 % in place of 94 % needs
+    94/90 times the tonnes each day."""
+    from reagentplan.forecast import sample_futures
+    from reagentplan.rehearse.guard import GuardFutures
+    from reagentplan.schedule.plan import guard_margins
+
+    path = write_workbook(_sheets(), tmp_path / "tiny.xlsx")
+    sc = load_scenario(path)
+    guard = GuardFutures.sample(sc, 40, seed=3)
+    truth = sample_futures(sc, 40, seed=3, keep=("limestone_t",))
+    assert not np.allclose(guard.futures.flows["limestone_t"], truth.flows["limestone_t"])
+    assert GuardFutures.sample(sc, 0, seed=3) is None
+
+    import dataclasses
+    week = dataclasses.replace(sc, plant=dataclasses.replace(sc.plant, start_date=sc.plant.start_date
+                                                             + dt.timedelta(days=7), horizon_days=21))
+    cut = guard(week)
+    assert list(cut.dates) == list(pd.date_range(week.plant.start_date, periods=21, freq="D"))
+    for q in ("limestone_t", "gypsum_wet_t", "so2_emitted_t"):
+        assert np.allclose(cut.flows[q], guard.futures.flows[q][:, 7:28], rtol=1e-6), q
+
+    s = _sheets()
+    set_value(s, "scrubber", "limestone_caco3_pct", None, 90)
+    poorer = load_scenario(write_workbook(s, tmp_path / "poorer.xlsx"))
+    cut90 = guard(dataclasses.replace(poorer, plant=week.plant))
+    assert np.allclose(cut90.flows["limestone_t"], cut.flows["limestone_t"] * 94 / 90, rtol=1e-5)
+    # and the plan's margin for the limestone grows with it
+    from reagentplan.balance import balance_frame
+    m = guard_margins(balance_frame(dataclasses.replace(poorer, plant=week.plant)),
+                      {"limestone": cut90.flows["limestone_t"]}, 0.05)["limestone"]
+    m94 = guard_margins(balance_frame(week), {"limestone": cut.flows["limestone_t"]}, 0.05)["limestone"]
+    assert m[-1] > 0 and np.isclose(m[-1], m94[-1] * 94 / 90, rtol=1e-3)
+    with pytest.raises(KeyError, match="not every day"):
+        guard.futures.window(pd.date_range(sc.dates[-1], periods=3, freq="D"))
+
+
+def test_two_workers_play_the_same_rehearsal(tmp_path):
+    """Futures played in two processes give the same rows as played in one."""
+    path = write_workbook(_sheets(), tmp_path / "tiny.xlsx")
+    kw = dict(weeks=1, futures=2, seed=5, lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10,
+              disturbances=ROUGH, plan_futures=20)
+    one = rehearse(path, workers=1, **kw).table.drop(columns="plan_seconds")
+    two = rehearse(path, workers=2, **kw).table.drop(columns="plan_seconds")
+    pd.testing.assert_frame_equal(one, two)

@@ -41,6 +41,8 @@ default "linear").
 
 from __future__ import annotations
 
+import dataclasses
+
 import os
 import sys
 from collections.abc import Sequence
@@ -193,6 +195,24 @@ class Futures:
         names = list(quantities or self.flows)
         return pd.DataFrame({n: np.nanmean(self.flows[n], axis=0, dtype=np.float64)
                              for n in names}, index=self.dates)
+
+    def window(self, dates: pd.DatetimeIndex, scale: dict[str, np.ndarray] | None = None) -> "Futures":
+        """The futures cut to ``dates`` (a run of consecutive days they hold), each
+        quantity named in ``scale`` multiplied day by day by its (len(dates),) factor [-]
+        (a balance of another stone or opening state, say).  Raises `KeyError` for a
+        day they do not hold."""
+        idx = self.dates.get_indexer(pd.DatetimeIndex(dates))
+        if len(idx) == 0 or (idx < 0).any():
+            raise KeyError(f"the futures cover {self.dates[0]:%Y-%m-%d} to {self.dates[-1]:%Y-%m-%d}, "
+                           f"not every day of {pd.Timestamp(dates[0]):%Y-%m-%d} to {pd.Timestamp(dates[-1]):%Y-%m-%d}")
+        scale = scale or {}
+        flows = {}
+        for name, x in self.flows.items():
+            cut = x[:, idx]
+            if name in scale:
+                cut = (cut * np.asarray(scale[name], dtype=cut.dtype)[None, :]).astype(cut.dtype)
+            flows[name] = cut
+        return dataclasses.replace(self, dates=self.dates[idx], flows=flows, basis=self.basis[idx])
 
     def samples(self, quantity: str) -> pd.DataFrame:
         """Every sample of one quantity [its unit]: rows are futures, columns are dates."""

@@ -83,13 +83,14 @@ def _xlsx(frames: dict[str, pd.DataFrame]) -> bytes:
 
 
 def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver,
-                 plan_futures: int = 0, seed: int = 0, previous: pd.DataFrame | None = None):
-    """(movements, lanes, status) of the policy's plan as of ``as_of``; ``previous`` is the
-    plan in force (its firm-window loads cost something to move)."""
+                 guard=None, previous: pd.DataFrame | None = None):
+    """(movements, lanes, status) of the policy's plan as of ``as_of``; ``guard`` gives
+    the futures guarding it (`GuardFutures`, or None for none); ``previous`` is the plan in
+    force (its firm-window loads cost something to move)."""
     if policy == "plan":
         run = run_plan_from_record(workbook, engine, as_of, scenario=scenario, horizon_days=lookahead_days,
-                                   store=False, futures=plan_futures, seed=seed, firm_days=firm_days, time_limit=time_limit,
-                                   solver=solver, previous=previous)
+                                   store=False, futures=0, sampler=guard, firm_days=firm_days,
+                                   time_limit=time_limit, solver=solver, previous=previous)
         return run.plan.movements, run.plan.lanes, run.plan.outcome.status
     _, lanes, _, mv = baseline_from_record(workbook, engine, as_of, scenario=scenario,
                                            horizon_days=lookahead_days, firm_days=firm_days)
@@ -105,13 +106,13 @@ def _stored(mv: pd.DataFrame, start: dt.date, days: int) -> StoredPlan:
 def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, policy: str, *, weeks: int,
                     disturbances: Disturbances, seed: int = 0, lookahead_days: int = 120,
                     firm_days: int = 14, time_limit: float = 20.0, solver: str = "highs",
-                    plan_futures: int = 0, on_week=None) -> PolicyRun:
+                    guard=None, on_week=None) -> PolicyRun:
     """Follow ``policy`` (``plan`` or ``baseline``) for ``weeks`` weeks in ``world``.
 
     The disturbances come from ``numpy.random.default_rng([seed, world.index])``: both
     policies meet the same stream of chances (common random numbers), though what they
-    meet depends on what they book.  ``plan_futures`` futures guard each weekly plan
-    (0: none, the deterministic balance only).  ``on_week(week)`` is called after each
+    meet depends on what they book.  ``guard`` (`GuardFutures`) gives the futures that
+    guard each weekly plan (None: none, the deterministic balance only).  ``on_week(week)`` is called after each
     week."""
     import time
 
@@ -143,8 +144,8 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                 week_end = as_of + dt.timedelta(days=7)
                 t0 = time.perf_counter()
                 mv, lanes, status = _policy_plan(policy, workbook, engine, as_of, scenario, lookahead_days,
-                                                 firm_days, time_limit, solver, plan_futures,
-                                                 seed + 1000 + week, None if prev is None else prev[0])
+                                                 firm_days, time_limit, solver, guard,
+                                                 None if prev is None else prev[0])
                 plan_seconds += time.perf_counter() - t0
                 statuses.append(status)
                 lane_of = {ln.name: ln for ln in lanes}

@@ -12,13 +12,21 @@ from ..errors import Problem, ScenarioError
 from ..scenario import Scenario, load_scenario
 from .loop import POLICIES, rehearse_policy
 from .metrics import COST_CAUSES, months_over_max, policy_figures
+from .guard import GuardFutures
 from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
+
+#: Futures guarding each weekly plan by default: sampled once, cut to each week
+#: (`GuardFutures`); the real loop guards each ``plan --db`` with 500 of its own.
+PLAN_FUTURES = 50
 
 
 @dataclass
 class RehearsalResult:
     """``table``: one row per policy × future (`policy_figures`); ``runs``: the
-    `PolicyRun` of each row; ``settings``: what was rehearsed."""
+    `PolicyRun` of each row; ``settings``: what was rehearsed; ``seconds``: the wall
+    time (``total``), the futures' sampling, and the time every run spent planning and
+    carrying out (summed over the workers, so with several they add to more than the
+    wall time) [s]."""
 
     table: pd.DataFrame
     runs: list = field(repr=False, default_factory=list)
@@ -52,7 +60,7 @@ class RehearsalResult:
 
 
 def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, firm_days: int,
-           d: Disturbances, plan_futures: int = 0) -> None:
+           d: Disturbances, plan_futures: int = 0, workers: int = 1) -> None:
     problems = []
     def bad(option, found, expected):
         problems.append(Problem(None, None, option, f"found {found}", expected))
@@ -64,6 +72,8 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
         bad("--lookahead-days", lookahead_days, "a whole number of days from 7 to 1096")
     if not 0 <= plan_futures <= 10000:
         bad("--plan-futures", plan_futures, "a whole number of futures from 0 to 10000")
+    if not 1 <= workers <= 64:
+        bad("--workers", workers, "a whole number of processes from 1 to 64")
     if not 7 <= firm_days:
         bad("--firm-days", firm_days, "at least 7 days (a week is carried out day by day)")
     need = 7 * weeks + lookahead_days
@@ -93,54 +103,116 @@ def at_setpoint(scenario: Scenario) -> Scenario:
     return dataclasses.replace(scenario, scrubber=scrub, allowances=None)
 
 
+def _play(job: dict):
+    """One policy in one world (a worker's task): its `PolicyRun` and its figures.
+    ``job["queue"]``, when set, receives one item per week played."""
+    import time
+
+    q = job.pop("queue", None)
+    scenario = job["scenario"]
+    t0 = time.perf_counter()
+    run = rehearse_policy(on_week=(lambda _w: q.put(1)) if q is not None else None, **job)
+    return run, policy_figures(scenario, run), time.perf_counter() - t0
+
+
 def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: int = 0,
              lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
              solver: str = "highs", disturbances: Disturbances = Disturbances(),
-             plan_futures: int = 0, policies=POLICIES, progress: bool = False, scenario: Scenario | None = None) -> RehearsalResult:
+             plan_futures: int = PLAN_FUTURES, policies=POLICIES, progress: bool = False,
+             scenario: Scenario | None = None, workers: int = 1) -> RehearsalResult:
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
-    (seeded by ``seed``) for each policy; each weekly plan guarded by ``plan_futures``
-    futures of its own (0: none).  Raises `ScenarioError` for bad settings."""
+    (seeded by ``seed``) for each policy.  Each weekly plan is guarded by
+    ``plan_futures`` futures sampled once from a seed of their own and cut to its days
+    (`GuardFutures`; 0: none).  ``workers`` processes play the futures at once (each
+    future's two policies are independent of the others').  Raises `ScenarioError` for
+    bad settings."""
     import time
 
     from ..forecast import sample_futures
 
     scenario = at_setpoint(scenario or load_scenario(workbook))
-    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures)
+    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures, workers)
     t0 = time.perf_counter()
     fut = sample_futures(scenario, futures, seed=seed, keep=tuple(TRUE_FLOWS.values()))
     worlds = worlds_from_futures(fut, scenario.storage)
+    guard = GuardFutures.sample(scenario, plan_futures, seed)
     t_sample = time.perf_counter() - t0
+    jobs = [dict(workbook=workbook, scenario=scenario, world=w, policy=policy, weeks=weeks,
+                 disturbances=disturbances, seed=seed, lookahead_days=lookahead_days, firm_days=firm_days,
+                 time_limit=time_limit, solver=solver, guard=guard if policy == "plan" else None)
+            for w in worlds for policy in policies]
     bar = None
     if progress:
         from tqdm import tqdm
 
-        bar = tqdm(total=len(worlds) * len(policies) * weeks, unit="week", desc="rehearsal")
-    rows, runs = [], []
+        bar = tqdm(total=len(jobs) * weeks, unit="week", desc="rehearsal")
+    done: dict[int, tuple] = {}
     try:
-        for w in worlds:
-            for policy in policies:
+        if workers <= 1 or len(jobs) == 1:
+            for i, job in enumerate(jobs):
                 if bar is not None:
-                    bar.set_postfix_str(f"future {w.index + 1}/{len(worlds)} {policy}")
-                run = rehearse_policy(workbook, scenario, w, policy, weeks=weeks, disturbances=disturbances,
-                                      seed=seed, lookahead_days=lookahead_days, firm_days=firm_days,
-                                      time_limit=time_limit, solver=solver,
-                                      plan_futures=plan_futures, on_week=(lambda _w: bar.update(1)) if bar is not None else None)
-                runs.append(run)
-                rows.append(policy_figures(scenario, run))
+                    bar.set_postfix_str(f"future {job['world'].index + 1}/{len(worlds)} {job['policy']}")
+                done[i] = _play(dict(job, queue=_BarQueue(bar) if bar is not None else None))
+        else:
+            done = _play_in_processes(jobs, workers, bar)
     finally:
         if bar is not None:
             bar.close()
+    runs = [done[i][0] for i in range(len(jobs))]
+    rows = [done[i][1] for i in range(len(jobs))]
     total = time.perf_counter() - t0
     plan_s = sum(r.plan_seconds for r in runs)
     settings = {"workbook": Path(workbook).name, "weeks": weeks, "futures": futures, "seed": seed,
                 "lookahead_days": lookahead_days, "firm_days": firm_days, "time_limit": time_limit,
-                "solver": solver, "plan_futures": plan_futures, "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
+                "solver": solver, "plan_futures": plan_futures, "workers": workers,
+                "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
                 "removal": "fixed at the setpoint (the truth is sampled at it; a removal range and "
                            "allowances are left out)",
                 "currency": scenario.plant.currency, **disturbances.as_dict()}
     return RehearsalResult(pd.DataFrame(rows), runs, settings,
                            {"total": round(total, 2), "sampling": round(t_sample, 2),
-                            "planning": round(plan_s, 2), "carrying_out_and_record": round(total - t_sample - plan_s, 2)})
+                            "planning": round(plan_s, 2),
+                            "carrying_out_and_record": round(sum(d[2] for d in done.values()) - plan_s, 2)})
+
+
+class _BarQueue:
+    """The in-process stand-in for a worker's queue: a week played moves the bar."""
+
+    def __init__(self, bar):
+        self.bar = bar
+
+    def put(self, n: int) -> None:
+        self.bar.update(n)
+
+
+def _play_in_processes(jobs: list[dict], workers: int, bar) -> dict[int, tuple]:
+    """Play the jobs in ``workers`` fresh processes (spawned: the solver's threads do not
+    survive a fork); the bar moves as the workers report their weeks."""
+    import multiprocessing as mp
+    import queue as queue_mod
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+
+    ctx = mp.get_context("spawn")
+    done: dict[int, tuple] = {}
+    with ctx.Manager() as manager, ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
+        q = manager.Queue() if bar is not None else None
+        pending = {pool.submit(_play, dict(job, queue=q)): i for i, job in enumerate(jobs)}
+        try:
+            while pending:
+                finished, _ = wait(pending, timeout=0.5, return_when=FIRST_COMPLETED)
+                if q is not None:
+                    while True:
+                        try:
+                            bar.update(q.get_nowait())
+                        except queue_mod.Empty:
+                            break
+                for f in finished:
+                    done[pending.pop(f)] = f.result()
+        except BaseException:
+            for f in pending:
+                f.cancel()
+            raise
+    return done
 
 
 __all__ = ["RehearsalResult", "rehearse", "months_over_max"]
