@@ -222,3 +222,47 @@ def test_two_workers_play_the_same_rehearsal(tmp_path):
     one = rehearse(path, workers=1, **kw).table.drop(columns="plan_seconds")
     two = rehearse(path, workers=2, **kw).table.drop(columns="plan_seconds")
     pd.testing.assert_frame_equal(one, two)
+
+
+def test_poorer_stone_is_drawn_in_more_tonnes_and_off_spec_gypsum_refused(tmp_path):
+    """The rehearsal's truth follows the stone really fed.  The only quarry ships 88 %
+    stone into a silo opened at 94 %: the scrubber's CaCO3 need (the world's use at the
+    workbook's 94 %) is met by more tonnes of the mix, CaCO3 is conserved (need = drawn ×
+    the silo's CaCO3; stoichiometry, no source needed), the store's tonnes are conserved,
+    and no gypsum leaves for the 94 %-purity board plant on a day the cake is below it."""
+    from reagentplan.balance import balance_frame
+    from reagentplan.forecast import sample_futures
+
+    s = _sheets()
+    s["suppliers"][0].append("caco3_pct")
+    s["suppliers"][1].append(88)
+    path = write_workbook(s, tmp_path / "poor.xlsx")
+    sc = load_scenario(path)
+    assert balance_frame(sc, caco3_pct=np.full(sc.plant.horizon_days, 88.0))["gypsum_purity_pct"].max() < 94
+    res = rehearse(path, weeks=WEEKS, futures=1, seed=3, lookahead_days=LOOKAHEAD, firm_days=14,
+                   time_limit=10, disturbances=ROUGH, plan_futures=10)
+    use = sample_futures(sc, 1, seed=3, keep=("limestone_t",)).flows["limestone_t"][0].astype(float)
+    refused = 0.0
+    for run in res.runs:
+        d = run.daily
+        lime = d[d["store"] == "limestone"].sort_values("date").reset_index(drop=True)
+        world = use[: len(lime)]
+        need = world * 0.94
+        assert np.allclose((lime["used_t"] + lime["unmet_t"]) * lime["caco3_pct"] / 100, need, rtol=1e-6)
+        arrived = run.moved[run.moved["kind"] == "supply"].groupby("date")["tonnes"].sum()
+        arrived = lime["date"].map(arrived).fillna(0.0).to_numpy()
+        level = sc.storage["limestone"].initial_t + np.cumsum(arrived - lime["used_t"].to_numpy())
+        assert np.allclose(level, lime["level_t"], atol=0.05)
+        if arrived.sum() > 0:
+            after = lime["date"] >= lime.loc[np.argmax(arrived > 0), "date"]
+            assert (lime.loc[after, "caco3_pct"] < 94 - 1e-6).all()
+            assert lime.loc[after, "used_t"].sum() > world[after.to_numpy()].sum()
+        fed = np.full(sc.plant.horizon_days, 94.0)
+        fed[: len(lime)] = lime["caco3_pct"].to_numpy()
+        purity = pd.Series(balance_frame(sc, caco3_pct=fed)["gypsum_purity_pct"].to_numpy()[: len(lime)],
+                           index=lime["date"])
+        board = run.moved[run.moved["party"] == "Board Co"]
+        assert (purity.reindex(pd.to_datetime(board["date"])).to_numpy() >= 94 - 1e-9).all()
+        refused += float(d["refused_t"].sum())
+    assert res.table["stone_received_t"].max() > 0, "a train came, so the silo's stone changed"
+    assert "refused_t" in res.table.columns and np.isclose(res.table["refused_t"].sum(), refused)

@@ -1,11 +1,19 @@
 """One policy against one world, week by week, through a throwaway operations record.
 
+The world's futures are sampled at the workbook's stone.  The stone really fed is the
+well-mixed silo's (`balance.silo_replay`): the world's CaCO3 need is drawn from it, so a
+poorer stone is used in more tonnes, and the gypsum is the world's scaled by the
+deterministic balance at the silo's CaCO3 over that at the workbook's stone, with its
+purity there.  A buyer's laboratory refuses a day's loads that break the buyer's
+limits (`lanes.quality_ok`); they stay in the store.
+
 Each week: plan as of the week's eve from the record (`run_plan_from_record` for the
 optimised plan; `baseline_from_record` for the reorder-point policy, the same record
 path without the solve); book the inbound lines whose order-by day falls in the week;
 carry the week out day by day against the world's true use and production with the
 disturbances (late trains, partial takes; haul-outs as planned but never below the
-store's safety stock); record the week's arrivals, shipments and
+store's safety stock); record the week's arrivals (with the supplier's CaCO3 as the
+delivery's lab result), shipments and
 orders (a late train re-dated once it is known to be late) and the end-of-week survey of
 every store; re-plan as of the week's last day.
 """
@@ -21,18 +29,19 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..balance import balance_frame, silo_replay
 from ..pipeline import baseline_from_record, run_plan_from_record
 from ..record.db import connect, upgrade
 from ..record.importer import record_files
 from ..record.versions import StoredPlan, diff_plans
 from ..scenario import Scenario
-from ..schedule.lanes import LANDFILL, SALE, SUPPLY
+from ..schedule.lanes import LANDFILL, SALE, SUPPLY, quality_ok
 from .truth import Disturbances, World, partial_take, surveyed, train_delay
 
 POLICIES = ("plan", "baseline")
 
 ORDER_COLUMNS = ["order_id", "date", "supplier", "mode", "loads", "tonnes", "status"]
-ARRIVAL_COLUMNS = ["date", "supplier", "mode", "loads", "tonnes", "ticket"]
+ARRIVAL_COLUMNS = ["date", "supplier", "mode", "loads", "tonnes", "ticket", "caco3_pct"]
 SHIPMENT_COLUMNS = ["date", "party", "material", "mode", "loads", "tonnes", "ticket"]
 
 
@@ -44,7 +53,8 @@ class PolicyRun:
     ----------
     daily : one row per day and store: level_t (true, end of day), unmet_t (limestone
         use the empty store could not meet), overflow_t (above capacity, dumped),
-        safety_t, capacity_t [t]
+        safety_t, capacity_t, used_t (limestone drawn), refused_t (loads a buyer's
+        laboratory refused) [t]; caco3_pct (the stone fed, limestone rows) [%]
     moved : realised movements: date, lane, kind, material, party, loads, tonnes [t]
     orders : every order booked: order_id, lane, planned (day the plan wanted it),
         arrival (true day), loads, tonnes, week booked
@@ -140,6 +150,11 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                 facts["orders"] = pd.DataFrame(first, columns=ORDER_COLUMNS)
             record_files(engine, [("week_0.xlsx", _xlsx(facts))], scenario=scenario, today=as_of)
             prev = None
+            ref = balance_frame(scenario)
+            ref_caco3 = ref["limestone_caco3_pct"].to_numpy(float) / 100
+            ref_gypsum = ref["gypsum_wet_t"].to_numpy(float)
+            fed = ref_caco3.copy()
+            silo_caco3 = scenario.scrubber.limestone_caco3_pct / 100
             for week in range(1, weeks + 1):
                 week_end = as_of + dt.timedelta(days=7)
                 t0 = time.perf_counter()
@@ -174,58 +189,85 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                         if o["mode"] == "rail":
                             o["arrival"] = o["planned"] + pd.Timedelta(days=train_delay(rng, disturbances))
                 arrivals, shipments = [], []
-                for day in pd.date_range(plan_start, week_end, freq="D"):
-                    i = world.day(day)
-                    got = [o for o in orders.values() if o["arrival"] == day]
-                    for o in got:
+                week_days = pd.date_range(plan_start, week_end, freq="D")
+                # the limestone store first: a well-mixed silo (`silo_replay`) whose stone
+                # carries the day's CaCO3 need, so poorer stone is drawn in more tonnes
+                came, came_c = np.zeros(len(week_days)), np.zeros((len(week_days), 1))
+                for k, day in enumerate(week_days):
+                    for o in [o for o in orders.values() if o["arrival"] == day]:
                         lane = all_lanes.get(o["lane"]) or lane_of[_supply_lane(lane_of, o)]
                         tonnes = float(o["loads"] * lane.load_t)
+                        c = scenario.stone_caco3_pct(lane.source)
+                        came[k] += tonnes
+                        came_c[k, 0] += tonnes * c / 100
                         arrivals.append({"date": day, "supplier": o["supplier"], "mode": o["mode"],
-                                         "loads": o["loads"], "tonnes": tonnes, "ticket": f"A-{o['order_id']}"})
+                                         "loads": o["loads"], "tonnes": tonnes, "ticket": f"A-{o['order_id']}",
+                                         "caco3_pct": c})
                         moved.append({"date": day, "lane": lane.name, "kind": SUPPLY, "material": "limestone",
                                       "party": o["supplier"], "loads": o["loads"], "tonnes": tonnes})
-                    rows = {}
+                days_i = np.array([world.day(day) for day in week_days])
+                need = world.flows["limestone"][days_i] * ref_caco3[days_i]
+                r = silo_replay(true["limestone"], [silo_caco3], came, came_c, need)
+                silo_caco3 = float(r["frac"][-1, 0])
+                true["limestone"] = float(r["level_t"][-1])
+                fed[days_i] = r["frac"][:, 0]
+                st = scenario.storage["limestone"]
+                for k, day in enumerate(week_days):
+                    daily.append({"date": day, "store": "limestone", "level_t": float(r["level_t"][k]),
+                                  "unmet_t": float(r["unmet_caco3_t"][k] / r["frac"][k, 0]), "overflow_t": 0.0,
+                                  "safety_t": st.safety_t, "capacity_t": st.capacity_t,
+                                  "used_t": float(r["stone_t"][k]), "caco3_pct": float(100 * r["frac"][k, 0]),
+                                  "refused_t": 0.0})
+                # the byproducts of the stone really fed: the day's cake and its purity at
+                # the silo's CaCO3 (the world's gypsum scaled by the balance there)
+                bal = balance_frame(scenario, caco3_pct=100 * fed)
+                gyp_scale = np.divide(bal["gypsum_wet_t"].to_numpy(float), ref_gypsum,
+                                      out=np.ones(len(fed)), where=ref_gypsum > 0)
+                spec_ok = {}
+                for day in week_days:
+                    i = world.day(day)
                     for store in true:
-                        st = scenario.storage[store]
-                        unmet = overflow = 0.0
                         if store == "limestone":
-                            x = true[store] + sum(a["tonnes"] for a in arrivals if a["date"] == day) \
-                                - world.flows[store][i]
-                            if x < 0:
-                                unmet, x = -x, 0.0
-                        else:
-                            x = true[store] + world.flows[store][i]
-                            out = mv[(mv["direction"] == "out") & (mv["date"] == day) & (mv["material"] == store)]
-                            for r in out.sort_values("cost").itertuples(index=False):
-                                lane = lane_of[r.lane]
-                                # a haul-out goes as planned but never below the store's
-                                # safety stock (the heel a coordinator keeps), as the
-                                # reorder-point rule ships only the stock above safety
-                                room = max(x - st.safety_t, 0.0)
-                                if lane.kind == SALE:
-                                    loads = partial_take(rng, int(r.loads), disturbances)
-                                    loads = min(loads, int(np.floor(room / lane.load_t)))
-                                    tonnes = loads * lane.load_t
-                                else:
-                                    loads, tonnes = None, float(min(r.tonnes, room))
-                                if (loads is not None and loads <= 0) or tonnes <= 1e-6:
-                                    continue
-                                x -= tonnes
-                                ticket = f"S-{week}-{len(shipments) + 1:05d}"
-                                shipments.append({"date": day, "party": r.party, "material": store,
-                                                  "mode": lane.mode, "loads": loads, "tonnes": round(tonnes, 3),
-                                                  "ticket": ticket})
-                                moved.append({"date": day, "lane": lane.name, "kind": lane.kind, "material": store,
-                                              "party": r.party, "loads": loads if loads is not None else np.nan,
-                                              "tonnes": round(tonnes, 3)})
-                            if x > st.capacity_t:
-                                overflow, x = x - st.capacity_t, float(st.capacity_t)
-                        true[store] = x
-                        rows[store] = (x, unmet, overflow)
-                    for store, (x, unmet, overflow) in rows.items():
+                            continue
                         st = scenario.storage[store]
-                        daily.append({"date": day, "store": store, "level_t": x, "unmet_t": unmet,
-                                      "overflow_t": overflow, "safety_t": st.safety_t, "capacity_t": st.capacity_t})
+                        overflow = refused = 0.0
+                        made = world.flows[store][i] * (gyp_scale[i] if store == "gypsum" else 1.0)
+                        x = true[store] + made
+                        out = mv[(mv["direction"] == "out") & (mv["date"] == day) & (mv["material"] == store)]
+                        for r in out.sort_values("cost").itertuples(index=False):
+                            lane = lane_of[r.lane]
+                            # a haul-out goes as planned but never below the store's
+                            # safety stock (the heel a coordinator keeps), as the
+                            # reorder-point rule ships only the stock above safety
+                            room = max(x - st.safety_t, 0.0)
+                            if lane.kind == SALE:
+                                if r.lane not in spec_ok:
+                                    spec_ok[r.lane] = quality_ok(lane.source, bal)[0]
+                                loads = partial_take(rng, int(r.loads), disturbances)
+                                if not spec_ok[r.lane][i]:
+                                    # the buyer's laboratory refuses the day's product
+                                    refused += loads * lane.load_t
+                                    continue
+                                loads = min(loads, int(np.floor(room / lane.load_t)))
+                                tonnes = loads * lane.load_t
+                            else:
+                                loads, tonnes = None, float(min(r.tonnes, room))
+                            if (loads is not None and loads <= 0) or tonnes <= 1e-6:
+                                continue
+                            x -= tonnes
+                            ticket = f"S-{week}-{len(shipments) + 1:05d}"
+                            shipments.append({"date": day, "party": r.party, "material": store,
+                                              "mode": lane.mode, "loads": loads, "tonnes": round(tonnes, 3),
+                                              "ticket": ticket})
+                            moved.append({"date": day, "lane": lane.name, "kind": lane.kind, "material": store,
+                                          "party": r.party, "loads": loads if loads is not None else np.nan,
+                                          "tonnes": round(tonnes, 3)})
+                        if x > st.capacity_t:
+                            overflow, x = x - st.capacity_t, float(st.capacity_t)
+                        true[store] = x
+                        daily.append({"date": day, "store": store, "level_t": x, "unmet_t": 0.0,
+                                      "overflow_t": overflow, "safety_t": st.safety_t, "capacity_t": st.capacity_t,
+                                      "used_t": 0.0, "caco3_pct": np.nan, "refused_t": refused})
                 # the week recorded as a coordinator would: orders (a train known late re-dated),
                 # arrivals, shipments, and the survey at the week's end
                 replace = False

@@ -125,6 +125,8 @@ def policy_figures(scenario: Scenario, run) -> dict:
         "stone_missing_t": round(float(lime["unmet_t"].sum()), 1),
         "overflow_days": int(by.loc[by["overflow_t"] > 1e-6, "date"].nunique()),
         "overflow_t": round(float(by["overflow_t"].sum()), 1),
+        "refused_t": round(float(d["refused_t"].sum()), 1) if "refused_t" in d else 0.0,
+        "stone_used_t": round(float(lime["used_t"].sum()), 1) if "used_t" in lime else 0.0,
         "stone_received_t": round(float(kinds.get((SUPPLY, "limestone"), 0.0)), 1),
         "trains": int(run.moved.loc[run.moved["kind"] == SUPPLY].merge(
             pd.DataFrame([(n, ln.mode) for n, ln in run.lanes.items()], columns=["lane", "mode"]),
