@@ -4,8 +4,8 @@ Target (issue 14): 16 weeks x 20 futures; the plan's median realised cost at lea
 of the controllable cost below the reorder-point baseline's under the same disturbances;
 no stockout and no overflow in at least 95 % of futures; nervousness reported; the whole
 rehearsal in a few minutes.  Prints the figures, the cost by cause and where the time
-went.  Usage: python bench/rehearse.py [WEEKS] [FUTURES] [OUT_DIR|-] [GUARD_FUTURES] [WORKERS]
-(defaults 16, 20, -, the command's default guard futures, 2 workers)
+went.  Usage: python bench/rehearse.py [WEEKS] [FUTURES] [OUT_DIR|-] [GUARD_FUTURES] [WORKERS] [RISK_PCT]
+(defaults 16, 20, -, the command's default guard futures, 2 workers, its default risk level)
 """
 
 from __future__ import annotations
@@ -20,21 +20,22 @@ from reagentplan.output import staged_output
 from reagentplan.output.rehearse import write_rehearsal
 from reagentplan.rehearse import rehearse
 from reagentplan.rehearse.metrics import COST_CAUSES
-from reagentplan.rehearse.run import PLAN_FUTURES
+from reagentplan.rehearse.run import PLAN_FUTURES, RISK_LEVEL
 
 
 def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_futures: int = PLAN_FUTURES,
-         workers: int = 2) -> None:
+         workers: int = 2, risk_level: float = RISK_LEVEL) -> None:
     lookahead = 120
     with tempfile.TemporaryDirectory() as tmp:
         wb = build_demo_workbook(Path(tmp) / "demo.xlsx", horizon_days=7 * weeks + lookahead + 7)
         t0 = time.perf_counter()
         res = rehearse(wb, weeks=weeks, futures=futures, seed=14, lookahead_days=lookahead, firm_days=14,
-                       time_limit=20, plan_futures=plan_futures, progress=True, workers=workers)
+                       time_limit=20, plan_futures=plan_futures, progress=True, workers=workers,
+                       risk_level=risk_level)
         wall = time.perf_counter() - t0
     s = res.summary()
     print(f"rehearsal: demo station, {weeks} weeks x {futures} futures, lookahead {lookahead} d, firm 14 d, "
-          f"{plan_futures} guard futures per weekly plan, {workers} workers")
+          f"{plan_futures} guard futures per weekly plan at risk level {risk_level:.1%}, {workers} workers")
     print(f"wall {wall:.1f} s; " + ", ".join(f"{k} {v:.1f} s" for k, v in res.seconds.items()))
     n_solves = weeks * futures
     plan_s = res.table.loc[res.table["policy"] == "plan", "plan_seconds"].sum()
@@ -53,8 +54,13 @@ def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_future
               f"overflow futures {q['overflow_futures']}  days under safety P50 {q['days_under_safety_p50']:.0f}  "
               f"nervousness P50 {q['nervousness_p50']:.0f}  months over max {q['months_over_max']}")
     g = res.table.groupby("policy")[[c for c in res.table.columns if c.startswith(("sold_", "landfilled_"))]
-                                    + ["stone_received_t", "trains"]].median()
+                                    + ["stone_received_t", "stone_used_t", "refused_t", "trains"]].median()
     print(g.T.to_string())
+    over = res.table[res.table["overflow_days"] > 0]
+    if len(over):
+        print("futures with an overflow:")
+        print(over[["policy", "future", "overflow_days"] + [c for c in over.columns if c.startswith("overflow_")
+                                                            and c.endswith("_t")]].to_string(index=False))
     share = s["saving_share_of_controllable"]
     print(f"saving P50 {s['saving_p50']:,.0f} = {share:.1%} of the baseline's controllable cost "
           f"(target >= 10 %: {'met' if share >= 0.10 else 'NOT met'}); "
@@ -69,4 +75,5 @@ def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_future
 if __name__ == "__main__":
     a = sys.argv[1:]
     main(int(a[0]) if a else 16, int(a[1]) if len(a) > 1 else 20, a[2] if len(a) > 2 and a[2] != '-' else None,
-         int(a[3]) if len(a) > 3 else PLAN_FUTURES, int(a[4]) if len(a) > 4 else 2)
+         int(a[3]) if len(a) > 3 else PLAN_FUTURES, int(a[4]) if len(a) > 4 else 2,
+         float(a[5]) / 100 if len(a) > 5 else RISK_LEVEL)

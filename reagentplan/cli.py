@@ -340,7 +340,7 @@ def _cmd_rehearse(args) -> int:
                       lookahead_days=args.lookahead_days, firm_days=args.firm_days,
                       time_limit=args.time_limit, solver=args.solver, disturbances=dist,
                       plan_futures=args.plan_futures, progress=True,
-                      workers=args.workers or min(os.cpu_count() or 1, 4))
+                      workers=args.workers or min(os.cpu_count() or 1, 4), risk_level=args.risk_level / 100)
     with staged_output(args.out) as tmp:
         written = write_rehearsal(result, tmp)
     print(describe_rehearsal(result))
@@ -571,6 +571,9 @@ def build_parser() -> argparse.ArgumentParser:
                         "and cut to each week (0 = none; default %(default)s)")
     p.add_argument("--workers", type=int, default=None,
                    help="processes playing futures at once (default: one per CPU, at most 4)")
+    p.add_argument("--risk-level", type=float, default=5.0, metavar="PCT",
+                   help="accepted chance [%%] of breaking a limit on a day, guarding each weekly plan "
+                        "(default %(default)s)")
     p.add_argument("--time-limit", type=float, default=20.0,
                    help="solver seconds per weekly plan (default %(default)s)")
     _solver_option(p)

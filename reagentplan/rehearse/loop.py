@@ -93,14 +93,15 @@ def _xlsx(frames: dict[str, pd.DataFrame]) -> bytes:
 
 
 def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver,
-                 guard=None, previous: pd.DataFrame | None = None):
+                 guard=None, previous: pd.DataFrame | None = None, risk_level: float = 0.05):
     """(movements, lanes, status) of the policy's plan as of ``as_of``; ``guard`` gives
     the futures guarding it (`GuardFutures`, or None for none); ``previous`` is the plan in
     force (its firm-window loads cost something to move)."""
     if policy == "plan":
         run = run_plan_from_record(workbook, engine, as_of, scenario=scenario, horizon_days=lookahead_days,
                                    store=False, futures=0, sampler=guard, firm_days=firm_days,
-                                   time_limit=time_limit, solver=solver, previous=previous)
+                                   time_limit=time_limit, solver=solver, previous=previous,
+                                   risk_level=risk_level)
         return run.plan.movements, run.plan.lanes, run.plan.outcome.status
     _, lanes, _, mv = baseline_from_record(workbook, engine, as_of, scenario=scenario,
                                            horizon_days=lookahead_days, firm_days=firm_days)
@@ -116,13 +117,14 @@ def _stored(mv: pd.DataFrame, start: dt.date, days: int) -> StoredPlan:
 def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, policy: str, *, weeks: int,
                     disturbances: Disturbances, seed: int = 0, lookahead_days: int = 120,
                     firm_days: int = 14, time_limit: float = 20.0, solver: str = "highs",
-                    guard=None, on_week=None) -> PolicyRun:
+                    guard=None, risk_level: float = 0.05, on_week=None) -> PolicyRun:
     """Follow ``policy`` (``plan`` or ``baseline``) for ``weeks`` weeks in ``world``.
 
     The disturbances come from ``numpy.random.default_rng([seed, world.index])``: both
     policies meet the same stream of chances (common random numbers), though what they
     meet depends on what they book.  ``guard`` (`GuardFutures`) gives the futures that
-    guard each weekly plan (None: none, the deterministic balance only).  ``on_week(week)`` is called after each
+    guard each weekly plan (None: none, the deterministic balance only) at ``risk_level``
+    (the accepted chance of breaking a limit on a day, as `make_plan` takes it).  ``on_week(week)`` is called after each
     week."""
     import time
 
@@ -160,7 +162,7 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                 t0 = time.perf_counter()
                 mv, lanes, status = _policy_plan(policy, workbook, engine, as_of, scenario, lookahead_days,
                                                  firm_days, time_limit, solver, guard,
-                                                 None if prev is None else prev[0])
+                                                 None if prev is None else prev[0], risk_level)
                 plan_seconds += time.perf_counter() - t0
                 statuses.append(status)
                 lane_of = {ln.name: ln for ln in lanes}

@@ -32,8 +32,9 @@ def realised_costs(scenario: Scenario, run) -> dict[str, float]:
     at the overflow penalty; contract_shortfall : tonnes short of a monthly minimum, for
     calendar months wholly inside the rehearsal, at `CONTRACT_PENALTY_PER_T`;
     closing_stock : the stores at the end valued as the plan's end-of-horizon value
-    (limestone credited at the cheapest delivered cost, byproducts charged at the
-    cheapest landfill cost), so a policy cannot look cheap by running its stocks down.
+    (limestone credited at the cheapest delivered cost, per tonne of CaCO3 in it when
+    the suppliers' stone differs; byproducts charged at the cheapest landfill cost), so
+    a policy cannot look cheap by running its stocks down.
     """
     p = scenario.plant
     c = dict.fromkeys(COST_CAUSES, 0.0)
@@ -58,8 +59,17 @@ def realised_costs(scenario: Scenario, run) -> dict[str, float]:
             for month, t in months.items():
                 if _whole_month(month, d["date"]):
                     c["contract_shortfall"] += CONTRACT_PENALTY_PER_T * max(lo - t, 0.0)
-    last = d[d["date"] == d["date"].max()].set_index("store")["level_t"]
-    value = -cheapest_delivered_cost(scenario) * float(last.get("limestone", 0.0))
+    final = d[d["date"] == d["date"].max()].set_index("store")
+    last = final["level_t"]
+    if scenario.quality_coupled and "caco3_pct" in final.columns and "limestone" in final.index:
+        # stone of several qualities: the CaCO3 left is credited, as the plan values it
+        # (`model.end_caco3_value`), so a silo of poorer stone is not worth as much
+        from ..schedule.model import end_caco3_value
+
+        value = -end_caco3_value(scenario, None) * float(last["limestone"]) \
+            * float(final.loc["limestone", "caco3_pct"]) / 100
+    else:
+        value = -cheapest_delivered_cost(scenario) * float(last.get("limestone", 0.0))
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in last.index:
             value += cheapest_disposal_cost(scenario, store) * float(last[store])

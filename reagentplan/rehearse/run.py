@@ -18,6 +18,8 @@ from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
 #: Futures guarding each weekly plan by default: sampled once, cut to each week
 #: (`GuardFutures`); the real loop guards each ``plan --db`` with 500 of its own.
 PLAN_FUTURES = 50
+#: The accepted chance of breaking a limit on a day that each weekly plan is guarded at.
+RISK_LEVEL = 0.05
 
 
 @dataclass
@@ -60,7 +62,7 @@ class RehearsalResult:
 
 
 def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, firm_days: int,
-           d: Disturbances, plan_futures: int = 0, workers: int = 1) -> None:
+           d: Disturbances, plan_futures: int = 0, workers: int = 1, risk_level: float = 0.05) -> None:
     problems = []
     def bad(option, found, expected):
         problems.append(Problem(None, None, option, f"found {found}", expected))
@@ -72,6 +74,8 @@ def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, fi
         bad("--lookahead-days", lookahead_days, "a whole number of days from 7 to 1096")
     if not 0 <= plan_futures <= 10000:
         bad("--plan-futures", plan_futures, "a whole number of futures from 0 to 10000")
+    if not 0 < risk_level < 0.5:
+        bad("--risk-level", f"{100 * risk_level:g} %", "a percentage above 0 and below 50")
     if not 1 <= workers <= 64:
         bad("--workers", workers, "a whole number of processes from 1 to 64")
     if not 7 <= firm_days:
@@ -119,11 +123,12 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
              lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
              solver: str = "highs", disturbances: Disturbances = Disturbances(),
              plan_futures: int = PLAN_FUTURES, policies=POLICIES, progress: bool = False,
-             scenario: Scenario | None = None, workers: int = 1) -> RehearsalResult:
+             scenario: Scenario | None = None, workers: int = 1,
+             risk_level: float = RISK_LEVEL) -> RehearsalResult:
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
     (seeded by ``seed``) for each policy.  Each weekly plan is guarded by
     ``plan_futures`` futures sampled once from a seed of their own and cut to its days
-    (`GuardFutures`; 0: none).  ``workers`` processes play the futures at once (each
+    (`GuardFutures`; 0: none) at ``risk_level``.  ``workers`` processes play the futures at once (each
     future's two policies are independent of the others').  Raises `ScenarioError` for
     bad settings."""
     import time
@@ -131,7 +136,7 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     from ..forecast import sample_futures
 
     scenario = at_setpoint(scenario or load_scenario(workbook))
-    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures, workers)
+    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures, workers, risk_level)
     t0 = time.perf_counter()
     fut = sample_futures(scenario, futures, seed=seed, keep=tuple(TRUE_FLOWS.values()))
     worlds = worlds_from_futures(fut, scenario.storage)
@@ -139,7 +144,8 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     t_sample = time.perf_counter() - t0
     jobs = [dict(workbook=workbook, scenario=scenario, world=w, policy=policy, weeks=weeks,
                  disturbances=disturbances, seed=seed, lookahead_days=lookahead_days, firm_days=firm_days,
-                 time_limit=time_limit, solver=solver, guard=guard if policy == "plan" else None)
+                 time_limit=time_limit, solver=solver, guard=guard if policy == "plan" else None,
+                 risk_level=risk_level)
             for w in worlds for policy in policies]
     bar = None
     if progress:
@@ -164,7 +170,7 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     plan_s = sum(r.plan_seconds for r in runs)
     settings = {"workbook": Path(workbook).name, "weeks": weeks, "futures": futures, "seed": seed,
                 "lookahead_days": lookahead_days, "firm_days": firm_days, "time_limit": time_limit,
-                "solver": solver, "plan_futures": plan_futures, "workers": workers,
+                "solver": solver, "plan_futures": plan_futures, "risk_level": risk_level, "workers": workers,
                 "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
                 "removal": "fixed at the setpoint (the truth is sampled at it; a removal range and "
                            "allowances are left out)",
