@@ -571,7 +571,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "and cut to each week (0 = none; default %(default)s)")
     p.add_argument("--workers", type=int, default=None,
                    help="processes playing futures at once (default: one per CPU, at most 4)")
-    p.add_argument("--risk-level", type=float, default=5.0, metavar="PCT",
+    p.add_argument("--risk-level", type=float, default=1.0, metavar="PCT",
                    help="accepted chance [%%] of breaking a limit on a day, guarding each weekly plan "
                         "(default %(default)s)")
     p.add_argument("--time-limit", type=float, default=20.0,
