@@ -340,7 +340,8 @@ def _cmd_rehearse(args) -> int:
                       lookahead_days=args.lookahead_days, firm_days=args.firm_days,
                       time_limit=args.time_limit, solver=args.solver, disturbances=dist,
                       plan_futures=args.plan_futures, progress=True,
-                      workers=args.workers or min(os.cpu_count() or 1, 4), risk_level=args.risk_level / 100)
+                      workers=min(os.cpu_count() or 1, 4) if args.workers is None else args.workers,
+                      risk_level=args.risk_level / 100)
     with staged_output(args.out) as tmp:
         written = write_rehearsal(result, tmp)
     print(describe_rehearsal(result))

@@ -156,6 +156,11 @@ def test_cli_writes_files_and_names_bad_sheet(tmp_path, capsys):
     assert "option '--weeks'" in err and "option '--late-chance': found 120 %" in err
     assert not out.exists()
     assert main(["rehearse", str(good), "--out", str(out), "--weeks", "1", "--futures", "1",
+                 "--lookahead-days", "21", "--workers", "0", "--risk-level", "60"]) == 2
+    err = capsys.readouterr().err
+    assert "option '--workers': found 0" in err and "option '--risk-level': found 60 %" in err
+    assert not out.exists()
+    assert main(["rehearse", str(good), "--out", str(out), "--weeks", "1", "--futures", "1",
                  "--lookahead-days", "21", "--partial-chance", "0"]) == 0
     table = pd.read_csv(out / "rehearsal.csv")
     assert set(table["policy"]) == {"plan", "baseline"}
@@ -171,6 +176,7 @@ def test_cli_writes_files_and_names_bad_sheet(tmp_path, capsys):
     assert meta["settings"]["late_chance"] == pytest.approx(0.4)
     assert meta["settings"]["survey_sd"] == pytest.approx(0.02)
     assert meta["settings"]["partial_chance"] == 0
+    assert meta["settings"]["risk_level"] == pytest.approx(0.01) and meta["settings"]["plan_futures"] == 50
     assert dt.date.fromisoformat(meta["settings"]["start_date"]) == dt.date(2030, 3, 4)
 
 
