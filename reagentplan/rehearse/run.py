@@ -10,7 +10,7 @@ import pandas as pd
 
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario, load_scenario
-from .loop import POLICIES, rehearse_policy
+from .loop import POLICIES, RISK_LEVEL, rehearse_policy
 from .metrics import COST_CAUSES, months_over_max, policy_figures
 from .guard import GuardFutures
 from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
@@ -18,11 +18,7 @@ from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
 #: Futures guarding each weekly plan by default: sampled once, cut to each week
 #: (`GuardFutures`); the real loop guards each ``plan --db`` with 500 of its own.
 PLAN_FUTURES = 50
-#: The accepted chance of breaking a limit on a day that each weekly plan is guarded at:
-#: 1 %, not a single plan's 5 %, because a rehearsal counts a future clean only when no
-#: day of its weeks breaks a limit (on the demo, 16 weeks x 6 futures: 5 % left an
-#: overflow in 2 of 6 futures, 1 % in none; DEVELOPERS.md, "Rehearsal").
-RISK_LEVEL = 0.01
+
 
 
 @dataclass
