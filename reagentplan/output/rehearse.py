@@ -26,12 +26,17 @@ NOTES = (
     ("cost_under_safety", "tonne-days below safety stock at the shortage penalty"),
     ("cost_overflow", "tonnes above a store's capacity (dumped) at the overflow penalty"),
     ("cost_contract_shortfall", "tonnes short of a monthly minimum, months wholly rehearsed"),
-    ("cost_closing_stock", "stores at the end: limestone credited at the cheapest delivered cost, "
-                           "byproducts charged at the cheapest landfill cost"),
+    ("cost_closing_stock", "stores at the end: limestone credited at the cheapest delivered cost "
+                           "(per tonne of CaCO3 when the suppliers' stone differs), byproducts charged "
+                           "at the cheapest landfill cost"),
     ("days_under_safety", "days the limestone store ended below its safety stock"),
     ("byproduct_days_under_safety", "days a byproduct store ended below its safety stock (a heel kept in the store)"),
     ("nervous_*", "loads added, moved, cancelled or changed inside the firm window between consecutive plans"),
     ("months_over_max", "contract months whose realised tonnes exceed the monthly maximum"),
+    ("stone_received_t / stone_used_t", "limestone delivered / drawn by the scrubber: the silo's mix carries "
+                                        "the CaCO3 need, so poorer stone is drawn in more tonnes [t]"),
+    ("refused_t", "byproduct loads a buyer's laboratory refused, the day's product outside its limits "
+                  "(left in the store) [t]"),
 )
 
 

@@ -234,6 +234,8 @@ def describe_rehearsal(result: RehearsalResult) -> str:
              f"(lookahead {cfg['lookahead_days']} d, firm {cfg['firm_days']} d); late trains "
              f"{cfg['late_chance']:.0%} up to {cfg['late_max_days']} d, partial takes {cfg['partial_chance']:.0%} "
              f"at {cfg['partial_share']:.0%}, survey error {cfg['survey_sd']:.1%}",
+             f"  each weekly plan guarded by {cfg.get('plan_futures', 0)} futures at a "
+             f"{cfg.get('risk_level', 0):.0%} daily risk level; the stone fed follows the silo's mix",
              f"  {'median cost by cause [' + cur + ']':<34}{'plan':>14}{'baseline':>14}"]
     pols = [p for p in POLICIES if p in s]
     for k in COST_CAUSES:
@@ -252,5 +254,7 @@ def describe_rehearsal(result: RehearsalResult) -> str:
         lines.append(f"  The plan came out {abs(s['saving_p50']):,.0f} {cur} {verdict} than the reorder-point "
                      f"rule at the median ({abs(s['saving_share_of_controllable']):.1%} of the rule's "
                      "controllable cost).")
-    lines.append(f"  time: {result.seconds.get('total', 0):.0f} s (planning {result.seconds.get('planning', 0):.0f} s)")
+    workers = cfg.get("workers", 1)
+    lines.append(f"  time: {result.seconds.get('total', 0):.0f} s wall with {workers} worker{'s' if workers > 1 else ''} "
+                 f"(planning {result.seconds.get('planning', 0):.0f} s of worker time)")
     return "\n".join(lines)
