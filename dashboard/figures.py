@@ -154,8 +154,9 @@ def contract_figure(progress: pd.DataFrame, title: str, empty_text: str,
                               p["min_t"].to_numpy(float), 1.0])
         fig.update_yaxes(title_text="t", row=i, col=1, range=[0, 1.15 * top])
     fig.update_layout(template=TEMPLATE, title=title, barmode="overlay",
-                      height=130 + 150 * len(lanes), bargap=0.2, margin=dict(t=60, b=70),
-                      legend=dict(orientation="h", y=-0.03 - 0.12 / len(lanes), yanchor="top",
+                      height=150 + 150 * len(lanes), bargap=0.2, margin=dict(t=60, b=90),
+                      # below the two-line month labels (month, then year), not over them
+                      legend=dict(orientation="h", y=-0.06 - 0.3 / len(lanes), yanchor="top",
                                   x=0, xanchor="left"))
     fig.update_annotations(font=dict(size=12, color=MUTED))
     fig.update_xaxes(dtick="M1", tickformat="%b\n%Y")
@@ -185,7 +186,7 @@ def lane_use_figure(use: pd.DataFrame) -> go.Figure:
                        for r in part.itertuples()], hoverinfo="text"))
     fig.update_layout(template=TEMPLATE, title="Lane use",
                       height=max(260, 120 + 30 * len(use)),
-                      xaxis=dict(title="% of what the lane's calendar allows on its open days",
+                      xaxis=dict(title="% of capacity on open days",
                                  range=[0, 115], ticksuffix=" %"),
                       yaxis=dict(automargin=True), margin=dict(t=56, b=60))
     return fig
