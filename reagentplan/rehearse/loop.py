@@ -161,6 +161,7 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
             ref_caco3 = ref["limestone_caco3_pct"].to_numpy(float) / 100
             ref_gypsum = ref["gypsum_wet_t"].to_numpy(float)
             fed = ref_caco3.copy()
+            coupled = scenario.quality_coupled
             silo_caco3 = scenario.scrubber.limestone_caco3_pct / 100
             for week in range(1, weeks + 1):
                 week_end = as_of + dt.timedelta(days=7)
@@ -204,9 +205,12 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                     for o in [o for o in orders.values() if o["arrival"] == day]:
                         lane = all_lanes.get(o["lane"]) or lane_of[_supply_lane(lane_of, o)]
                         tonnes = float(o["loads"] * lane.load_t)
-                        c = scenario.stone_caco3_pct(lane.source)
+                        # one stone (no supplier gives its own CaCO3): the scrubber sheet's
+                        # value that day, period settings included, and no lab result
+                        c = scenario.stone_caco3_pct(lane.source) if coupled else None
                         came[k] += tonnes
-                        came_c[k, 0] += tonnes * c / 100
+                        if coupled:
+                            came_c[k, 0] += tonnes * c / 100
                         arrivals.append({"date": day, "supplier": o["supplier"], "mode": o["mode"],
                                          "loads": o["loads"], "tonnes": tonnes, "ticket": f"A-{o['order_id']}",
                                          "caco3_pct": c})
@@ -214,8 +218,16 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                                       "party": o["supplier"], "loads": o["loads"], "tonnes": tonnes})
                 days_i = np.array([world.day(day) for day in week_days])
                 need = world.flows["limestone"][days_i] * ref_caco3[days_i]
-                r = silo_replay(true["limestone"], [silo_caco3], came, came_c, need)
-                silo_caco3 = float(r["frac"][-1, 0])
+                if coupled:
+                    r = silo_replay(true["limestone"], [silo_caco3], came, came_c, need)
+                    silo_caco3 = float(r["frac"][-1, 0])
+                else:
+                    # one stone: the silo holds the day's stone, as the balance takes it
+                    # (period settings included), so the world's use is drawn as it is
+                    r = silo_replay(true["limestone"], [1.0], came, came[:, None],
+                                    world.flows["limestone"][days_i])
+                    r["unmet_caco3_t"] = r["unmet_caco3_t"] * ref_caco3[days_i]
+                    r["frac"] = ref_caco3[days_i][:, None]
                 true["limestone"] = float(r["level_t"][-1])
                 fed[days_i] = r["frac"][:, 0]
                 st = scenario.storage["limestone"]
@@ -251,11 +263,11 @@ def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, poli
                                 if r.lane not in spec_ok:
                                     spec_ok[r.lane] = quality_ok(lane.source, bal)[0]
                                 loads = partial_take(rng, int(r.loads), disturbances)
+                                loads = min(loads, int(np.floor(room / lane.load_t)))
                                 if not spec_ok[r.lane][i]:
                                     # the buyer's laboratory refuses the day's product
                                     refused += loads * lane.load_t
                                     continue
-                                loads = min(loads, int(np.floor(room / lane.load_t)))
                                 tonnes = loads * lane.load_t
                             else:
                                 loads, tonnes = None, float(min(r.tonnes, room))

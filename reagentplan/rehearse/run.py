@@ -190,16 +190,25 @@ class _BarQueue:
         self.bar.update(n)
 
 
+def _ignore_interrupt() -> None:
+    """A worker leaves Ctrl-C to the parent, which stops the workers itself."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
 def _play_in_processes(jobs: list[dict], workers: int, bar) -> dict[int, tuple]:
     """Play the jobs in ``workers`` fresh processes (spawned: the solver's threads do not
-    survive a fork); the bar moves as the workers report their weeks."""
+    survive a fork); the bar moves as the workers report their weeks.  On Ctrl-C or a
+    worker's error the workers are stopped at once, not after the jobs already queued."""
     import multiprocessing as mp
     import queue as queue_mod
     from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
     ctx = mp.get_context("spawn")
     done: dict[int, tuple] = {}
-    with ctx.Manager() as manager, ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
+    with ctx.Manager() as manager:
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_ignore_interrupt)
         q = manager.Queue() if bar is not None else None
         pending = {pool.submit(_play, dict(job, queue=q)): i for i, job in enumerate(jobs)}
         try:
@@ -214,9 +223,11 @@ def _play_in_processes(jobs: list[dict], workers: int, bar) -> dict[int, tuple]:
                 for f in finished:
                     done[pending.pop(f)] = f.result()
         except BaseException:
-            for f in pending:
-                f.cancel()
+            for proc in list(getattr(pool, "_processes", {}).values()):
+                proc.terminate()
+            pool.shutdown(wait=False, cancel_futures=True)
             raise
+        pool.shutdown(wait=True)
     return done
 
 
@@ -235,7 +246,7 @@ def describe_rehearsal(result: RehearsalResult) -> str:
              f"{cfg['late_chance']:.0%} up to {cfg['late_max_days']} d, partial takes {cfg['partial_chance']:.0%} "
              f"at {cfg['partial_share']:.0%}, survey error {cfg['survey_sd']:.1%}",
              f"  each weekly plan guarded by {cfg.get('plan_futures', 0)} futures at a "
-             f"{cfg.get('risk_level', 0):.0%} daily risk level; the stone fed follows the silo's mix",
+             f"{cfg.get('risk_level', 0):.1%} daily risk level; the stone fed follows the silo's mix",
              f"  {'median cost by cause [' + cur + ']':<34}{'plan':>14}{'baseline':>14}"]
     pols = [p for p in POLICIES if p in s]
     for k in COST_CAUSES:
