@@ -277,6 +277,23 @@ def test_poorer_stone_is_drawn_in_more_tonnes_and_off_spec_gypsum_refused(tmp_pa
     assert refused > 0
 
 
+def _default_interrupt() -> None:
+    """In the child before it runs: Ctrl-C at its default and not blocked, as a terminal
+    starts a command, whatever the test process inherited (a disposition or mask left by
+    a library earlier in the suite would otherwise make the child deaf to it)."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, [signal.SIGINT])
+
+
+def _signal_status(pid: int) -> str:
+    try:
+        return " ".join(line.strip() for line in open(f"/proc/{pid}/status") if line.startswith(("SigBlk", "SigIgn")))
+    except OSError:
+        return "gone"
+
+
 def test_ctrl_c_stops_the_workers_at_once(tmp_path):
     """A real Ctrl-C (SIGINT to the process group, as a terminal sends it) to
     `reagentplan rehearse --workers 2` half-way: exit 130 within seconds, not after the
@@ -295,7 +312,7 @@ def test_ctrl_c_stops_the_workers_at_once(tmp_path):
     proc = subprocess.Popen([sys.executable, "-m", "reagentplan.cli", "rehearse", str(book), "--out", str(out),
                              "--weeks", "4", "--futures", "6", "--lookahead-days", "35", "--workers", "2"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True,
-                            env={**os.environ, "PYTHONUNBUFFERED": "1"})
+                            env={**os.environ, "PYTHONUNBUFFERED": "1"}, preexec_fn=_default_interrupt)
     seen: list[str] = []
     reader = threading.Thread(target=lambda: seen.extend(iter(lambda: proc.stderr.read(1), "")), daemon=True)
     reader.start()
@@ -305,6 +322,7 @@ def test_ctrl_c_stops_the_workers_at_once(tmp_path):
         import re
 
         if re.search(r"\b([6-9]|[1-3][0-9])/48\b", "".join(seen[-2000:])):
+            status = _signal_status(proc.pid)
             os.killpg(proc.pid, signal.SIGINT)
             sent = time.time()
             break
@@ -314,7 +332,7 @@ def test_ctrl_c_stops_the_workers_at_once(tmp_path):
     reader.join(timeout=10)
     err = "".join(seen)
     assert sent is not None, err[-500:]
-    assert proc.returncode == 130, err[-500:]
+    assert proc.returncode == 130, (status, err[-500:])
     assert time.time() - sent < 20, "the workers were stopped, not left to finish their queue"
     assert "Traceback" not in err and "KeyboardInterrupt" not in err
     assert not out.exists()

@@ -387,6 +387,13 @@ def test_study_on_a_running_scheduler_and_its_winner_is_the_plan_command(study_b
                                                      "storage[gypsum].capacity_t"]
 
 
+def _default_interrupt() -> None:
+    """In the child before it runs: Ctrl-C at its default and not blocked, as a terminal
+    starts a command, whatever the test process inherited."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, [signal.SIGINT])
+
+
 def test_ctrl_c_stops_the_study_and_keeps_the_finished_cases(tmp_path):
     """A real Ctrl-C (SIGINT to the whole process group, as a terminal sends it) to
     `reagentplan study` on its own LocalCluster of 2: exit 130, no traceback from the
@@ -398,7 +405,8 @@ def test_ctrl_c_stops_the_study_and_keeps_the_finished_cases(tmp_path):
                              str(out), "--cluster", "local", "--workers", "2", "--futures", "20",
                              "--vary", f"scrubber.removal_pct={values}"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            start_new_session=True, env={**os.environ, "PYTHONUNBUFFERED": "1"})
+                            start_new_session=True, env={**os.environ, "PYTHONUNBUFFERED": "1"},
+                            preexec_fn=_default_interrupt)
     seen: list[str] = []
     reader = threading.Thread(target=lambda: seen.extend(iter(lambda: proc.stderr.read(1), "")),
                               daemon=True)

@@ -128,7 +128,8 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     (seeded by ``seed``) for each policy.  Each weekly plan is guarded by
     ``plan_futures`` futures sampled once from a seed of their own and cut to its days
     (`GuardFutures`; 0: none) at ``risk_level``.  ``workers`` processes play the futures at once (each
-    future's two policies are independent of the others').  Raises `ScenarioError` for
+    future's two policies are independent of the others'); they are spawned, so a script
+    calling this with ``workers`` > 1 needs the ``if __name__ == "__main__":`` guard.  Raises `ScenarioError` for
     bad settings."""
     import time
 
