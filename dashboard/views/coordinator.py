@@ -76,7 +76,7 @@ def content(run) -> dict:
         ], empty="No haul-outs in the first week.", table_id="haulouts-table"),
         CONTRACTS: figures.contract_figure(
             frames.contract_progress(scn, plan.lanes, totals, kinds=(SUPPLY,)),
-            "Quarry contracts: tonnes per month against the monthly min–max",
+            "Quarry contracts: tonnes per month, min–max",
             "No supplier lanes", colours),
         LANE_USE: figures.lane_use_figure(frames.lane_use(plan.lanes, totals, mv)),
     }
