@@ -11,8 +11,8 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import Scenario
-from ..schedule.evaluate import CONTRACT_PENALTY_PER_T, EMPTY_PENALTY_FACTOR
-from ..schedule.lanes import LANDFILL, SALE, SUPPLY, cheapest_delivered_cost, cheapest_disposal_cost
+from ..schedule.evaluate import CONTRACT_PENALTY_PER_T, EMPTY_PENALTY_FACTOR, limestone_end_value
+from ..schedule.lanes import LANDFILL, SALE, SUPPLY, cheapest_disposal_cost
 
 #: Realised cost causes, in the order they are reported [money].
 COST_CAUSES = ("stone", "freight", "sales", "landfill", "stone_missing", "under_safety", "overflow",
@@ -61,15 +61,9 @@ def realised_costs(scenario: Scenario, run) -> dict[str, float]:
                     c["contract_shortfall"] += CONTRACT_PENALTY_PER_T * max(lo - t, 0.0)
     final = d[d["date"] == d["date"].max()].set_index("store")
     last = final["level_t"]
-    if scenario.quality_coupled and "caco3_pct" in final.columns and "limestone" in final.index:
-        # stone of several qualities: the CaCO3 left is credited, as the plan values it
-        # (`model.end_caco3_value`), so a silo of poorer stone is not worth as much
-        from ..schedule.model import end_caco3_value
-
-        value = -end_caco3_value(scenario, None) * float(last["limestone"]) \
-            * float(final.loc["limestone", "caco3_pct"]) / 100
-    else:
-        value = -cheapest_delivered_cost(scenario) * float(last.get("limestone", 0.0))
+    # as the plan values it: a silo of poorer stone is worth less when qualities differ
+    caco3 = float(final.loc["limestone", "caco3_pct"]) if "limestone" in final.index else 100.0
+    value = limestone_end_value(scenario, float(last.get("limestone", 0.0)), caco3)
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in last.index:
             value += cheapest_disposal_cost(scenario, store) * float(last[store])

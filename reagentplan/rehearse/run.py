@@ -11,14 +11,13 @@ import pandas as pd
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario, load_scenario
 from .loop import POLICIES, RISK_LEVEL, rehearse_policy
-from .metrics import COST_CAUSES, months_over_max, policy_figures
 from .guard import GuardFutures
+from .metrics import COST_CAUSES, months_over_max, policy_figures
 from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
 
 #: Futures guarding each weekly plan by default: sampled once, cut to each week
 #: (`GuardFutures`); the real loop guards each ``plan --db`` with 500 of its own.
 PLAN_FUTURES = 50
-
 
 
 @dataclass
@@ -61,7 +60,7 @@ class RehearsalResult:
 
 
 def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, firm_days: int,
-           d: Disturbances, plan_futures: int = 0, workers: int = 1, risk_level: float = 0.05) -> None:
+           d: Disturbances, plan_futures: int = 0, workers: int = 1, risk_level: float = RISK_LEVEL) -> None:
     problems = []
     def bad(option, found, expected):
         problems.append(Problem(None, None, option, f"found {found}", expected))
@@ -127,10 +126,10 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
     (seeded by ``seed``) for each policy.  Each weekly plan is guarded by
     ``plan_futures`` futures sampled once from a seed of their own and cut to its days
-    (`GuardFutures`; 0: none) at ``risk_level``.  ``workers`` processes play the futures at once (each
-    future's two policies are independent of the others'); they are spawned, so a script
-    calling this with ``workers`` > 1 needs the ``if __name__ == "__main__":`` guard.  Raises `ScenarioError` for
-    bad settings."""
+    (`GuardFutures`; 0: none) at ``risk_level``.  ``workers`` processes play the
+    futures at once (each future's two policies are independent of the others'); they
+    are spawned, so a script calling this with ``workers`` > 1 needs the
+    ``if __name__ == "__main__":`` guard.  Raises `ScenarioError` for bad settings."""
     import time
 
     from ..forecast import sample_futures

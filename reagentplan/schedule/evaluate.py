@@ -203,13 +203,8 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     costs["empty_penalty"] = float(EMPTY_PENALTY_FACTOR * p.shortage_penalty_per_t * unmet.sum())
     for a, b in _runs(unmet > 1e-6):
         breaches.append(_breach("limestone", scenario.dates, a, b, unmet[a:b + 1].sum(), "empty"))
-    if scenario.quality_coupled:
-        from .model import end_caco3_value
-
-        caco3_end = float(balance["limestone_caco3_pct"].iloc[-1]) / 100
-        end_value = -end_caco3_value(scenario, None) * levels["limestone"][-1] * caco3_end
-    else:
-        end_value = -cheapest_delivered_cost(scenario) * levels["limestone"][-1]
+    end_value = limestone_end_value(scenario, levels["limestone"][-1],
+                                    float(balance["limestone_caco3_pct"].iloc[-1]))
     end_parts = {"limestone": float(end_value), "byproducts": 0.0}
     for store in ("gypsum", "fly_ash", "bottom_ash"):
         if store in levels:
@@ -258,6 +253,18 @@ def _permit_and_allowances(scenario: Scenario, balance: pd.DataFrame, plan: Dail
     for a, b in _runs(short > 1e-6):
         breaches.append(_breach("so2_allowances", scenario.dates, a, b, short[a:b + 1].max(),
                                 "SO2 emitted without an allowance"))
+
+
+def limestone_end_value(scenario: Scenario, level_t: float, caco3_pct: float) -> float:
+    """The limestone left at the end as a cost line [money] (negative: a credit): at the
+    cheapest delivered cost per tonne, or, when the suppliers' stone differs, per tonne
+    of the CaCO3 in it (``caco3_pct`` [%], the silo's) at the cheapest delivered cost of
+    a tonne of CaCO3 (`model.end_caco3_value`)."""
+    if scenario.quality_coupled:
+        from .model import end_caco3_value
+
+        return -end_caco3_value(scenario, None) * level_t * caco3_pct / 100
+    return -cheapest_delivered_cost(scenario) * level_t
 
 
 def off_spec_days(lane: Lane, balance: pd.DataFrame) -> np.ndarray:
