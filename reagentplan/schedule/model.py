@@ -36,6 +36,7 @@ from ortools.math_opt.python import mathopt
 from ..scenario import Scenario
 from .evaluate import EMPTY_PENALTY_FACTOR, PRODUCTION, DailyPlan, shortfall_rate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+from .quality import SiloLots
 
 #: Share of the limestone safety stock the quality-coupled model keeps above it [-].
 SILO_SAFETY_MARGIN = 0.03
@@ -87,6 +88,58 @@ class SolveOutcome:
     bound: float
     gap: float
     solve_seconds: float
+    #: True when the wall-clock safety net, not the work limit, ended a solve: a re-run
+    #: may then give another plan
+    clock_cut: bool = False
+    #: branch-and-bound nodes of the (first) solve
+    nodes: int = 0
+    #: the plan's price where a caller priced it (`plan._plan_the_silo`) [money]
+    price: float = float("nan")
+
+
+#: The seed every solver gets, so a re-run takes the same path through the search.
+RANDOM_SEED = 20261203
+
+
+@dataclass(frozen=True)
+class WorkLimits:
+    """Deterministic work a solve may do: branch-and-bound nodes [-] of the plan's solves, of
+    the silo relaxation that gives the bound, and of the daily placement of the outlook
+    weeks, and the placement's relative gap [-].
+    Unlike a time limit, the same work gives the same plan on a quiet or a loaded machine
+    (one thread, a fixed seed)."""
+
+    nodes: int = 1000
+    bound_nodes: int = 100
+    placement_nodes: int = 200
+    placement_gap: float = 1e-4
+
+
+def solve_parameters(solver: str, time_limit: float, gap: float, scale: float | None,
+                     node_limit: int | None) -> "mathopt.SolveParameters":
+    """The solver's parameters: relative gap, absolute gap from the plan's money scale, one
+    thread, a fixed seed, a node limit (the deterministic bound of the search) and the wall
+    clock as a safety net only."""
+    params = mathopt.SolveParameters(time_limit=dt.timedelta(seconds=max(time_limit, 1.0)),
+                                     relative_gap_tolerance=gap, random_seed=RANDOM_SEED)
+    if node_limit and solver != "cp-sat":
+        params.node_limit = int(node_limit)
+    if solver == "highs":
+        # MathOpt refuses `threads` for HiGHS; its own options say one thread, no parallel
+        params.highs.string_options["parallel"] = "off"
+        params.highs.int_options["threads"] = 1
+    else:
+        params.threads = 1
+    if scale:
+        # the gap is relative to the plan's whole cost (with its constants), which solvers
+        # that drop the objective's offset cannot see: give it as an absolute gap too
+        params.absolute_gap_tolerance = 0.5 * gap * abs(scale)
+    if solver == "cp-sat":
+        params.cp_sat.mip_max_bound = 1e9
+        if node_limit is not None:
+            # CP-SAT's own deterministic clock, about a second of work per unit
+            params.cp_sat.max_deterministic_time = max(node_limit / 50.0, 5.0)
+    return params
 
 
 def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
@@ -96,7 +149,9 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                progress: bool = False, chem=None, around: DailyPlan | None = None,
                scale: float | None = None, fixed: dict | None = None,
                to_days: bool = True, lever=None, allow=None, keep: dict | None = None,
-               change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS) -> SolveOutcome:
+               change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS,
+               work: "WorkLimits | None" = None, silo_lots: bool = False, trust: tuple | None = None,
+               limestone_end_per_t: float | None = None) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -105,13 +160,16 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     t0 = time.perf_counter()
     periods = build_periods(scenario.dates, firm_days)
     lin = None
-    if chem is not None:
+    if chem is not None and not silo_lots:
         lin = chem.linearisation(lanes, around if around is not None else hint, periods,
                                  _silo_floor(scenario))
     first = _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_limit, gap,
                            hint, progress=progress, label=f"plan ({solver})", chem=chem, lin=lin,
                            scale=scale, fixed=fixed, lever=lever, allow=allow, keep=keep,
-                           change_cost=change_cost, late_days=late_days, margin_days=firm_days)
+                           change_cost=change_cost, late_days=late_days, margin_days=firm_days,
+                           node_limit=work.nodes, silo_lots=silo_lots, trust=trust,
+                           limestone_end_per_t=limestone_end_per_t)
+    clock_cut = first["clock_cut"]
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first["qty"], first, lever)
     if len(periods) < n and to_days:
         daily = [(d, d) for d in range(n)]
@@ -119,17 +177,19 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                               if b > a] for lane in lanes}
         left = max(time_limit - (time.perf_counter() - t0), 5.0)
         try:
-            lin2 = None if chem is None else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
-            second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, 1e-6,
+            lin2 = None if chem is None or silo_lots else chem.linearisation(lanes, plan, daily, _silo_floor(scenario))
+            second = _solve_periods(scenario, balance, lanes, firm, guard, daily, solver, left, work.placement_gap,
                                     plan, totals, progress=progress, label="outlook to days",
-                                    chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow,
+                                    chem=chem, lin=lin2, fixed=fixed, lever=lever, allow=allow, silo_lots=silo_lots,
                                     keep=keep, change_cost=change_cost, late_days=late_days,
-                                    margin_days=firm_days)
+                                    margin_days=firm_days, node_limit=work.placement_nodes,
+                                    limestone_end_per_t=limestone_end_per_t)
             plan = spread_to_days(scenario, balance, lanes, firm, daily, second["qty"], second, lever)
+            clock_cut = clock_cut or second["clock_cut"]
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
     return SolveOutcome(plan, solver, first["status"], first["objective"], first["bound"],
-                        first["gap"], time.perf_counter() - t0)
+                        first["gap"], time.perf_counter() - t0, clock_cut, first["nodes"])
 
 
 def _silo_floor(scenario: Scenario) -> float:
@@ -213,7 +273,9 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                    label: str = "solving", chem=None, lin=None, scale: float | None = None,
                    fixed: dict | None = None, lever=None, allow=None, keep: dict | None = None,
                    change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS,
-                   margin_days: int | None = None) -> dict:
+                   margin_days: int | None = None, node_limit: int | None = None,
+                   silo_lots: bool = False, trust: tuple | None = None,
+                   limestone_end_per_t: float | None = None) -> dict:
     """Build and solve the model over ``periods``; ``totals`` fixes outlook-week sums;
     ``lever`` (`lever.RemovalLever`) makes the removal a decision per period, ``allow``
     (`lever.AllowanceTerms`) adds the allowance account."""
@@ -284,6 +346,15 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
             for k, v in enumerate(x[lane.name]):
                 if v is not None:
                     v.lower_bound = v.upper_bound = float(max(q[k], 0.0))
+        if trust is not None and lane.kind == SUPPLY and lane.load_t and not (fixed and lane.name in fixed):
+            # the trust region of the successive silo solves: loads per period within
+            # `radius` of the incumbent's
+            t_plan, radius = trust
+            q = per_period(np.asarray(t_plan.quantity[lane.name], float) - f_loads)
+            for k, v in enumerate(x[lane.name]):
+                if v is not None:
+                    v.lower_bound = float(max(q[k] - radius, 0.0))
+                    v.upper_bound = float(max(min(q[k] + radius, v.upper_bound), v.lower_bound))
         cost_terms += [unit_cost * v for v in x[lane.name] if v is not None]
         if keep and lane.name in keep and lane.load_t:
             # loads the previous plan held on these days (not booked): moving or
@@ -306,7 +377,7 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                 continue
             # one decision per buyer and month: ship it, and keep the silo's stone good
             # enough in every period it is shipped, or not
-            u_max = chem.u_max(limit)
+            u_max = chem.u_max(limit, margin=not silo_lots)
             z_month = {}
             for k, v in enumerate(x[lane.name]):
                 if v is None:
@@ -446,20 +517,28 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         prev = round(st.initial_t) if solver == "cp-sat" else st.initial_t
         margin = 3.0 if solver == "cp-sat" else 0.0  # room for the rounding to whole tonnes
         safety, capacity = st.safety_t + margin, st.capacity_t - margin
-        if chem is not None and store == "limestone":
+        if chem is not None and store == "limestone" and not silo_lots:
             # room for the fixed ratio of inerts drawn (quality.py): the replayed silo may
             # draw a little more stone than the model did
             safety += SILO_SAFETY_MARGIN * st.safety_t
         if chem is not None and store == "limestone":
             need_terms = column("need", chem.need)
             need_most = column_most("need", chem.need)
-            u_lin, j_lin = lin
+            if silo_lots:
+                lots = SiloLots(m, chem, lanes, st.initial_t, most)
+            else:
+                u_lin, j_lin = lin
             prev_j = st.initial_t * chem.initial_caco3
             silo_inerts.clear()
         for k in range(P):
             level = m.add_variable(lb=0, ub=most, name=f"I[{store},{k}]")
             moved = sum((tonnes(l, k) for l in ins), 0.0) - sum((tonnes(l, k) for l in outs), 0.0)
-            if store == "limestone" and chem is not None:
+            if store == "limestone" and chem is not None and silo_lots:
+                unmet = m.add_variable(lb=0, ub=max(float(need_most.sum()), 1.0), name=f"unmet[{k}]")
+                inerts = lots.period(k, level, {l.name: tonnes(l, k) for l in ins}, need_terms[k], unmet)
+                cost_terms.append(EMPTY_PENALTY_FACTOR * pen.shortage_penalty_per_t * chem.u_lo * unmet)
+                silo_inerts.append(inerts)
+            elif store == "limestone" and chem is not None:
                 # the well-mixed silo: tonnes I and CaCO3 J after the period's deliveries;
                 # the CaCO3 drawn is the need, the inerts drawn with it need × (I' − J')/J',
                 # with that ratio fixed at the last plan's replayed silo (Haverly's recursion)
@@ -512,12 +591,17 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
                     cost_terms.append(GUARD_WEIGHT * pen.overflow_penalty_per_t * w * gs)
             prev = level
         if store == "limestone" and chem is not None:
-            end_value.append(-end_caco3_value(scenario, chem) * prev_j)
+            end_value.append(-end_caco3_value(scenario, chem) * (lots.caco3_left() if silo_lots else prev_j))
             continue
-        value = (-cheapest_delivered_cost(scenario) if store == "limestone"
-                 else cheapest_disposal_cost(scenario, store))
+        if store == "limestone":
+            value = -(cheapest_delivered_cost(scenario) if limestone_end_per_t is None else limestone_end_per_t)
+        else:
+            value = cheapest_disposal_cost(scenario, store)
         end_value.append(value * prev)
     for k, um, z in quality_rows:
+        if silo_lots:
+            lots.purity_row(k, um, z, periods[k][0] == periods[k][1])
+            continue
         # a gypsum sale in period k needs stone per CaCO3 in the silo, I'/J', at most u_max
         # (the purity limit): I' − u_max J' ≤ 0, exact in the silo's own tonnes
         i_after, j_after, most_t, i_before, j_before = silo_after[k]
@@ -543,14 +627,13 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
     m.minimize(sum(cost_terms, 0.0) + sum(end_value, 0.0) + float(booked))
 
     # ---- solve
-    params = mathopt.SolveParameters(time_limit=dt.timedelta(seconds=time_limit),
-                                     relative_gap_tolerance=gap, threads=2 if solver != "highs" else None)
-    if scale:
-        # the gap is relative to the plan's whole cost (with its constants), which solvers
-        # that drop the objective's offset cannot see: give it as an absolute gap too
-        params.absolute_gap_tolerance = 0.5 * gap * abs(scale)
-    if solver == "cp-sat":
-        params.cp_sat.mip_max_bound = 1e9
+    params = solve_parameters(solver, time_limit, gap, scale, node_limit)
+    if node_limit == 0:
+        # no search at all: the linear relaxation (whole loads and yes/no decisions
+        # relaxed), whose optimum bounds the model's
+        for v in m.variables():
+            if v.integer:
+                v.integer = False
     model_params = None
     if hint is not None:
         values = {}
@@ -573,6 +656,8 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         raise RuntimeError(f"{solver} found no plan in {time_limit:g} s ({result.termination.reason.name})")
     obj = result.objective_value()
     bound = result.termination.objective_bounds.dual_bound
+    if node_limit == 0 and result.termination.reason == mathopt.TerminationReason.OPTIMAL:
+        bound = obj  # the linear relaxation's optimum
     gap_ = abs(obj - bound) / max(abs(obj), 1.0) if np.isfinite(bound) else float("nan")
     values = result.variable_values()
     qty = {}
@@ -581,8 +666,11 @@ def _solve_periods(scenario, balance, lanes, firm, guard, periods, solver, time_
         if lane.load_t:
             per = np.rint(per).astype(int)
         qty[lane.name] = per
+    clock_cut = (result.termination.reason != mathopt.TerminationReason.OPTIMAL
+                 and result.termination.limit == mathopt.Limit.TIME)
     out = {"qty": qty, "status": result.termination.reason.name.lower(), "objective": obj,
-           "bound": bound, "gap": gap_, "removal": None, "bought": None, "sold": None}
+           "bound": bound, "gap": gap_, "removal": None, "bought": None, "sold": None,
+           "clock_cut": bool(clock_cut), "nodes": int(result.solve_stats.node_count)}
     if r_var is not None:
         out["removal"] = np.array([values[v] for v in r_var])
     if trades is not None:

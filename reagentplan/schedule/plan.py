@@ -4,7 +4,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -16,23 +16,23 @@ from .baseline import baseline_plan
 from .causes import explain
 from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
-from .model import CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, solve_plan
+from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLimits, end_caco3_value,
+                    solve_plan)
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint)
 from .quality import SiloChemistry
 from .settle import earliest_departures
 
-#: Successive linear solves of the silo's mix at most (`quality.py`).
-MAX_SILO_ITERATIONS = 5
-#: Share of the time limit the successive silo solves may use; the rest is for the exact
-#: byproduct solve at the chosen stone.
-SILO_SHARE = 0.8
-#: The mix has settled when no day's CaCO3 moves more than this [%-points] between solves.
+#: Trust-region steps of the successive silo solves at most, after the relaxation.
+MAX_SILO_STEPS = 4
+#: First trust region of the successive silo solves: loads per lane and period that a
+#: step may move from the incumbent; halved after a step that does not improve.
+TRUST_RADIUS = 2
+#: The mix has settled when no day's CaCO3 moves more than this [%-points] between the
+#: incumbent and an improving step.
 SILO_TOLERANCE_PCT = 0.05
-#: Share of the time limit kept back for what follows the last solve (the exact replays,
-#: the evaluation, the breaches), so the whole plan fits in the time the user gave.
-WALL_RESERVE = 0.05
+
 
 DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
 
@@ -60,6 +60,31 @@ def guard_margins(balance: pd.DataFrame, flows: dict[str, np.ndarray] | None,
 
 
 @dataclass
+class SiloReport:
+    """How the stone plan was found: the relaxation's bound [money], the whole plan's gap
+    against it [-], whether the successive solves settled and the last CaCO3 change
+    [%-points] between the incumbent and the step tried."""
+
+    bound: float
+    objective: float
+    gap: float
+    settled: bool
+    why: str
+    max_caco3_change_pct: float | None
+    steps: int
+
+    def as_dict(self) -> dict:
+        return {"method": "silo relaxation bound, then trust-region successive linear solves with exact replay",
+                "bound": round(self.bound, 2) if np.isfinite(self.bound) else None,
+                "objective": round(self.objective, 2),
+                "gap": round(self.gap, 6) if np.isfinite(self.gap) else None,
+                "settled": self.settled, "why": self.why,
+                "max_caco3_change_pct": None if self.max_caco3_change_pct is None
+                else round(self.max_caco3_change_pct, 4),
+                "steps": self.steps}
+
+
+@dataclass
 class PlanResult:
     scenario: Scenario
     balance: pd.DataFrame
@@ -75,6 +100,7 @@ class PlanResult:
     iterations: list[dict] | None = None
     removal_dips: list[dict] | None = None
     stability: dict | None = None
+    silo: SiloReport | None = None
 
     @property
     def movements(self) -> pd.DataFrame:
@@ -92,6 +118,8 @@ class PlanResult:
             "gap": round(o.gap, 6) if np.isfinite(o.gap) else None,
             "gap_scope": gap_scope(self.scenario, self.iterations),
             "solve_seconds": round(o.solve_seconds, 3),
+            "clock_cut": bool(o.clock_cut),
+            **({"silo": self.silo.as_dict()} if self.silo is not None else {}),
             "total_cost": round(self.evaluation.total_cost, 2),
             "baseline_total_cost": round(self.baseline_evaluation.total_cost, 2),
             "costs": {k: round(v, 2) for k, v in self.evaluation.costs.items()},
@@ -167,17 +195,134 @@ def held_loads(scenario: Scenario, lanes: list[Lane], firm: dict, previous: pd.D
     return out
 
 
-def gap_scope(scenario: Scenario, iterations: list[dict] | None) -> str:
-    """What the reported gap proves, in words: the whole model's optimum, or (stone of
-    several qualities) only the byproduct plan at the stone the successive solves chose."""
+def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, common, net):
+    """The stone plan of a silo fed by quarries of different CaCO3, and its byproducts.
+
+    1. The relaxation (`quality.SiloLots`: each stone a lot of its own, any blend fed) is
+       solved with a small node budget: its dual bound is a lower bound on every
+       well-mixed plan.  The reorder-point baseline's stone is the first incumbent.
+    2. A candidate stone plan is priced exactly: the silo replayed well mixed
+       (`SiloChemistry.plan_balance`), the byproducts planned again against the gypsum it
+       really makes (lanes closed on the days it fails a buyer's purity), the limestone
+       left valued by its CaCO3, and the plan priced by `evaluate` (the cost the outputs
+       show).  That solve's objective is a feasible plan's, so (objective − bound) /
+       objective is a gap that covers the whole plan, whichever candidate is kept.
+    3. Successive linear solves (Haverly's recursion: the silo linearised at the last
+       accepted plan's exact replay), made monotone: a step is taken only when its exact
+       price is lower; after a step that is not, the next is solved within a trust region
+       around the incumbent (each lane's loads per period within a radius), halved each
+       time, so the price never rises and the search ends: settled when a step leaves
+       every day's CaCO3 within `SILO_TOLERANCE_PCT` of the mix it was linearised at (a
+       fixed point of the recursion), when no step within one load improves, or when the
+       gap is within the solver's tolerance.
+
+    References
+    ----------
+    Zhang, J., Kim, N.-H. and Lasdon, L. (1985), "An improved successive linear programming
+    algorithm", Management Science 31(10):1312-1331 (steps accepted on the true merit
+    function, trust region shrunk otherwise).
+    Audet, C. et al. (2004), Management Science 50(6):761-776 (the pooling relaxation).
+    """
+    gap_target = max(common["gap"], 1e-9)
+    supply = [l for l in lanes if l.kind == SUPPLY]
+    t_start = time.perf_counter()
+
+    def exact(stone_plan, to_days=False):
+        """The byproducts re-planned at the silo a stone plan makes: (outcome, balance)."""
+        bal = chem.plan_balance(scenario, lanes, stone_plan)
+        lanes_x = build_lanes(scenario, bal, exact_quality=True)
+        fixed = {l.name: stone_plan.quantity[l.name] for l in supply}
+        end_c = float(bal["limestone_caco3_pct"].to_numpy(float)[-1]) / 100
+        pol = solve_plan(scenario, bal, lanes_x, firm, guard, time_limit=net(), hint=stone_plan, fixed=fixed,
+                         to_days=to_days, limestone_end_per_t=end_caco3_value(scenario, chem) * end_c,
+                         **{**common, "firm_days": max(common["firm_days"], 1)})
+        pol.plan.removal = stone_plan.removal
+        pol.price = evaluate(scenario, bal, lanes, pol.plan).total_cost
+        return pol, bal
+
+    def caco3(p) -> np.ndarray:
+        return chem.replay(lanes, p)["frac"][:, 0]
+
+    relax = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), hint=base, chem=chem,
+                       to_days=False, lever=lever, silo_lots=True,
+                       **{**common, "work": replace(common["work"], nodes=common["work"].bound_nodes)})
+    bound = relax.bound
+    clock = relax.clock_cut
+    iterations = [{"iteration": "relaxation (each stone a lot)", "total_cost": None, "gap": relax.gap,
+                   "solve_seconds": round(relax.solve_seconds, 3), "max_caco3_change_pct": None,
+                   "bound": round(bound, 2) if np.isfinite(bound) else None}]
+
+    def whole_gap(obj: float) -> float:
+        return (obj - bound) / max(abs(obj), 1.0) if np.isfinite(bound) else float("inf")
+
+    pol, _ = exact(base)
+    best = (pol, base)
+    clock = clock or pol.clock_cut
+    iterations.append({"iteration": "baseline's stone, byproducts exact", "objective": round(pol.objective, 2),
+                       "total_cost": round(pol.price, 2),
+                       "gap": pol.gap, "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": None})
+    point, radius, steps, change = base, None, 0, None
+    settled, why = False, "the step limit was reached"
+    while steps < MAX_SILO_STEPS:
+        if whole_gap(best[0].objective) <= gap_target:
+            settled, why = True, "within the solver's gap of the relaxation's bound"
+            break
+        steps += 1
+        trust = None if radius is None else (best[1], radius)
+        try:
+            step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), hint=best[1], chem=chem,
+                              around=point, to_days=False, lever=lever, trust=trust, **common)
+        except RuntimeError:
+            break
+        clock = clock or step.clock_cut
+        change = float(np.max(np.abs(caco3(step.plan) - caco3(point)))) * 100
+        pol, _ = exact(step.plan)
+        clock = clock or pol.clock_cut
+        better = pol.price < best[0].price - 1e-6 * max(abs(best[0].price), 1.0)
+        iterations.append({"iteration": steps, "objective": round(pol.objective, 2),
+                           "total_cost": round(pol.price, 2), "gap": pol.gap,
+                           "solve_seconds": round(step.solve_seconds + pol.solve_seconds, 3),
+                           "max_caco3_change_pct": round(change, 4), "trust_radius_loads": radius,
+                           "accepted": bool(better)})
+        if better:
+            best = (pol, step.plan)
+            point = step.plan
+            if change < SILO_TOLERANCE_PCT:
+                settled, why = True, "the mix the last step made is the mix it was linearised at"
+                break
+        else:
+            # the free step priced dearer: step again from the incumbent, within a trust
+            # region that halves each time a step does not improve
+            point = best[1]
+            radius = TRUST_RADIUS if radius is None else radius // 2
+            if radius < 1:
+                settled, why = True, "no step within one load per period of the plan improves it"
+                break
+    # the chosen stone: its byproducts placed day by day (the outputs' plan)
+    final, plan_bal = exact(best[1], to_days=True)
+    clock = clock or final.clock_cut
+    ev = evaluate(scenario, plan_bal, lanes, final.plan)
+    extra = ev.costs.get("permit_penalty", 0.0)  # the chosen removal's permit excess: a constant there
+    obj = final.objective + extra
+    gap = max(whole_gap(obj), 0.0)
+    final.bound, final.gap = bound, gap
+    final.objective = obj
+    final.clock_cut = clock
+    final.status = "optimal" if gap <= gap_target * 1.0001 else "feasible"
+    iterations.append({"iteration": "byproducts at the chosen stone", "total_cost": round(ev.total_cost, 2),
+                       "objective": round(obj, 2), "gap": round(gap, 6), "solve_seconds": round(final.solve_seconds, 3),
+                       "max_caco3_change_pct": 0.0})
+    report = SiloReport(bound, obj, gap, settled, why, change, steps)
+    final.solve_seconds = time.perf_counter() - t_start
+    return final, plan_bal, ev, report, iterations
+
+
+def gap_scope(scenario: Scenario, iterations: list[dict] | None = None) -> str:
+    """What the reported gap proves, in words."""
     if not scenario.quality_coupled:
         return "the whole plan: its cost is within the gap of the best plan of this model"
-    settled = bool(iterations) and any(
-        isinstance(i["iteration"], int) and i["iteration"] > 1 and i["max_caco3_change_pct"] is not None
-        and i["max_caco3_change_pct"] < SILO_TOLERANCE_PCT for i in iterations)
-    return ("the byproduct plan at the chosen stone only: the stone was chosen by successive linear "
-            "solves of the silo's mix, which " + ("settled" if settled else "had not settled when they stopped")
-            + ", so no bound on the best stone plan is proven")
+    return ("the whole plan: its cost against a lower bound on every well-mixed silo plan (the relaxation "
+            "that keeps each stone as a lot of its own)")
 
 
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
@@ -185,7 +330,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
               gap: float = 5e-4, progress: bool = False, previous: pd.DataFrame | None = None,
               change_cost_per_load: float = CHANGE_COST_PER_LOAD,
-              late_days: int = LATE_TRAIN_DAYS) -> PlanResult:
+              late_days: int = LATE_TRAIN_DAYS, work: WorkLimits | None = None) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -200,6 +345,10 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         costs ``change_cost_per_load`` [money] in the model (not in the plan's cost).
     late_days : days a train may come late that the firm window holds stock against
         (`model.LATE_TRAIN_DAYS`; 0: none) [d].
+    time_limit : the wall-clock safety net of the whole plan [s]; the solves are bounded by
+        ``work`` (`model.WorkLimits`: nodes, one thread, a fixed seed), so the same inputs
+        give the same plan on any machine unless the net cuts in (then the status and
+        `summary.json` ``clock_cut`` say so).
     """
     if balance is None:
         balance = balance_frame(scenario)
@@ -237,65 +386,50 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     # nearly cancel is not chased to a relative gap of a number near zero
     gross = sum(abs(v) for v in base_ev.costs.values())
     t0 = time.perf_counter()
-    outcome = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                         time_limit=time_limit * (SILO_SHARE / MAX_SILO_ITERATIONS if chem is not None else 1),
-                         gap=gap, hint=base, progress=progress, chem=chem,
-                         scale=gross, to_days=chem is None, lever=lever, allow=allow, keep=keep,
-                         change_cost=change_cost_per_load, late_days=late_days)
-    plan_bal = bal_of(outcome.plan)
-    ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
-    iterations = [{"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
-                   "solve_seconds": round(outcome.solve_seconds, 3), "max_caco3_change_pct": None}]
-    if chem is not None:
-        # successive linear solves: linearise the silo at the last plan until its mix settles
-        last = outcome.plan
-        best = (ev.total_cost, outcome, plan_bal, ev)
-        for it in range(2, MAX_SILO_ITERATIONS + 1):
-            left = SILO_SHARE * time_limit - (time.perf_counter() - t0)
-            if left < 1.0:
-                break
-            nxt = solve_plan(scenario, balance, lanes, firm, guard, firm_days=firm_days, solver=solver,
-                             time_limit=left / (MAX_SILO_ITERATIONS + 1 - it), gap=gap, hint=best[1].plan, progress=progress, chem=chem,
-                             around=last, scale=gross, to_days=False, lever=lever, allow=allow,
-                             keep=keep, change_cost=change_cost_per_load, late_days=late_days)
-            bal_n = chem.plan_balance(scenario, lanes, nxt.plan)
-            ev_n = evaluate(scenario, bal_n, lanes, nxt.plan)
-            change = float(np.max(np.abs(bal_n["limestone_caco3_pct"].to_numpy()
-                                         - chem.plan_balance(scenario, lanes, last)["limestone_caco3_pct"].to_numpy())))
-            iterations.append({"iteration": it, "total_cost": round(ev_n.total_cost, 2), "gap": nxt.gap,
-                               "solve_seconds": round(nxt.solve_seconds, 3),
-                               "max_caco3_change_pct": round(change, 4)})
-            if ev_n.total_cost < best[0] - 1e-6:
-                best = (ev_n.total_cost, nxt, bal_n, ev_n)
-            last = nxt.plan
-            if change < SILO_TOLERANCE_PCT:
-                break
-        _, outcome, plan_bal, ev = best
-    if chem is not None or lever is not None:
-        # the stone and the removal chosen, the byproducts planned again against the
-        # gypsum they make (exact: the silo and the removal are now known), so no shipment
-        # rests on the linearisation
+    work = work or WorkLimits()
+    common = dict(firm_days=firm_days, solver=solver, gap=gap, progress=progress, scale=gross, allow=allow,
+                  keep=keep, change_cost=change_cost_per_load, late_days=late_days, work=work)
+
+    def net() -> float:
+        """What is left of the wall-clock safety net [s]."""
+        return max(time_limit - (time.perf_counter() - t0), 1.0)
+
+    silo = None
+    iterations = []
+    if chem is None:
+        outcome = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), hint=base,
+                             to_days=True, lever=lever, **common)
+        plan_bal = bal_of(outcome.plan)
+        ev = evaluate(scenario, plan_bal, lanes, outcome.plan)
+        iterations.append({"iteration": 1, "total_cost": round(ev.total_cost, 2), "gap": outcome.gap,
+                           "solve_seconds": round(outcome.solve_seconds, 3), "max_caco3_change_pct": None})
+    else:
+        outcome, plan_bal, ev, silo, iterations = _plan_the_silo(
+            scenario, balance, lanes, firm, guard, chem, lever, base, common, net)
+    if chem is None and lever is not None:
+        # the removal chosen, the byproducts planned again against the gypsum they make
+        # (exact: the removal is now known), so no shipment rests on the linearisation
         lanes_x = build_lanes(scenario, plan_bal, exact_quality=True)
         fixed = {l.name: outcome.plan.quantity[l.name] for l in lanes if l.kind == SUPPLY}
-        left = max((1 - WALL_RESERVE) * time_limit - (time.perf_counter() - t0) - 1.0, 3.0)
         try:
-            pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, firm_days=max(firm_days, 1),
-                             solver=solver, time_limit=left, gap=gap, hint=outcome.plan,
-                             scale=gross, fixed=fixed, allow=allow, keep=keep,
-                             change_cost=change_cost_per_load, late_days=late_days)
+            pol = solve_plan(scenario, plan_bal, lanes_x, firm, guard, time_limit=net(), hint=outcome.plan,
+                             fixed=fixed, **{**common, "firm_days": max(firm_days, 1)})
             pol.plan.removal = outcome.plan.removal
             ev_p = evaluate(scenario, plan_bal, lanes, pol.plan)
-            iterations.append({"iteration": "byproducts at the chosen stone" if chem is not None
-                               else "byproducts at the chosen removal",
+            iterations.append({"iteration": "byproducts at the chosen removal",
                                "total_cost": round(ev_p.total_cost, 2), "gap": pol.gap,
                                "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": 0.0})
             if ev_p.total_cost <= ev.total_cost + 1e-6:
                 pol.status = outcome.status if pol.status == "optimal" else pol.status
+                pol.clock_cut = pol.clock_cut or outcome.clock_cut
                 outcome, ev = pol, ev_p
         except RuntimeError:
             pass
-        outcome.solve_seconds = time.perf_counter() - t0
+    outcome.solve_seconds = time.perf_counter() - t0
     outcome.status += solver_note
+    if outcome.clock_cut:
+        outcome.status += (f" (the {time_limit:g} s safety net cut a solve short: a re-run may give another plan;"
+                           " allow more time with --time-limit)")
     chosen = outcome.plan
     dearer = ev.total_cost > base_ev.total_cost + 1e-6 * abs(base_ev.total_cost)
     if dearer and (not guard or _penalties(ev) > _penalties(base_ev) + 1e-6):
@@ -326,7 +460,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         stability = {"change_cost_per_load": change_cost_per_load, "loads_held_in_firm_window": int(held),
                      "of_them_kept_on_their_day": int(kept)}
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days, base_bal, iterations, dips, stability)
+                      firm_days, base_bal, iterations, dips, stability, silo)
 
 
 #: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock

@@ -133,10 +133,10 @@ class SiloChemistry:
 
     # ---------------------------------------------------------------- linear model
 
-    def u_max(self, min_purity_pct: float) -> np.ndarray:
+    def u_max(self, min_purity_pct: float, margin: bool = True) -> np.ndarray:
         """Most stone per CaCO3 [t/t] that keeps the day's gypsum at a purity [%]
-        (+ `PURITY_MARGIN_PCT`); +inf on days without gypsum."""
-        p = (min_purity_pct + PURITY_MARGIN_PCT) / 100
+        (+ `PURITY_MARGIN_PCT` unless ``margin`` is false); +inf on days without gypsum."""
+        p = (min_purity_pct + (PURITY_MARGIN_PCT if margin else 0.0)) / 100
         with np.errstate(divide="ignore", invalid="ignore"):
             out = 1 + (self.gypsum_pure / p - self.cake_base) / self.need_gypsum
         return np.where(self.need_gypsum > 1e-9, out, np.inf)
@@ -156,6 +156,75 @@ class SiloChemistry:
         return u, j
 
 
+
+
+class SiloLots:
+    """The silo's relaxation for a bound: each stone kept as a lot of its own, the scrubber
+    fed any blend of the lots the day's CaCO3 need allows.
+
+    Per period k and lot g (the initial silo, each supply lane) with CaCO3 fraction c_g:
+
+    - S[g,k] = S[g,k−1] + delivered[g,k] − drawn[g,k]        (stone [t], S ≥ 0, drawn ≥ 0)
+    - Σ_g c_g drawn[g,k] + unmet[k] = need[k]                (CaCO3 [t])
+    - I[k] = Σ_g S[g,k]                                      (the store's level [t])
+    - inerts drawn to the gypsum: Σ_g (1 − c_g) drawn[g,k]   [t]
+    - a purity-limited sale in period k: Σ_g (1 − u_max c_g) drawn[g,k] ≤ M (1 − z), and on
+      a single day Σ_g (1 − u_max c_g) (S[g,k] + drawn[g,k]) ≤ M (1 − z) (the content fed)
+
+    A well-mixed silo is one such blend (each lot drawn in proportion to its share of the
+    silo, which keeps the feed's stone per CaCO3 equal to the silo's), so every plan of the
+    well-mixed model is a plan of this one at the same cost: its optimum, and any dual bound
+    a solver proves on it, is a lower bound on the best well-mixed plan.  This is the
+    pooling problem's relaxation that sends the sources straight to the products (the
+    pool's mixing dropped); see Audet, Brimberg, Hansen, Le Digabel and Mladenović (2004),
+    "Pooling problem: alternate formulations and solution methods", Management Science
+    50(6):761-776, and Tawarmalani and Sahinidis (2002), *Convexification and Global
+    Optimization in Continuous and Mixed-Integer Nonlinear Programming*, Kluwer, ch. 9.
+    """
+
+    def __init__(self, model, chem: "SiloChemistry", lanes: list[Lane], initial_t: float, most: float):
+        self.m, self.most = model, float(most)
+        self.c = {"(initial silo)": chem.initial_caco3}
+        self.c.update({l.name: chem.lane_caco3[l.name] for l in lanes if l.kind == SUPPLY})
+        self.stock = {g: 0.0 for g in self.c}
+        self.stock["(initial silo)"] = float(initial_t)
+        self.drawn: dict[int, dict] = {}
+        self.stock_at: dict[int, dict] = {}
+        self.u_hi = chem.u_hi
+
+    def period(self, k: int, level, arrivals: dict, need, unmet):
+        """Rows of period k: the lots' stock, the CaCO3 drawn, the level; returns the
+        inerts drawn [t] (an expression)."""
+        m = self.m
+        drawn = {}
+        for g, c in self.c.items():
+            d = m.add_variable(lb=0, ub=self.most, name=f"drawn[{g},{k}]")
+            s = m.add_variable(lb=0, ub=self.most, name=f"lot[{g},{k}]")
+            m.add_linear_constraint(s == self.stock[g] + arrivals.get(g, 0.0) - d, name=f"lot_balance[{g},{k}]")
+            self.stock[g] = s
+            drawn[g] = d
+        m.add_linear_constraint(sum((self.c[g] * d for g, d in drawn.items()), 0.0) + unmet == need,
+                                name=f"lots_caco3[{k}]")
+        m.add_linear_constraint(level == sum(self.stock.values(), 0.0), name=f"lots_level[{k}]")
+        self.drawn[k] = drawn
+        self.stock_at[k] = dict(self.stock)
+        return sum(((1.0 - self.c[g]) * d for g, d in drawn.items()), 0.0)
+
+    def purity_row(self, k: int, u_max: float, z, daily: bool) -> None:
+        """A purity-limited sale in period k (``z`` = 1) needs the feed's stone per CaCO3 at
+        most ``u_max`` [t/t]; on a single day also the silo's content after the day's
+        deliveries (lots left + drawn), which a well-mixed silo feeds as it is: a valid
+        cut that keeps the relaxation from holding poor stone back on the days it ships."""
+        big = (self.u_hi - u_max) * self.most * (1 - z)
+        feed = sum(((1.0 - u_max * self.c[g]) * d for g, d in self.drawn[k].items()), 0.0)
+        self.m.add_linear_constraint(feed <= big, name=f"lots_purity[{k}]")
+        if daily:
+            content = sum(((1.0 - u_max * self.c[g]) * (self.stock_at[k][g] + d) for g, d in self.drawn[k].items()), 0.0)
+            self.m.add_linear_constraint(content <= big, name=f"lots_content_purity[{k}]")
+
+    def caco3_left(self):
+        """CaCO3 in the lots after the last period [t] (an expression)."""
+        return sum((self.c[g] * s for g, s in self.stock.items()), 0.0)
 
 
 def stone_frame(scenario: Scenario, balance: pd.DataFrame) -> pd.DataFrame:
@@ -194,4 +263,4 @@ def deliveries_quality_frame(scenario: Scenario, lanes: list[Lane], movements: p
     return pd.DataFrame(rows, columns=["date", "lane", "party", "tonnes", "caco3_pct", "cost_per_t_caco3",
                                        "chosen_for_quality", "instead_of"])
 
-__all__ = ["SiloChemistry", "PURITY_MARGIN_PCT", "stone_frame", "deliveries_quality_frame"]
+__all__ = ["SiloChemistry", "SiloLots", "PURITY_MARGIN_PCT", "stone_frame", "deliveries_quality_frame"]
