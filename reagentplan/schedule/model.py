@@ -110,7 +110,7 @@ class WorkLimits:
     (one thread, a fixed seed)."""
 
     nodes: int = 1000
-    bound_nodes: int = 100
+    bound_nodes: int = 0
     placement_nodes: int = 200
     placement_gap: float = 1e-4
 

@@ -24,13 +24,10 @@ from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trad
 from .quality import SiloChemistry
 from .settle import earliest_departures
 
-#: Trust-region steps of the successive silo solves at most, after the relaxation.
-MAX_SILO_STEPS = 4
-#: First trust region of the successive silo solves: loads per lane and period that a
-#: step may move from the incumbent; halved after a step that does not improve.
-TRUST_RADIUS = 2
-#: The mix has settled when no day's CaCO3 moves more than this [%-points] between the
-#: incumbent and an improving step.
+#: Successive linear solves of the silo's mix at most (`_plan_the_silo`).
+MAX_SILO_STEPS = 5
+#: The mix has settled when no day's CaCO3 moves more than this [%-points] between two
+#: successive solves.
 SILO_TOLERANCE_PCT = 0.05
 
 
@@ -74,7 +71,7 @@ class SiloReport:
     steps: int
 
     def as_dict(self) -> dict:
-        return {"method": "silo relaxation bound, then trust-region successive linear solves with exact replay",
+        return {"method": "successive linear solves of the silo (Haverly), bounded by the relaxation that keeps each stone as a lot",
                 "bound": round(self.bound, 2) if np.isfinite(self.bound) else None,
                 "objective": round(self.objective, 2),
                 "gap": round(self.gap, 6) if np.isfinite(self.gap) else None,
@@ -199,122 +196,86 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
     """The stone plan of a silo fed by quarries of different CaCO3, and its byproducts.
 
     1. The relaxation (`quality.SiloLots`: each stone a lot of its own, any blend fed) is
-       solved with a small node budget: its dual bound is a lower bound on every
-       well-mixed plan.  The reorder-point baseline's stone is the first incumbent.
-    2. A candidate stone plan is priced exactly: the silo replayed well mixed
-       (`SiloChemistry.plan_balance`), the byproducts planned again against the gypsum it
-       really makes (lanes closed on the days it fails a buyer's purity), the limestone
-       left valued by its CaCO3, and the plan priced by `evaluate` (the cost the outputs
-       show).  That solve's objective is a feasible plan's, so (objective − bound) /
-       objective is a gap that covers the whole plan, whichever candidate is kept.
-    3. Successive linear solves (Haverly's recursion: the silo linearised at the last
-       accepted plan's exact replay), made monotone: a step is taken only when its exact
-       price is lower; after a step that is not, the next is solved within a trust region
-       around the incumbent (each lane's loads per period within a radius), halved each
-       time, so the price never rises and the search ends: settled when a step leaves
-       every day's CaCO3 within `SILO_TOLERANCE_PCT` of the mix it was linearised at (a
-       fixed point of the recursion), when no step within one load improves, or when the
-       gap is within the solver's tolerance.
+       solved as a linear programme: its optimum is a lower bound on every well-mixed plan
+       of the model.
+    2. Successive linear solves (Haverly's recursion): the silo linearised at the last
+       plan's exact replay, the model solved again, `MAX_SILO_STEPS` times at most or
+       until no day's CaCO3 moves more than `SILO_TOLERANCE_PCT` between two solves (the
+       mix has settled).  Each candidate is replayed exactly (the well-mixed silo, the
+       full balance at its mix) and priced by `evaluate`; the cheapest is kept, so a
+       linearisation error can cost money but never hides a broken limit.
+    3. The byproducts of the chosen stone are planned again against the gypsum its silo
+       really makes (lanes closed on the days it fails a buyer's purity, the limestone left
+       valued by its CaCO3), day by day.  That solve's objective is a feasible plan's, so
+       (objective − bound) / objective is a gap that covers the whole plan.
+
+    Every solve is bounded by work (nodes, one thread, a fixed seed), so the same inputs
+    give the same stone plan on any machine.
 
     References
     ----------
-    Zhang, J., Kim, N.-H. and Lasdon, L. (1985), "An improved successive linear programming
-    algorithm", Management Science 31(10):1312-1331 (steps accepted on the true merit
-    function, trust region shrunk otherwise).
+    Haverly, C. A. (1978), ACM SIGMAP Bulletin 25:19-28 (the recursion).
     Audet, C. et al. (2004), Management Science 50(6):761-776 (the pooling relaxation).
     """
-    gap_target = max(common["gap"], 1e-9)
-    supply = [l for l in lanes if l.kind == SUPPLY]
     t_start = time.perf_counter()
-
-    def exact(stone_plan, to_days=False):
-        """The byproducts re-planned at the silo a stone plan makes: (outcome, balance)."""
-        bal = chem.plan_balance(scenario, lanes, stone_plan)
-        lanes_x = build_lanes(scenario, bal, exact_quality=True)
-        fixed = {l.name: stone_plan.quantity[l.name] for l in supply}
-        end_c = float(bal["limestone_caco3_pct"].to_numpy(float)[-1]) / 100
-        pol = solve_plan(scenario, bal, lanes_x, firm, guard, time_limit=net(), hint=stone_plan, fixed=fixed,
-                         to_days=to_days, limestone_end_per_t=end_caco3_value(scenario, chem) * end_c,
-                         **{**common, "firm_days": max(common["firm_days"], 1)})
-        pol.plan.removal = stone_plan.removal
-        pol.price = evaluate(scenario, bal, lanes, pol.plan).total_cost
-        return pol, bal
+    work = common["work"]
+    relax = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem, to_days=False,
+                       lever=lever, silo_lots=True, **{**common, "work": replace(work, nodes=work.bound_nodes)})
+    bound = relax.bound
+    clock = relax.clock_cut
+    iterations = [{"iteration": "relaxation (each stone a lot)", "total_cost": None, "gap": None,
+                   "solve_seconds": round(relax.solve_seconds, 3), "max_caco3_change_pct": None,
+                   "bound": round(bound, 2) if np.isfinite(bound) else None}]
 
     def caco3(p) -> np.ndarray:
         return chem.replay(lanes, p)["frac"][:, 0]
 
-    relax = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), hint=base, chem=chem,
-                       to_days=False, lever=lever, silo_lots=True,
-                       **{**common, "work": replace(common["work"], nodes=common["work"].bound_nodes)})
-    bound = relax.bound
-    clock = relax.clock_cut
-    iterations = [{"iteration": "relaxation (each stone a lot)", "total_cost": None, "gap": relax.gap,
-                   "solve_seconds": round(relax.solve_seconds, 3), "max_caco3_change_pct": None,
-                   "bound": round(bound, 2) if np.isfinite(bound) else None}]
-
-    def whole_gap(obj: float) -> float:
-        return (obj - bound) / max(abs(obj), 1.0) if np.isfinite(bound) else float("inf")
-
-    pol, _ = exact(base)
-    best = (pol, base)
-    clock = clock or pol.clock_cut
-    iterations.append({"iteration": "baseline's stone, byproducts exact", "objective": round(pol.objective, 2),
-                       "total_cost": round(pol.price, 2),
-                       "gap": pol.gap, "solve_seconds": round(pol.solve_seconds, 3), "max_caco3_change_pct": None})
-    point, radius, steps, change = base, None, 0, None
-    settled, why = False, "the step limit was reached"
+    point, best, change, settled, steps = base, None, None, False, 0
     while steps < MAX_SILO_STEPS:
-        if whole_gap(best[0].objective) <= gap_target:
-            settled, why = True, "within the solver's gap of the relaxation's bound"
-            break
         steps += 1
-        trust = None if radius is None else (best[1], radius)
         try:
-            step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), hint=best[1], chem=chem,
-                              around=point, to_days=False, lever=lever, trust=trust, **common)
+            step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem,
+                              hint=base if best is None else best[1].plan, around=point, to_days=False,
+                              lever=lever, **common)
         except RuntimeError:
             break
         clock = clock or step.clock_cut
-        change = float(np.max(np.abs(caco3(step.plan) - caco3(point)))) * 100
-        pol, _ = exact(step.plan)
-        clock = clock or pol.clock_cut
-        better = pol.price < best[0].price - 1e-6 * max(abs(best[0].price), 1.0)
-        iterations.append({"iteration": steps, "objective": round(pol.objective, 2),
-                           "total_cost": round(pol.price, 2), "gap": pol.gap,
-                           "solve_seconds": round(step.solve_seconds + pol.solve_seconds, 3),
-                           "max_caco3_change_pct": round(change, 4), "trust_radius_loads": radius,
-                           "accepted": bool(better)})
-        if better:
-            best = (pol, step.plan)
-            point = step.plan
-            if change < SILO_TOLERANCE_PCT:
-                settled, why = True, "the mix the last step made is the mix it was linearised at"
-                break
-        else:
-            # the free step priced dearer: step again from the incumbent, within a trust
-            # region that halves each time a step does not improve
-            point = best[1]
-            radius = TRUST_RADIUS if radius is None else radius // 2
-            if radius < 1:
-                settled, why = True, "no step within one load per period of the plan improves it"
-                break
-    # the chosen stone: its byproducts placed day by day (the outputs' plan)
-    final, plan_bal = exact(best[1], to_days=True)
+        ev_s = evaluate(scenario, chem.plan_balance(scenario, lanes, step.plan), lanes, step.plan)
+        change = None if steps == 1 else float(np.max(np.abs(caco3(step.plan) - caco3(point)))) * 100
+        iterations.append({"iteration": steps, "total_cost": round(ev_s.total_cost, 2), "gap": step.gap,
+                           "solve_seconds": round(step.solve_seconds, 3),
+                           "max_caco3_change_pct": None if change is None else round(change, 4)})
+        if best is None or ev_s.total_cost < best[0] - 1e-6:
+            best = (ev_s.total_cost, step)
+        point = step.plan
+        if change is not None and change < SILO_TOLERANCE_PCT:
+            settled = True
+            break
+    stone = best[1].plan if best is not None else base
+    # the chosen stone: its byproducts planned again at the silo it makes, day by day
+    bal = chem.plan_balance(scenario, lanes, stone)
+    lanes_x = build_lanes(scenario, bal, exact_quality=True)
+    end_c = float(bal["limestone_caco3_pct"].to_numpy(float)[-1]) / 100
+    final = solve_plan(scenario, bal, lanes_x, firm, guard, time_limit=net(), hint=stone,
+                       fixed={l.name: stone.quantity[l.name] for l in lanes if l.kind == SUPPLY},
+                       limestone_end_per_t=end_caco3_value(scenario, chem) * end_c,
+                       **{**common, "firm_days": max(common["firm_days"], 1)})
+    final.plan.removal = stone.removal
     clock = clock or final.clock_cut
-    ev = evaluate(scenario, plan_bal, lanes, final.plan)
-    extra = ev.costs.get("permit_penalty", 0.0)  # the chosen removal's permit excess: a constant there
-    obj = final.objective + extra
-    gap = max(whole_gap(obj), 0.0)
-    final.bound, final.gap = bound, gap
-    final.objective = obj
-    final.clock_cut = clock
-    final.status = "optimal" if gap <= gap_target * 1.0001 else "feasible"
+    ev = evaluate(scenario, bal, lanes, final.plan)
+    # the chosen removal's permit excess is a constant of that solve: add it back
+    obj = final.objective + ev.costs.get("permit_penalty", 0.0)
+    gap = max((obj - bound) / max(abs(obj), 1.0), 0.0) if np.isfinite(bound) else float("nan")
+    final.objective, final.bound, final.gap, final.clock_cut = obj, bound, gap, clock
+    final.status = "optimal" if gap <= common["gap"] * 1.0001 else "feasible"
     iterations.append({"iteration": "byproducts at the chosen stone", "total_cost": round(ev.total_cost, 2),
-                       "objective": round(obj, 2), "gap": round(gap, 6), "solve_seconds": round(final.solve_seconds, 3),
-                       "max_caco3_change_pct": 0.0})
+                       "objective": round(obj, 2), "gap": round(gap, 6) if np.isfinite(gap) else None,
+                       "solve_seconds": round(final.solve_seconds, 3), "max_caco3_change_pct": 0.0})
+    why = ("no day's CaCO3 moved more than the tolerance between the last two solves" if settled
+           else "the solves stopped at their step limit with the mix still moving")
     report = SiloReport(bound, obj, gap, settled, why, change, steps)
     final.solve_seconds = time.perf_counter() - t_start
-    return final, plan_bal, ev, report, iterations
+    return final, bal, ev, report, iterations
 
 
 def gap_scope(scenario: Scenario, iterations: list[dict] | None = None) -> str:
