@@ -20,12 +20,12 @@ from typing import Any, BinaryIO
 import numpy as np
 import pandas as pd
 
-from . import schema
-from .chemistry import PYRITE_S_SHARE
-from .errors import InputWarning, Problem, ScenarioError
-from .schema import Field, Sheet
-from .units import BY_US_NAME, VARIANTS
-from .workbook import RawSheet, Uncalculated, read_raw
+from .. import schema
+from ..chemistry import PYRITE_S_SHARE
+from ..errors import InputWarning, Problem, ScenarioError
+from ..schema import Field, Sheet
+from ..units import BY_US_NAME, VARIANTS
+from ..workbook import RawSheet, Uncalculated, read_raw
 
 DAY_NAMES = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
 MONTH_NAMES = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
