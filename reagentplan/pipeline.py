@@ -14,12 +14,12 @@ import pandas as pd
 
 from .balance import balance_frame
 from .scenario import Scenario
+from .schema import STORE_FLOW_COLUMN
 from .risk import RiskResult, replay
 from .schedule import PlanResult, make_plan
 
 #: Which sampled flow guards which store.
-STORE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
-               "bottom_ash": "bottom_ash_t"}
+STORE_FLOWS = STORE_FLOW_COLUMN
 
 
 #: Extra balance outputs kept per future for the permit consequence of a shortfall.

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import Scenario
+from ..schema import BYPRODUCTS, STORE_FLOW_COLUMN
 from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 from .rejects import RejectsHaul, haul_rejects, rejects_breaches
 
@@ -24,7 +25,7 @@ EMPTY_PENALTY_FACTOR = 5.0
 #: Money per tonne short of a monthly contract minimum (take-or-pay style).
 CONTRACT_PENALTY_PER_T = 25.0
 
-PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
+PRODUCTION = {s: STORE_FLOW_COLUMN[s] for s in BYPRODUCTS}
 
 
 def shortfall_rate(lane: Lane) -> float:

@@ -12,9 +12,10 @@ import pandas as pd
 from .. import CAUTION
 from ..balance import balance_frame
 from ..scenario import Scenario
+from ..schema import STORE_FLOW_COLUMN
 from .baseline import baseline_plan
 from .causes import explain
-from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
+from .evaluate import DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, solve_plan
 from .permit import permit_breaches
@@ -34,7 +35,7 @@ SILO_TOLERANCE_PCT = 0.05
 #: the evaluation, the breaches), so the whole plan fits in the time the user gave.
 WALL_RESERVE = 0.05
 
-DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
+DEMAND_COLUMN = STORE_FLOW_COLUMN
 
 
 def guard_margins(balance: pd.DataFrame, flows: dict[str, np.ndarray] | None,
