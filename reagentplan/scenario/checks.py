@@ -33,6 +33,8 @@ SHARE_TOLERANCE_PCT = 0.01
 #: Fewest days of ``generation_history`` a unit needs when the ``generation`` sheet
 #: leaves some of its planned days to the forecast [d].
 MIN_HISTORY_DAYS = 14
+#: The problem of an empty ``coal_blend`` sheet: what was found, what was expected.
+_NO_BLEND = ("the sheet has no rows", "at least one date with shares summing to 100")
 
 
 def build_scenario(raw: dict[str, RawSheet], source_name: str) -> Scenario:
@@ -47,7 +49,7 @@ def build_scenario(raw: dict[str, RawSheet], source_name: str) -> Scenario:
         out.add(title, None, None, f"unknown sheet{did_you_mean(key, names)}",
                 "one of " + ", ".join(names) + " (or a 'notes' sheet for free notes)")
     for s in schema.SHEETS:
-        if s.required and s.name not in by_name:
+        if s.required and s.name not in by_name and not _left_to_forecast(s.name, by_name):
             out.add(s.name, None, None, "the sheet is missing", f"a sheet '{s.name}' ({s.note or 'see the template'})")
     out.fail()
 
@@ -64,6 +66,10 @@ def build_scenario(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     recs = {s.name: table(s) for s in schema.SHEETS if not s.keyvalue}
     has_gen_history = "generation_history" in by_name
     has_quality_history = "coal_quality_history" in by_name
+    if out.problems:
+        # the cross-sheet checks below need clean cells; the tables left empty (a blank
+        # template) are named now too, so one run lists every problem
+        _check_tables_have_rows(recs, boiler, out)
     out.fail()
     _check_removal_range(scrub_kv, scrub_rows, out)
 
@@ -79,9 +85,7 @@ def build_scenario(raw: dict[str, RawSheet], source_name: str) -> Scenario:
     disposal = tuple(_make(DisposalSite, r) for r in recs["disposal"])
 
     _check_plant(plant, scrubber, out)
-    for sheet_name, what in (("units", units), ("coal_sources", sources), ("suppliers", suppliers)):
-        if not what:
-            out.add(sheet_name, None, None, "the sheet has no rows", "at least one row")
+    _check_tables_have_rows(recs, plant.boiler, out, blend=False)
     _check_storage(plant, recs["storage"], out)
     _check_monthly(recs["suppliers"], "suppliers", out)
     _check_monthly(recs["buyers"], "buyers", out)
@@ -308,13 +312,36 @@ def _check_plant(plant: Plant, scrubber: Scrubber, out: Collector) -> None:
                 "0 for a fluidised bed (its sorbent goes into the bed: use removal_pct)")
 
 
-def _check_storage(plant: Plant, records: list[dict[str, Any]], out: Collector) -> None:
-    have = {r["store"] for r in records}
-    needed = [s for s in schema.STORES if not (s == "gypsum" and plant.boiler == "cfb")]
+def _left_to_forecast(sheet_name: str, by_name: dict[str, RawSheet]) -> bool:
+    """True for a missing ``generation`` sheet when ``generation_history`` is given: the
+    forecast then makes every planned day (`_check_history_covers_forecast` asks for
+    enough history), as an empty ``generation`` sheet would leave it to."""
+    return sheet_name == "generation" and "generation_history" in by_name
+
+
+def _check_tables_have_rows(recs: dict[str, list[dict[str, Any]]], boiler: str, out: Collector,
+                            blend: bool = True) -> None:
+    """The tables a plan cannot do without, each with at least one row, and the storage
+    sheet with a row per store (no gypsum store for a fluidised bed).  ``blend``: the
+    ``coal_blend`` sheet too (else `_check_blend` says it).  A sheet with problems of
+    its own is left alone: its rows with a bad cell are not in ``recs``."""
+    bad = {p.sheet for p in out.problems}
+    for sheet_name in ("units", "coal_sources", "suppliers"):
+        if not recs[sheet_name] and sheet_name not in bad:
+            out.add(sheet_name, None, None, "the sheet has no rows", "at least one row")
+    have = {r["store"] for r in recs["storage"]}
+    needed = [s for s in schema.STORES if not (s == "gypsum" and boiler == "cfb")]
     for s in needed:
-        if s not in have:
+        if s not in have and "storage" not in bad:
             out.add("storage", None, "store", f"no row for the store '{s}'",
                     "one row for each of " + ", ".join(needed))
+    if blend and not recs["coal_blend"] and "coal_blend" not in bad:
+        out.add("coal_blend", None, None, *_NO_BLEND)
+
+
+def _check_storage(plant: Plant, records: list[dict[str, Any]], out: Collector) -> None:
+    """Safety stock and initial level within each store's capacity (`_check_tables_have_rows`
+    checks that every store has its row)."""
     for r in records:
         if r["safety_t"] > r["capacity_t"]:
             out.add("storage", r["_row"], "safety_t",
@@ -443,8 +470,7 @@ def _check_blend(records: list[dict[str, Any]], sources: dict, plant: Plant,
                     f"{plant.end_date:%Y-%m-%d}", "a date inside the horizon")
         totals.setdefault(r["date"], []).append(r)
     if not records:
-        out.add("coal_blend", None, None, "the sheet has no rows",
-                "at least one date with shares summing to 100")
+        out.add("coal_blend", None, None, *_NO_BLEND)
     elif min(totals) > plant.start_date:
         out.add("coal_blend", records[0]["_row"], "date",
                 f"the first blend starts {min(totals):%Y-%m-%d}, after the start date "
