@@ -218,7 +218,7 @@ def _records(objs) -> pd.DataFrame:
 
 
 def _line_chart(ws, title: str, data_ws, first_col: int, cols: list[int], n_rows: int, anchor: str,
-                y_title: str) -> None:
+                y_title: str | None) -> None:
     chart = LineChart()
     chart.title, chart.y_axis.title, chart.x_axis.title = title, y_title, "date"
     chart.height, chart.width = 9, 24
@@ -279,7 +279,7 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     for store in scn.storage:
         label = store.replace("_", " ")
         cols = [stores.columns.get_loc(f"{label} {k} [t]") + 1 for k in ("level", "safety", "capacity")]
-        _line_chart(charts, f"{label} [t]", ws, 1, cols, n, f"A{row}", "t")
+        _line_chart(charts, f"{label}, end-of-day tonnes [t]", ws, 1, cols, n, f"A{row}", None)
         row += 19
     if run.risk is not None and run.risk.top:
         top = pd.DataFrame(run.risk.top).rename(columns=TOP_RISK_HEADERS)
@@ -321,7 +321,8 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
             cws.cell(i, j, v if not isinstance(v, np.generic) else v.item())
     if len(pivot.columns) > 1:
         bar = BarChart()
-        bar.title, bar.y_axis.title = "Shipments by buyer per month", "t"
+        # the unit in the title: a one-letter axis title is drawn rotated as an odd glyph
+        bar.title = "Shipments by buyer per month, tonnes [t]"
         bar.height, bar.width = 9, 24
         bar.add_data(Reference(cws, min_col=start_col + 1, max_col=start_col + len(pivot.columns) - 1,
                                min_row=1, max_row=len(pivot) + 1), titles_from_data=True)
