@@ -365,8 +365,11 @@ def _cmd_dashboard(args) -> int:
         return EXIT_BAD_INPUT
     from dashboard.app import create_app, serve
 
+    from .plancache import cache_dir
+
     what = args.workbook or "the demo station"
-    print(f"Planning {what} with {args.futures} futures before serving; this takes a few seconds...")
+    print(f"Serving at once; the page shows the first plan of {what} ({args.futures} futures) "
+          f"as it is made. Plans are kept in {cache_dir()} (set REAGENTPLAN_CACHE to move it).")
     db = args.db or os.environ.get("REAGENTPLAN_DB")
     if db is None and args.as_of is not None:
         from .record.db import resolve_url
@@ -376,11 +379,11 @@ def _cmd_dashboard(args) -> int:
         app = create_app(args.workbook, futures=args.futures, seed=args.seed,
                          time_limit=args.time_limit, firm_days=args.firm_days,
                          demo_days=args.demo_days, password=password, study_dir=args.study,
-                         db=db, as_of=args.as_of)
+                         db=db, as_of=args.as_of, background=True, plan_cache=True,
+                         on_ready=_dashboard_ready)
     except ValueError as exc:
         print(f"--study: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    _warn(app.reagentplan)
     print(f"Dashboard on http://{args.host}:{args.port}/"
           + (" (password required)" if password else "") + "; Ctrl+C stops it.")
     if not is_loopback(args.host):
@@ -389,6 +392,13 @@ def _cmd_dashboard(args) -> int:
     print(f"Caution: {CAUTION}")
     serve(app, args.host, args.port, trusted_proxy=args.trusted_proxy)
     return EXIT_OK
+
+
+def _dashboard_ready(info) -> None:
+    """Said on the console when the dashboard's first plan is ready."""
+    how = "read back from the plan cache" if info.from_cache else f"made in {info.startup_seconds:.0f} s"
+    print(f"The first plan is ready ({how}).", flush=True)
+    _warn(info)
 
 
 def _date(text: str):

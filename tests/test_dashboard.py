@@ -162,6 +162,10 @@ def test_contract_figure_draws_one_panel_per_lane(small_run):
     prog = frames.contract_progress(plan.scenario, plan.lanes, plan.evaluation.month_totals)
     fig = figures.contract_figure(prog, "title", "none")
     assert len(fig.layout.annotations) == prog["lane"].nunique()
+    # the unit rides on the ticks, not as a rotated one-letter axis title (an odd glyph)
+    axes = [a for k, a in fig.layout.to_plotly_json().items() if k.startswith("yaxis")]
+    assert axes and all(not (a.get("title") or {}).get("text") and a.get("ticksuffix") == " t"
+                        for a in axes)
     assert isinstance(figures.contract_figure(prog.iloc[0:0], "t", "nothing here"), go.Figure)
 
 
