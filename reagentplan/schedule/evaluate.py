@@ -16,13 +16,10 @@ import pandas as pd
 
 from ..scenario import Scenario
 from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
+from .penalties import (ALLOWANCE_SHORT_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, EMPTY_PENALTY_FACTOR,
+                        PERMIT_PENALTY_FACTOR)
 from .rejects import RejectsHaul, haul_rejects, rejects_breaches
-
-#: A tonne of limestone demand that cannot be met (the store is empty) costs this many
-#: times the shortage penalty: the scrubber cannot run.  Common practice, no source.
-EMPTY_PENALTY_FACTOR = 5.0
-#: Money per tonne short of a monthly contract minimum (take-or-pay style).
-CONTRACT_PENALTY_PER_T = 25.0
+from .terms import AllowanceTerms, allowance_costs, allowance_holding_t, end_caco3_value, permit_excess_t
 
 PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
 
@@ -228,9 +225,6 @@ def _permit_and_allowances(scenario: Scenario, balance: pd.DataFrame, plan: Dail
     left at the end (``allowances_end``, moved to the end-stock value) and tonnes emitted
     without an allowance (``allowance_penalty``, and a breach).  Neither line exists in
     a scenario without a removal range or an allowance sheet (`lever.py`)."""
-    from .lever import (ALLOWANCE_SHORT_PENALTY_FACTOR, PERMIT_PENALTY_FACTOR, AllowanceTerms,
-                        allowance_costs, allowance_holding_t, permit_excess_t)
-
     p = scenario.plant
     emitted = balance["so2_emitted_t"].to_numpy(float)
     rng = scenario.scrubber.removal_range
@@ -259,10 +253,8 @@ def limestone_end_value(scenario: Scenario, level_t: float, caco3_pct: float) ->
     """The limestone left at the end as a cost line [money] (negative: a credit): at the
     cheapest delivered cost per tonne, or, when the suppliers' stone differs, per tonne
     of the CaCO3 in it (``caco3_pct`` [%], the silo's) at the cheapest delivered cost of
-    a tonne of CaCO3 (`model.end_caco3_value`)."""
+    a tonne of CaCO3 (`terms.end_caco3_value`)."""
     if scenario.quality_coupled:
-        from .model import end_caco3_value
-
         return -end_caco3_value(scenario, None) * level_t * caco3_pct / 100
     return -cheapest_delivered_cost(scenario) * level_t
 

@@ -1,0 +1,97 @@
+"""The optimisation model's constraint families, its typed result and its import graph."""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from helpers import minimal_sheets, workbook_bytes
+from reagentplan.scenario import load_scenario
+from reagentplan.schedule import make_plan
+
+
+def _small_airspace(days: int = 40, airspace: float = 300.0) -> dict:
+    """No car set, no gypsum buyer: the gypsum goes to landfill, to a cheap cell with
+    little airspace left or a dear one with plenty (invented values)."""
+    s = minimal_sheets(days=days)
+    s["storage"][2] = ["gypsum", 1000, 0, 900]
+    s["buyers"] = [s["buyers"][0], s["buyers"][2]]  # the fly-ash buyer only
+    s["disposal"] = [s["disposal"][0],
+                     ["Cell 1", "gypsum", 12, 2000, airspace],
+                     ["Cell 2", "gypsum", 30, 2000, None],
+                     ["Cell 1", "fly_ash", 14, 2000, 1e6], ["Cell 1", "bottom_ash", 10, 500, 1e6]]
+    return s
+
+
+@pytest.mark.parametrize("firm_days", [40, 10])
+def test_landfill_airspace_holds_without_a_car_set(firm_days):
+    """A station with no car set and a cell with 300 t of airspace left: the plan puts at
+    most 300 t of gypsum in it over the horizon and sends the rest to the dearer cell
+    (the cell's daily limit alone would let it take 300 t every day)."""
+    scn = load_scenario(workbook_bytes(_small_airspace()))
+    assert not scn.train_sets
+    r = make_plan(scn, firm_days=firm_days, time_limit=20)
+    for plan in (r.outcome.plan, r.plan):
+        assert plan.quantity["Cell 1 gypsum"].sum() <= 300.0 + 1e-6
+    assert r.plan.quantity["Cell 1 gypsum"].sum() > 299.0  # the cheap airspace is used up
+    assert r.plan.quantity["Cell 2 gypsum"].sum() > 100.0
+
+
+def test_status_is_an_enum_with_its_text():
+    """The solve's state is a `SolveStatus`; the status text (what the summary writes)
+    keeps the notes the planning adds, and a text assigned sets the state back."""
+    from reagentplan.schedule.model import SolveOutcome, SolveStatus
+
+    o = SolveOutcome(None, "highs", SolveStatus.FEASIBLE, 1.0, 0.5, 0.5, 0.1)
+    assert o.status == "feasible" and o.state is SolveStatus.FEASIBLE
+    o.status += " (baseline kept: the replayed plan priced dearer)"
+    assert o.state is SolveStatus.FEASIBLE and o.status_text.endswith("dearer)")
+    o.status = "optimal"
+    assert o.state is SolveStatus.OPTIMAL and o.status == "optimal"
+    o.status = "no_solution_found (x)"
+    assert o.state is SolveStatus.NO_SOLUTION_FOUND
+    with pytest.raises(ValueError):
+        o.status = "done"
+
+
+def test_schedule_imports_run_one_way():
+    """No import circle inside `reagentplan.schedule` (imports inside functions count)."""
+    pkg = Path(__file__).resolve().parents[1] / "reagentplan" / "schedule"
+    edges = {}
+    for f in pkg.glob("*.py"):
+        deps = set()
+        for node in ast.walk(ast.parse(f.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.ImportFrom) and node.level == 1 and node.module:
+                deps.add(node.module.split(".")[0])
+        edges[f.stem] = deps
+    state: dict[str, int] = {}
+
+    def visit(u, path):
+        state[u] = 1
+        for v in sorted(edges.get(u, ())):
+            assert state.get(v) != 1, f"import circle: {' -> '.join(path + [v])}"
+            if v not in state:
+                visit(v, path + [v])
+        state[u] = 2
+
+    for u in sorted(edges):
+        if u not in state:
+            visit(u, [u])
+    assert {"terms", "penalties"} <= set(edges) and not edges["terms"] and not edges["penalties"]
+
+
+def test_penalty_table_holds_every_factor():
+    from reagentplan.schedule import evaluate, lever, model, penalties
+
+    names = {p.name for p in penalties.TABLE}
+    assert {"EMPTY_PENALTY_FACTOR", "PERMIT_PENALTY_FACTOR", "ALLOWANCE_SHORT_PENALTY_FACTOR", "GUARD_WEIGHT",
+            "SILO_SAFETY_MARGIN", "CHANGE_COST_PER_LOAD", "LATE_TRAIN_DAYS", "CONTRACT_PENALTY_PER_T"} <= names
+    for p in penalties.TABLE:
+        assert getattr(penalties, p.name) == p.value and p.meaning
+    # the old names still answer
+    assert evaluate.EMPTY_PENALTY_FACTOR == penalties.EMPTY_PENALTY_FACTOR
+    assert lever.PERMIT_PENALTY_FACTOR == penalties.PERMIT_PENALTY_FACTOR
+    assert model.GUARD_WEIGHT == penalties.GUARD_WEIGHT and np.isfinite(model.LATE_TRAIN_DAYS)
