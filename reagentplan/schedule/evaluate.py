@@ -18,7 +18,7 @@ from ..scenario import Scenario
 from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 from .penalties import (ALLOWANCE_SHORT_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, EMPTY_PENALTY_FACTOR,
                         PERMIT_PENALTY_FACTOR)
-from .rejects import RejectsHaul, haul_rejects, rejects_breaches
+from .rejects import RejectsHaul, haul_rejects, rejects_breaches, waiting_end_cost
 from .terms import AllowanceTerms, allowance_costs, allowance_holding_t, end_caco3_value, permit_excess_t
 
 PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
@@ -135,8 +135,10 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     """Levels, costs (with the end-of-horizon stock value) and breaches of a daily plan.
 
     ``mill_rejects_disposal`` is the haul of the balance's ``mill_rejects_t`` [t/d] to the
-    mill-reject sites (`haul_rejects`); rejects no site takes are a breach and are charged
-    at the overflow penalty per tonne [money/t], as a tonne with nowhere to go.
+    mill-reject sites (`haul_rejects`); rejects no site takes wait in the reject bins
+    for the next open day, and what overflows the bins is a breach, charged at the
+    overflow penalty per tonne [money/t], as a tonne with nowhere to go; rejects still in
+    the bins at the end join the byproducts' end-stock charge (cheapest site's cost).
     """
     p = scenario.plant
     levels, unmet = store_levels(scenario, balance, lanes, plan)
@@ -208,6 +210,11 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             charge = cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
             end_value += charge
             end_parts["byproducts"] += float(charge)
+    if haul.waiting_t is not None:
+        # mill rejects still in the bins, to be hauled at the cheapest site's cost
+        charge = waiting_end_cost(haul)
+        end_value += charge
+        end_parts["byproducts"] += charge
     if "allowances_end" in costs:
         # allowances left at the end, at the last sell price (a credit, with the stock)
         end_parts["allowances"] = costs.pop("allowances_end")
