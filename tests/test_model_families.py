@@ -95,3 +95,41 @@ def test_penalty_table_holds_every_factor():
     assert evaluate.EMPTY_PENALTY_FACTOR == penalties.EMPTY_PENALTY_FACTOR
     assert lever.PERMIT_PENALTY_FACTOR == penalties.PERMIT_PENALTY_FACTOR
     assert model.GUARD_WEIGHT == penalties.GUARD_WEIGHT and np.isfinite(model.LATE_TRAIN_DAYS)
+
+
+def _short_of_allowances(trade_limit):
+    """The one-day station of the removal tests with 5 t of allowances held, at 400 to buy
+    and 380 to sell, and a monthly trade limit (0: none can be bought)."""
+    from helpers import START
+    from test_removal_lever import one_day_station
+
+    s = one_day_station(days=7)
+    s["allowances"] = [["date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t",
+                        "max_trade_t_per_month"], [START, 5, None, 400, 380, trade_limit]]
+    return s
+
+
+def test_allowance_shortfall_at_the_end_is_bought_at_the_buy_price():
+    """Hand check of the end value: 10 t held → −380 × 10; 4 t short → +400 × 4 (the
+    allowances the station must still buy to surrender)."""
+    from reagentplan.schedule.terms import AllowanceTerms, allowance_costs, allowance_end_value
+
+    t = AllowanceTerms(5.0, np.zeros(3), np.full(3, 400.0), np.full(3, 380.0), np.full(3, np.nan))
+    assert allowance_end_value(t, 10.0) == pytest.approx(-3800.0)
+    assert allowance_end_value(t, -4.0) == pytest.approx(1600.0)
+    acc = allowance_costs(t, [3.0, 3.0, 3.0], np.zeros(3), np.zeros(3))  # 5 − 9 = −4 t at the end
+    assert acc["end_value"] == pytest.approx(1600.0) and acc["short_t"] == pytest.approx(4.0)
+
+
+def test_model_and_evaluation_price_a_short_holding_alike():
+    """No allowance can be bought (trade limit 0) and 5 t held against about 1-3 t emitted a
+    day for 7 days: the holding ends short.  The plan's evaluation charges the shortfall
+    at the buy price, and the model's objective (the same costs, with the end) agrees
+    with the evaluation's total."""
+    scn = load_scenario(workbook_bytes(_short_of_allowances(0)))
+    r = make_plan(scn, firm_days=7, time_limit=20)
+    emitted = r.balance["so2_emitted_t"].to_numpy(float)
+    end = 5.0 - emitted.sum()
+    assert end < -1.0
+    assert r.evaluation.end_parts["allowances"] == pytest.approx(400.0 * -end, rel=1e-6)
+    assert r.outcome.objective == pytest.approx(r.evaluation.total_cost, rel=1e-6, abs=1.0)

@@ -216,7 +216,8 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
         end_value += charge
         end_parts["byproducts"] += charge
     if "allowances_end" in costs:
-        # allowances left at the end, at the last sell price (a credit, with the stock)
+        # allowances left at the end: held at the last sell price (a credit), a shortfall
+        # at the last buy price (`terms.allowance_end_value`), with the stock
         end_parts["allowances"] = costs.pop("allowances_end")
         end_value += end_parts["allowances"]
     costs["end_stock_value"] = float(end_value)

@@ -22,7 +22,9 @@ Allowances (optional sheet ``allowances``): every tonne emitted uses one allowan
 holding (opening + allocations + bought − sold − emitted) may not go below zero (a tonne-day
 short is priced at `ALLOWANCE_SHORT_PENALTY_FACTOR` × the shortage penalty and reported);
 buying and selling are at the sheet's prices within its monthly limits; allowances left at
-the end are valued at the last sell price, so holding and selling compare fairly.
+the end are valued at the last sell price, so holding and selling compare fairly, and a
+shortfall left at the end is bought at the last buy price (`terms.allowance_end_value`,
+the model and the evaluation alike).
 
 References
 ----------

@@ -927,7 +927,10 @@ def _allowances(p: Problem) -> None:
     [t] at `penalties.ALLOWANCE_SHORT_PENALTY_FACTOR` × p_short w_k; purchases (and,
     apart, sales) within the month's limit (``trade_buy[j]``, ``trade_sell[j]``, the limit
     in force on the month's first day); bought at the period's first day's price, sold at
-    its last day's [money/t], the holding left at the end credited at the last sell price."""
+    its last day's [money/t]; the holding left at the end, hold[K] = held − owed
+    (``allowance_end``), credited at the last sell price s_K and a shortfall bought at the
+    last buy price b_K: −s_K held + b_K owed (`terms.allowance_end_value`; b_K ≥ s_K, so
+    the solver never holds both)."""
     allow = p.allow
     if allow is None:
         return
@@ -955,7 +958,12 @@ def _allowances(p: Problem) -> None:
         p.cost += [float(allow.buy_price[a]) * buys[k], -float(allow.sell_price[b]) * sells[k],
                    ALLOWANCE_SHORT_PENALTY_FACTOR * penalty * (b - a + 1) * short]
         prev = hold
-    p.cost.append(-float(allow.sell_price[-1]) * prev)
+    # the holding left at the end: credited at the last sell price, a shortfall bought at
+    # the last buy price (as `terms.allowance_end_value` prices it)
+    end_held = m.add_variable(lb=0, ub=big, name="hold_end_held")
+    end_owed = m.add_variable(lb=0, ub=big, name="hold_end_owed")
+    p.row(end_held - end_owed == prev, "allowance_end")
+    p.cost += [-float(allow.sell_price[-1]) * end_held, float(allow.buy_price[-1]) * end_owed]
     p.trades = (buys, sells)
 
 

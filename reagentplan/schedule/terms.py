@@ -65,13 +65,23 @@ def allowance_holding_t(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> n
 
 def allowance_costs(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> dict[str, float]:
     """Money of the allowance account: ``trade`` (bought × buy price − sold × sell price),
-    ``end_value`` (minus the holding left at the end × the last sell price) and ``short_t``
+    ``end_value`` (the holding left at the end, `allowance_end_value`) and ``short_t``
     (the most the holding went below zero, tonnes of SO2 emitted without an allowance)."""
     bought_t, sold_t = np.asarray(bought_t, float), np.asarray(sold_t, float)
     holding = allowance_holding_t(terms, emitted_t, bought_t, sold_t)
     trade = float((bought_t * terms.buy_price).sum() - (sold_t * terms.sell_price).sum())
-    end_value = -float(terms.sell_price[-1] * max(holding[-1], 0.0))
+    end_value = allowance_end_value(terms, float(holding[-1]))
     return {"trade": trade, "end_value": end_value, "short_t": float(max(-holding.min(initial=0.0), 0.0))}
+
+
+def allowance_end_value(terms: AllowanceTerms, holding_end_t: float) -> float:
+    """The holding left at the end as a cost line [money] (negative: a credit): allowances
+    held are credited at the last sell price, a shortfall (a negative holding) is bought
+    at the last buy price, as the station must surrender one allowance per tonne emitted:
+    −s_K max(h, 0) + b_K max(−h, 0).  The model prices it the same way
+    (`model._allowances`); b_K ≥ s_K (the loader refuses a sell price above the buy
+    price), so the two-sided price is convex."""
+    return float(-terms.sell_price[-1] * max(holding_end_t, 0.0) + terms.buy_price[-1] * max(-holding_end_t, 0.0))
 
 
 def end_caco3_value(scenario: Scenario, chem=None) -> float:
