@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import ast
+import datetime as dt
 from pathlib import Path
 
 import numpy as np
@@ -133,3 +134,24 @@ def test_model_and_evaluation_price_a_short_holding_alike():
     assert end < -1.0
     assert r.evaluation.end_parts["allowances"] == pytest.approx(400.0 * -end, rel=1e-6)
     assert r.outcome.objective == pytest.approx(r.evaluation.total_cost, rel=1e-6, abs=1.0)
+
+
+def test_monthly_trade_limit_is_the_one_in_force():
+    """The month starts with no trade limit and a limit of 2 t comes into force on its
+    fourth day; 5 t held against 2 t emitted a day for 7 days (98 % removal of 100 t):
+    the month's purchases so far may not exceed 2 t once the limit holds, so neither
+    the plan nor the baseline buys more than 2 t in the month (the limit of the month's
+    first day alone would have let them buy the whole 9 t short)."""
+    from helpers import START
+    from test_removal_lever import one_day_station
+
+    s = one_day_station(days=7, removal=None, setpoint=98)
+    s["allowances"] = [["date", "holding_t", "allocated_t", "buy_price_per_t", "sell_price_per_t",
+                        "max_trade_t_per_month"], [START, 5, None, 400, 380, None],
+                       [START + dt.timedelta(days=3), None, None, 400, 380, 2]]
+    scn = load_scenario(workbook_bytes(s))
+    r = make_plan(scn, firm_days=7, time_limit=20)
+    assert r.balance["so2_emitted_t"].sum() > 9.0
+    for plan in (r.plan, r.baseline):
+        assert plan.bought_t is not None and plan.bought_t.sum() <= 2.0 + 1e-6
+    assert r.plan.bought_t.sum() == pytest.approx(2.0, abs=1e-6)  # it buys what it may

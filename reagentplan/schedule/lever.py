@@ -137,22 +137,24 @@ class RemovalLever:
 
 def baseline_trades(terms: AllowanceTerms, emitted_t, month_index: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The careful hand rule: never sell; buy, on the day the holding would go below zero,
-    just what keeps it at zero, within the month's purchase limit. Returns (bought, sold)
-    per day [t]."""
+    just what keeps it at zero, within the monthly purchase limit in force that day (the
+    month's purchases so far at most that day's limit, as the model holds them).
+    Returns (bought, sold) per day [t]."""
     e = np.asarray(emitted_t, float)
     n = len(e)
     bought = np.zeros(n)
-    left_in_month: dict[int, float] = {}
+    bought_in_month: dict[int, float] = {}
     holding = terms.opening_t
     for d in range(n):
         holding += terms.allocated_t[d] - e[d]
         if holding < 0:
             m = int(month_index[d])
             cap = terms.max_trade_t_per_month[d]
-            room = left_in_month.setdefault(m, np.inf if np.isnan(cap) else float(cap))
+            so_far = bought_in_month.get(m, 0.0)
+            room = np.inf if np.isnan(cap) else max(float(cap) - so_far, 0.0)
             buy = min(-holding, room)
             bought[d] = buy
-            left_in_month[m] = room - buy
+            bought_in_month[m] = so_far + buy
             holding += buy
     return bought, np.zeros(n)
 

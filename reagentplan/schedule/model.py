@@ -925,8 +925,11 @@ def _allowances(p: Problem) -> None:
     hold[k] = hold[k−1] + allocated_k + buy[k] − sell[k] − emitted_k (``allowance[k]``),
     never below zero: hold[k] + hold_short[k] ≥ 0 (``allowance_short[k]``), the shortfall
     [t] at `penalties.ALLOWANCE_SHORT_PENALTY_FACTOR` × p_short w_k; purchases (and,
-    apart, sales) within the month's limit (``trade_buy[j]``, ``trade_sell[j]``, the limit
-    in force on the month's first day); bought at the period's first day's price, sold at
+    apart, sales) within the monthly limit in force: at the end of each period k the
+    month's trades so far are at most the smallest limit L_k in force on k's days,
+    Σ_{i≤k, i in k's month} buy[i] ≤ L_k (``trade_buy[k]``, ``trade_sell[k]``; a row only
+    where no later period of the month has a limit as small, `month_to_date_limits`);
+    bought at the period's first day's price, sold at
     its last day's [money/t]; the holding left at the end, hold[K] = held − owed
     (``allowance_end``), credited at the last sell price s_K and a shortfall bought at the
     last buy price b_K: −s_K held + b_K owed (`terms.allowance_end_value`; b_K ≥ s_K, so
@@ -942,12 +945,10 @@ def _allowances(p: Problem) -> None:
     big = float(allow.opening_t + allow.allocated_t.sum() + np.sum(emitted_most)) + 1.0
     buys = [m.add_variable(lb=0, ub=big, name=f"buy[{k}]") for k in range(P)]
     sells = [m.add_variable(lb=0, ub=big, name=f"sell[{k}]") for k in range(P)]
-    for j in np.unique(period_month):
-        ks = np.flatnonzero(period_month == j)
-        cap = allow.max_trade_t_per_month[periods[ks[0]][0]]
-        if np.isfinite(cap):
-            p.row(sum((buys[k] for k in ks), 0.0) <= float(cap), f"trade_buy[{j}]")
-            p.row(sum((sells[k] for k in ks), 0.0) <= float(cap), f"trade_sell[{j}]")
+    for k, cap in month_to_date_limits(allow, periods, period_month):
+        ks = [i for i in range(k + 1) if period_month[i] == period_month[k]]
+        p.row(sum((buys[i] for i in ks), 0.0) <= cap, f"trade_buy[{k}]")
+        p.row(sum((sells[i] for i in ks), 0.0) <= cap, f"trade_sell[{k}]")
     prev = float(allow.opening_t)
     for k, (a, b) in enumerate(periods):
         hold = m.add_variable(lb=-big, ub=big, name=f"hold[{k}]")
@@ -965,6 +966,27 @@ def _allowances(p: Problem) -> None:
     p.row(end_held - end_owed == prev, "allowance_end")
     p.cost += [-float(allow.sell_price[-1]) * end_held, float(allow.buy_price[-1]) * end_owed]
     p.trades = (buys, sells)
+
+
+def month_to_date_limits(allow: AllowanceTerms, periods: list[tuple[int, int]],
+                         period_month: np.ndarray) -> list[tuple[int, float]]:
+    """(period, limit [t]) pairs of the monthly trade limit: the smallest limit in force on
+    the period's days (NaN: none), kept only where no later period of the same month has
+    a limit at most as large (a later, smaller limit on the month-to-date total implies
+    it)."""
+    out = []
+    later_min: dict[int, float] = {}
+    for k in range(len(periods) - 1, -1, -1):
+        a, b = periods[k]
+        vals = np.asarray(allow.max_trade_t_per_month[a:b + 1], float)
+        vals = vals[np.isfinite(vals)]
+        if not len(vals):
+            continue
+        cap, j = float(vals.min()), int(period_month[k])
+        if cap < later_min.get(j, np.inf):
+            out.append((k, cap))
+            later_min[j] = cap
+    return out[::-1]
 
 
 def _objective(p: Problem) -> None:
