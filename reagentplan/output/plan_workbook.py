@@ -216,7 +216,7 @@ def rejects_frame(run) -> pd.DataFrame | None:
         return None
     frame = haul_frame(haul, plan.balance["mill_rejects_t"], plan.scenario.dates)
     cur = plan.scenario.plant.currency
-    names = {"made_t": "rejects made [t]", "not_hauled_t": "not hauled [t]",
+    names = {"made_t": "rejects made [t]", "not_hauled_t": "not hauled [t]", "waiting_t": "waiting in the bins [t]",
              "cost": f"haul cost [{cur}]"}
     return frame.rename(columns=lambda c: names.get(c, c[:-2] + " [t]" if c.endswith("_t") else c))
 
