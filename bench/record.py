@@ -33,7 +33,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests"))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.pipeline import run_plan, run_plan_from_record  # noqa: E402
 from reagentplan.record.asof import apply_asof, asof_state, load_record  # noqa: E402
 from reagentplan.record.db import connect, upgrade  # noqa: E402

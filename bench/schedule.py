@@ -32,7 +32,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import balance_frame  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 from reagentplan.schedule import make_plan  # noqa: E402
