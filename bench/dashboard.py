@@ -43,14 +43,14 @@ REPLAN_TARGET_S = 5.0
 
 def serve(app):
     """The production server (waitress) in a thread: ``(stop, url)``."""
-    from dashboard.testing import serve_in_thread
+    from reagentplan.dashboard.testing import serve_in_thread
 
     url, stop = serve_in_thread(app)
     return stop, url
 
 
 def browser(profile: str):
-    from dashboard.testing import chromium_driver
+    from reagentplan.dashboard.testing import chromium_driver
 
     return chromium_driver(profile)
 
@@ -164,14 +164,14 @@ def main(argv=None) -> int:
     parser.add_argument("--replans", type=int, default=3, help="re-plans to time (default %(default)s)")
     parser.add_argument("--shots", type=Path, default=None, help="save screenshots of the 365-day views here")
     args = parser.parse_args(argv)
-    from dashboard.testing import CHROMEDRIVER, CHROMIUM
+    from reagentplan.dashboard.testing import CHROMEDRIVER, CHROMIUM
 
     if not (os.path.exists(CHROMIUM) and os.path.exists(CHROMEDRIVER)):
         print(f"needs {CHROMIUM} and {CHROMEDRIVER} (Debian chromium, chromium-driver)")
         return 2
 
-    from dashboard.app import create_app
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.dashboard.app import create_app
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     work = Path(tempfile.mkdtemp(prefix="reagentplan-bench-"))
     try:

@@ -32,10 +32,11 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import balance_frame  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 from reagentplan.schedule import make_plan  # noqa: E402
+from reagentplan.settings import PLAN  # noqa: E402
 
 CAUSES = ("stone", "freight", "byproduct_sales", "landfill", "allowances", "penalties")
 
@@ -56,7 +57,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--solvers", default="highs,scip")
     ap.add_argument("--horizons", default="30,90,120,180,365")
-    ap.add_argument("--time-limit", type=float, default=60.0)
+    ap.add_argument("--time-limit", type=float, default=PLAN.time_limit)
     ap.add_argument("--gap", type=float, default=5e-4)
     ap.add_argument("--plain", action="store_true")
     ap.add_argument("--lever", action="store_true",

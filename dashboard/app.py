@@ -7,7 +7,7 @@ Usage::
 
 or, from Python::
 
-    from dashboard.app import create_app, serve
+    from reagentplan.dashboard.app import create_app, serve
     serve(create_app("station.xlsx"), "127.0.0.1", 8050)
 
 It is served by waitress (a production WSGI server, pure Python): a fixed pool of
@@ -34,9 +34,10 @@ from types import SimpleNamespace
 from dash import Dash, dcc, html
 
 from reagentplan import CAUTION, __version__
+from reagentplan.pipeline import settings_of
+from reagentplan.settings import PlanSettings
 
 from . import callbacks
-from .callbacks import PlanOptions
 from .security import (DEFAULT_HOST, ORIGINS_ENV, LoginThrottle, install_basic_auth,
                        install_body_limit, install_headers, install_origin_check)
 from .store import PlanStore
@@ -67,7 +68,7 @@ def _load(workbook, work_dir: Path, demo_days: int):
     from reagentplan.scenario import load_scenario
 
     if workbook is None:
-        from demo.build_demo import build_demo_workbook
+        from reagentplan.demo.build_demo import build_demo_workbook
 
         path = build_demo_workbook(work_dir / "demo_station.xlsx", horizon_days=demo_days)
         return load_scenario(path), "the demo station"
@@ -127,24 +128,24 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None,
     return page
 
 
-def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0,
-               solver: str = "highs", time_limit: float = 60.0, firm_days: int = 56,
-               risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
+def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = None,
+               demo_days: int = 365, password: str | None = None,
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,
                throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES,
                study_dir: str | os.PathLike | None = None, db: str | None = None,
                as_of=None, background: bool = False,
                plan_cache: str | os.PathLike | bool | None = None,
-               on_ready: Callable[[SimpleNamespace], None] | None = None) -> Dash:
+               on_ready: Callable[[SimpleNamespace], None] | None = None, **plan_changes) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
     ----------
     workbook_bytes_or_path : a scenario workbook (path or bytes); ``None`` for the demo
         station, built into the app's private folder with ``demo_days`` days.
-    futures, seed, solver, time_limit, firm_days, risk_level : as `run_plan`, for the
-        startup plan and every re-plan.
+    settings, plan_changes : the `reagentplan.settings.PlanSettings` (default
+        `reagentplan.settings.PLAN`) and changes to its fields (``futures=0``...), as
+        `run_plan` takes them, for the startup plan and every re-plan.
     password : when given, every request must carry it (HTTP basic auth), with failed
         attempts slowed and locked out per address (``throttle``, a `LoginThrottle`).
         Without one, only loopback host names are answered.
@@ -192,8 +193,7 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     else:
         work = Path(work_dir)
         work.mkdir(parents=True, exist_ok=True)
-    options = PlanOptions(futures=futures, seed=seed, solver=solver, time_limit=time_limit,
-                          firm_days=firm_days, risk_level=risk_level)
+    options = settings_of(settings, **plan_changes)
     study = None
     if study_dir is not None:
         from reagentplan.study.results import read_study_table
@@ -294,7 +294,7 @@ class _Startup:
     """The startup plan: the scenario (the given workbook, the demo station, or the
     record's state), planned or read back from the plan cache, saying each step."""
 
-    def __init__(self, workbook, loaded, work: Path, demo_days: int, options: PlanOptions, run,
+    def __init__(self, workbook, loaded, work: Path, demo_days: int, options: PlanSettings, run,
                  db, as_of, record_source, progress, plan_cache):
         self.workbook, self.loaded, self.work, self.demo_days = workbook, loaded, work, demo_days
         self.options, self.given_run, self.db, self.as_of = options, run, db, as_of
@@ -336,7 +336,7 @@ class _Startup:
         if self.db is None:
             key = plancache.plan_key(self._source_bytes(), settings)
             run, made = plancache.cached(
-                key, lambda: plancache.plan_in_steps(scenario, say=say, **settings),
+                key, lambda: plancache.plan_in_steps(scenario, self.options, say=say),
                 directory=directory, progress=self.progress, use=self.plan_cache is not None)
         else:
             run, made, source = self._from_record(scenario, source, settings, directory)

@@ -150,22 +150,21 @@ class PlanProgress:
                     "error": self.error, "from_cache": self.from_cache}
 
 
-def plan_in_steps(scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
-                  time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
-                  say: Callable[[str], None] | None = None):
-    """`reagentplan.pipeline.run_plan`, saying each step as it starts."""
-    from .pipeline import FUTURE_FLOWS, plan_with_futures
+def plan_in_steps(scenario, settings=None, *, say: Callable[[str], None] | None = None):
+    """`reagentplan.pipeline.run_plan` with ``settings`` (a `reagentplan.settings.PlanSettings`,
+    default `reagentplan.settings.PLAN`), saying each step as it starts."""
+    from .pipeline import FUTURE_FLOWS, plan_with_futures, settings_of
 
+    settings = settings_of(settings)
     say = say or (lambda _text: None)
     fut = None
-    if futures > 0:
+    if settings.futures > 0:
         from .forecast import sample_futures
 
-        say(f"Sampling {futures} futures of load, coal and weather…")
-        fut = sample_futures(scenario, futures, seed=seed, keep=FUTURE_FLOWS)
+        say(f"Sampling {settings.futures} futures of load, coal and weather…")
+        fut = sample_futures(scenario, settings.futures, seed=settings.seed, keep=FUTURE_FLOWS)
     say("Solving the plan" + (" and replaying it against the futures…" if fut is not None else "…"))
-    return plan_with_futures(scenario, fut, solver=solver, time_limit=time_limit,
-                             firm_days=firm_days, risk_level=risk_level)
+    return plan_with_futures(scenario, fut, settings)
 
 
 def cached(key: str, make: Callable[[], object], *, directory: str | os.PathLike | None = None,

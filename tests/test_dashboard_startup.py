@@ -16,8 +16,8 @@ import pytest
 from helpers import minimal_sheets, write_workbook
 from reagentplan import plancache
 
-from dashboard.app import create_app
-from dashboard.testing import serve_in_thread
+from reagentplan.dashboard.app import create_app
+from reagentplan.dashboard.testing import serve_in_thread
 
 
 def _get(url: str) -> tuple[bytes, float]:

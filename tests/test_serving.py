@@ -23,10 +23,10 @@ from helpers import minimal_sheets, workbook_bytes, write_workbook
 from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
 
-from dashboard.app import MAX_REQUEST_BYTES, create_app
-from dashboard.security import LoginThrottle
-from dashboard.testing import serve_in_thread
-from dashboard.views import controls as C
+from reagentplan.dashboard.app import MAX_REQUEST_BYTES, create_app
+from reagentplan.dashboard.security import LoginThrottle
+from reagentplan.dashboard.testing import serve_in_thread
+from reagentplan.dashboard.views import controls as C
 
 ROOT = Path(__file__).resolve().parents[1]
 PASSWORD = "s3cret pass"
