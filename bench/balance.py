@@ -22,7 +22,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import BalanceParams, Drivers, mass_balance, scenario_drivers  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 

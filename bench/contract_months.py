@@ -24,13 +24,14 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import balance_frame  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 from reagentplan.schedule.baseline import baseline_plan  # noqa: E402
 from reagentplan.schedule.evaluate import evaluate  # noqa: E402
 from reagentplan.schedule.lanes import build_lanes, firm_loads, horizon_months  # noqa: E402
 from reagentplan.schedule.model import solve_plan  # noqa: E402
+from reagentplan.settings import PLAN  # noqa: E402
 
 
 def pro_rated(lane, share: np.ndarray) -> object:
@@ -51,7 +52,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--start", type=dt.date.fromisoformat, default=dt.date(2027, 1, 16))
     ap.add_argument("--days", type=int, default=120)
-    ap.add_argument("--time-limit", type=float, default=60.0)
+    ap.add_argument("--time-limit", type=float, default=PLAN.time_limit)
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         wb = build_demo_workbook(Path(tmp) / "demo.xlsx", start_date=args.start, horizon_days=args.days)

@@ -13,9 +13,13 @@
 
 Run:  python bench/dashboard.py [--futures N] [--replans K] [--shots DIR]
 
-Targets: first render <= 2 s; 90-day re-plan <= 5 s end to end.  The app is served in a
-thread on 127.0.0.1; nothing else is contacted.  The startup plan (before the server
-starts) is timed and printed too, but it is not part of either target.
+0. The start: the 365-day demo served with its first plan made in the background, from
+   `create_app` to the first answer (the startup page), then until the plan is ready,
+   then a second start with the same inputs, which reads the plan from the plan cache.
+
+Targets: first answer <= 3 s; first render <= 2 s; 90-day re-plan <= 5 s end to end.
+The app is served in a thread on 127.0.0.1; nothing else is contacted.  The startup plan
+is timed and printed too, but it is not part of a target.
 """
 
 from __future__ import annotations
@@ -32,25 +36,48 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 FIRST_RENDER_TARGET_S = 2.0
+#: From the start of the app to its first answer, while the startup plan is made [s].
+FIRST_ANSWER_TARGET_S = 3.0
 REPLAN_TARGET_S = 5.0
 
 
 def serve(app):
     """The production server (waitress) in a thread: ``(stop, url)``."""
-    from dashboard.testing import serve_in_thread
+    from reagentplan.dashboard.testing import serve_in_thread
 
     url, stop = serve_in_thread(app)
     return stop, url
 
 
 def browser(profile: str):
-    from dashboard.testing import chromium_driver
+    from reagentplan.dashboard.testing import chromium_driver
 
     return chromium_driver(profile)
 
 
 DRAWN = ("return document.querySelectorAll('.rp-view .js-plotly-plot').length >= 3 && "
          "document.querySelectorAll('.rp-view .js-plotly-plot svg.main-svg').length >= 6")
+
+
+def first_answer(url: str) -> float:
+    """Seconds to fetch the page's layout (the startup page while the plan is made)."""
+    import urllib.request
+
+    t = time.perf_counter()
+    with urllib.request.urlopen(url + "_dash-layout", timeout=60) as r:
+        r.read()
+    return time.perf_counter() - t
+
+
+def until_ready(app, t0: float, limit: float = 1800.0) -> float:
+    """Seconds from ``t0`` until the app's startup plan is ready."""
+    while not app.reagentplan.ready:
+        if app.reagentplan.progress.snapshot()["error"]:
+            raise SystemExit(f"the startup plan failed: {app.reagentplan.progress.snapshot()['error']}")
+        if time.perf_counter() - t0 > limit:
+            raise SystemExit("the startup plan was not ready in time")
+        time.sleep(0.05)
+    return time.perf_counter() - t0
 
 
 def first_render(driver, url: str) -> float:
@@ -137,14 +164,14 @@ def main(argv=None) -> int:
     parser.add_argument("--replans", type=int, default=3, help="re-plans to time (default %(default)s)")
     parser.add_argument("--shots", type=Path, default=None, help="save screenshots of the 365-day views here")
     args = parser.parse_args(argv)
-    from dashboard.testing import CHROMEDRIVER, CHROMIUM
+    from reagentplan.dashboard.testing import CHROMEDRIVER, CHROMIUM
 
     if not (os.path.exists(CHROMIUM) and os.path.exists(CHROMEDRIVER)):
         print(f"needs {CHROMIUM} and {CHROMEDRIVER} (Debian chromium, chromium-driver)")
         return 2
 
-    from dashboard.app import create_app
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.dashboard.app import create_app
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     work = Path(tempfile.mkdtemp(prefix="reagentplan-bench-"))
     try:
@@ -156,11 +183,21 @@ def main(argv=None) -> int:
 def _run(args, work: Path, create_app, build_demo_workbook) -> int:
     print(f"futures per plan: {args.futures}; machine: {os.cpu_count()} cores")
 
+    demo365 = build_demo_workbook(work / "demo365.xlsx", horizon_days=365)
     t = time.perf_counter()
-    app365 = create_app(build_demo_workbook(work / "demo365.xlsx", horizon_days=365),
-                        futures=args.futures, work_dir=work / "app365")
-    print(f"startup plan, 365-day demo (before serving; not a target): {time.perf_counter() - t:.1f} s")
+    app365 = create_app(demo365, futures=args.futures, work_dir=work / "app365", background=True,
+                        plan_cache=work / "plan-cache")
     srv365, url365 = serve(app365)
+    answered = first_answer(url365) + (time.perf_counter() - t)
+    print(f"start to the first answer, 365-day demo, plan still being made: {answered:.2f} s "
+          f"(target <= {FIRST_ANSWER_TARGET_S:g} s: "
+          f"{'met' if answered <= FIRST_ANSWER_TARGET_S else 'missed'})")
+    print(f"startup plan, 365-day demo (in the background; not a target): {until_ready(app365, t):.1f} s")
+    t = time.perf_counter()
+    again = create_app(demo365, futures=args.futures, work_dir=work / "again", background=True,
+                       plan_cache=work / "plan-cache")
+    print(f"second start with the same inputs, plan read from the cache: {until_ready(again, t):.1f} s "
+          f"(from the cache: {again.reagentplan.from_cache})")
 
     cold_profile = tempfile.mkdtemp(dir=work)
     driver = browser(cold_profile)
@@ -182,7 +219,7 @@ def _run(args, work: Path, create_app, build_demo_workbook) -> int:
     t = time.perf_counter()
     app90 = create_app(build_demo_workbook(work / "demo90.xlsx", horizon_days=90),
                        futures=args.futures, work_dir=work / "app90")
-    print(f"startup plan, 90-day demo (not a target): {time.perf_counter() - t:.1f} s")
+    print(f"startup plan, 90-day demo (before serving; not a target): {time.perf_counter() - t:.1f} s")
     srv90, url90 = serve(app90)
     driver = browser(tempfile.mkdtemp(dir=work))
     try:

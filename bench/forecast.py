@@ -32,7 +32,7 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import BalanceParams, Drivers, mass_balance  # noqa: E402
 from reagentplan.forecast import fit_forecast, sample_futures  # noqa: E402
 from reagentplan.forecast.futures import CHUNK_FUTURES  # noqa: E402

@@ -10,28 +10,29 @@ went.  Usage: python bench/rehearse.py [WEEKS] [FUTURES] [OUT_DIR|-] [GUARD_FUTU
 
 from __future__ import annotations
 
+import dataclasses
 import sys
 import tempfile
 import time
 from pathlib import Path
 
-from demo.build_demo import build_demo_workbook
+from reagentplan.demo.build_demo import build_demo_workbook
 from reagentplan.output import staged_output
 from reagentplan.output.rehearse import write_rehearsal
 from reagentplan.rehearse import rehearse
 from reagentplan.rehearse.metrics import COST_CAUSES
-from reagentplan.rehearse.run import PLAN_FUTURES, RISK_LEVEL
+from reagentplan.settings import WEEKLY_PLAN
 
 
-def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_futures: int = PLAN_FUTURES,
-         workers: int = 2, risk_level: float = RISK_LEVEL) -> None:
+def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_futures: int = WEEKLY_PLAN.futures,
+         workers: int = 2, risk_level: float = WEEKLY_PLAN.risk_level) -> None:
     lookahead = 120
     with tempfile.TemporaryDirectory() as tmp:
         wb = build_demo_workbook(Path(tmp) / "demo.xlsx", horizon_days=7 * weeks + lookahead + 7)
         t0 = time.perf_counter()
-        res = rehearse(wb, weeks=weeks, futures=futures, seed=14, lookahead_days=lookahead, firm_days=14,
-                       time_limit=20, plan_futures=plan_futures, progress=True, workers=workers,
-                       risk_level=risk_level)
+        settings = dataclasses.replace(WEEKLY_PLAN, futures=plan_futures, risk_level=risk_level)
+        res = rehearse(wb, weeks=weeks, futures=futures, seed=14, lookahead_days=lookahead,
+                       settings=settings, progress=True, workers=workers)
         wall = time.perf_counter() - t0
     s = res.summary()
     print(f"rehearsal: demo station, {weeks} weeks x {futures} futures, lookahead {lookahead} d, firm 14 d, "
@@ -75,5 +76,5 @@ def main(weeks: int = 16, futures: int = 20, out: str | None = None, plan_future
 if __name__ == "__main__":
     a = sys.argv[1:]
     main(int(a[0]) if a else 16, int(a[1]) if len(a) > 1 else 20, a[2] if len(a) > 2 and a[2] != '-' else None,
-         int(a[3]) if len(a) > 3 else PLAN_FUTURES, int(a[4]) if len(a) > 4 else 2,
-         float(a[5]) / 100 if len(a) > 5 else RISK_LEVEL)
+         int(a[3]) if len(a) > 3 else WEEKLY_PLAN.futures, int(a[4]) if len(a) > 4 else 2,
+         float(a[5]) / 100 if len(a) > 5 else WEEKLY_PLAN.risk_level)

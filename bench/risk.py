@@ -20,7 +20,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.forecast import FLOWS, sample_futures  # noqa: E402
 from reagentplan.pipeline import SO2_FLOWS, STORE_FLOWS  # noqa: E402
 from reagentplan.risk import replay  # noqa: E402

@@ -1,7 +1,7 @@
 """Benchmark: the scheduler on the demo station for several horizons and solvers.
 
 Run:  python bench/schedule.py [--solvers highs,scip,cp-sat] [--horizons 30,90,120,180,365]
-      [--time-limit 300] [--futures 50] [--plain] [--lever]
+      [--time-limit S] [--futures 50] [--plain] [--lever]
 
 The demo station is quality-coupled: two quarries of different CaCO3 in a well-mixed
 silo, a board plant with a purity limit and a season, freight tiers, a shared train set.
@@ -35,10 +35,11 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.balance import balance_frame  # noqa: E402
 from reagentplan.scenario import load_scenario  # noqa: E402
 from reagentplan.schedule import make_plan  # noqa: E402
+from reagentplan.settings import PLAN  # noqa: E402
 
 CAUSES = ("stone", "freight", "byproduct_sales", "landfill", "allowances", "penalties")
 
@@ -59,7 +60,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--solvers", default="highs,scip")
     ap.add_argument("--horizons", default="30,90,120,180,365")
-    ap.add_argument("--time-limit", type=float, default=300.0)
+    ap.add_argument("--time-limit", type=float, default=PLAN.time_limit)
     ap.add_argument("--gap", type=float, default=5e-4)
     ap.add_argument("--plain", action="store_true")
     ap.add_argument("--futures", type=int, default=0,

@@ -42,11 +42,11 @@ def child(args) -> int:
     """The server: the demo station planned, then served until SIGTERM."""
     import logging
 
-    from dashboard.app import create_app, serve
+    from reagentplan.dashboard.app import create_app, serve
 
     # twenty sessions at once queue requests by design; waitress's note on each is noise here
     logging.getLogger("waitress.queue").setLevel(logging.ERROR)
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     work = Path(args.work)
     workbook = build_demo_workbook(work / f"demo{args.days}.xlsx", horizon_days=args.days)
@@ -75,7 +75,7 @@ def p95(values: list[float]) -> float:
 
 
 def load_phase(url: str, sessions: int, rounds: int) -> None:
-    from dashboard.testing import DashSession
+    from reagentplan.dashboard.testing import DashSession
 
     users = [DashSession(url) for _ in range(sessions)]
     barrier = threading.Barrier(sessions)
@@ -125,7 +125,7 @@ def soak_phase(url: str, server_pid: int, plans: Path, jobs: Path, replans: int,
                cache_mb: float, growth_mb: float) -> None:
     import psutil
 
-    from dashboard.testing import DashSession
+    from reagentplan.dashboard.testing import DashSession
 
     proc = psutil.Process(server_pid)
     s = DashSession(url)

@@ -31,9 +31,10 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from demo.build_demo import build_demo_workbook  # noqa: E402
+from reagentplan.demo.build_demo import build_demo_workbook  # noqa: E402
 from reagentplan.study.cluster import run_cases, study_client  # noqa: E402
-from reagentplan.study.run import CaseSettings, failed_row  # noqa: E402
+from reagentplan.settings import PlanSettings  # noqa: E402
+from reagentplan.study.run import failed_row  # noqa: E402
 from reagentplan.study.study import prepare_study  # noqa: E402
 
 SPECS = ["suppliers[Greyfell Quarry].max_t_per_month=19200,28800",
@@ -122,7 +123,7 @@ def main() -> None:
         t0 = time.perf_counter()
         grid, shared = prepare_study(book, SPECS, futures=args.futures, seed=0)
         prep = time.perf_counter() - t0
-    settings = CaseSettings(time_limit=60)
+    settings = PlanSettings(time_limit=60)
     print(f"load average before: {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores (other "
           "work on a shared machine slows the 2-worker run most)")
     print(f"demo station, {args.days} days, {len(grid.cases)} cases, {shared.n_futures} shared "

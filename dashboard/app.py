@@ -7,7 +7,7 @@ Usage::
 
 or, from Python::
 
-    from dashboard.app import create_app, serve
+    from reagentplan.dashboard.app import create_app, serve
     serve(create_app("station.xlsx"), "127.0.0.1", 8050)
 
 It is served by waitress (a production WSGI server, pure Python): a fixed pool of
@@ -19,6 +19,7 @@ tracebacks shown.  `make_server` gives the server without running it (tests and
 from __future__ import annotations
 
 import atexit
+import dataclasses
 import os
 import shutil
 import signal
@@ -26,15 +27,17 @@ import sys
 import tempfile
 import threading
 import time
+from collections.abc import Callable
 from pathlib import Path
 from types import SimpleNamespace
 
 from dash import Dash, dcc, html
 
 from reagentplan import CAUTION, __version__
+from reagentplan.pipeline import settings_of
+from reagentplan.settings import PlanSettings
 
 from . import callbacks
-from .callbacks import PlanOptions
 from .security import (DEFAULT_HOST, ORIGINS_ENV, LoginThrottle, install_basic_auth,
                        install_body_limit, install_headers, install_origin_check)
 from .store import PlanStore
@@ -65,7 +68,7 @@ def _load(workbook, work_dir: Path, demo_days: int):
     from reagentplan.scenario import load_scenario
 
     if workbook is None:
-        from demo.build_demo import build_demo_workbook
+        from reagentplan.demo.build_demo import build_demo_workbook
 
         path = build_demo_workbook(work_dir / "demo_station.xlsx", horizon_days=demo_days)
         return load_scenario(path), "the demo station"
@@ -125,22 +128,24 @@ def build_layout(run, meta: dict, scenario_id: str, plan_id: str, study=None,
     return page
 
 
-def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0,
-               solver: str = "highs", time_limit: float = 60.0, firm_days: int = 56,
-               risk_level: float = 0.05, demo_days: int = 365, password: str | None = None,
+def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = None,
+               demo_days: int = 365, password: str | None = None,
                run=None, work_dir: str | os.PathLike | None = None,
                origins: tuple[str, ...] | None = None,
                throttle: LoginThrottle | None = None, cache_bytes: int = CACHE_BYTES,
                study_dir: str | os.PathLike | None = None, db: str | None = None,
-               as_of=None) -> Dash:
+               as_of=None, background: bool = False,
+               plan_cache: str | os.PathLike | bool | None = None,
+               on_ready: Callable[[SimpleNamespace], None] | None = None, **plan_changes) -> Dash:
     """Plan the scenario and build the app around the result.
 
     Parameters
     ----------
     workbook_bytes_or_path : a scenario workbook (path or bytes); ``None`` for the demo
         station, built into the app's private folder with ``demo_days`` days.
-    futures, seed, solver, time_limit, firm_days, risk_level : as `run_plan`, for the
-        startup plan and every re-plan.
+    settings, plan_changes : the `reagentplan.settings.PlanSettings` (default
+        `reagentplan.settings.PLAN`) and changes to its fields (``futures=0``...), as
+        `run_plan` takes them, for the startup plan and every re-plan.
     password : when given, every request must carry it (HTTP basic auth), with failed
         attempts slowed and locked out per address (``throttle``, a `LoginThrottle`).
         Without one, only loopback host names are answered.
@@ -158,6 +163,16 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
         arrival or shipment; not stored as a version), and a record tab shows
         the plan version in force, surveys, recorded movements against the plan, what
         changed since the last plan and takes uploads of actuals.
+    background : return at once and make the startup plan in a thread; until it is
+        ready the page shows what is being done (`dashboard.views.startup`) and then
+        reloads into the views.  ``app.reagentplan.ready`` tells when; a given workbook
+        is still read (and refused when bad) before this returns.
+    plan_cache : keep the startup plan on disk by the fingerprint of its inputs and read
+        it back on the next start with the same inputs (`reagentplan.plancache`): a
+        folder, or True for the user cache folder (`reagentplan.plancache.cache_dir`);
+        None or False: no disk cache.
+    on_ready : called with ``app.reagentplan`` once the startup plan is ready (in the
+        planning thread when ``background``).
 
     Raises
     ------
@@ -170,64 +185,34 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     import flask
     from dash import DiskcacheManager
 
+    from reagentplan.plancache import PlanProgress
+
     if work_dir is None:
         work = Path(tempfile.mkdtemp(prefix="reagentplan-dashboard-"))
         atexit.register(shutil.rmtree, work, True)
     else:
         work = Path(work_dir)
         work.mkdir(parents=True, exist_ok=True)
-    options = PlanOptions(futures=futures, seed=seed, solver=solver, time_limit=time_limit,
-                          firm_days=firm_days, risk_level=risk_level)
+    options = settings_of(settings, **plan_changes)
     study = None
     if study_dir is not None:
         from reagentplan.study.results import read_study_table
 
         study = read_study_table(study_dir)
-    t0 = time.perf_counter()
+    loaded = None
+    if workbook_bytes_or_path is not None and run is None:
+        loaded = _load(workbook_bytes_or_path, work, demo_days)  # a bad workbook is refused now
     record_source = None
     if db is not None:
-        from reagentplan.pipeline import run_plan_from_record
-        from reagentplan.record.db import connect
-
         from .record_callbacks import RecordSource
 
-        scenario, source = _load(workbook_bytes_or_path, work, demo_days)
-        engine = connect(db)
-        try:
-            wb_path = workbook_bytes_or_path if isinstance(workbook_bytes_or_path, (str, os.PathLike)) \
-                else work / "demo_station.xlsx"
-            if as_of is None:  # what is true now: the day of the newest recorded fact
-                from reagentplan.record.asof import latest_fact_day, load_record
-
-                as_of = latest_fact_day(load_record(engine))
-            run = run or run_plan_from_record(wb_path, engine, as_of, scenario=scenario, store=False,
-                                              futures=futures, seed=seed, solver=solver,
-                                              time_limit=time_limit, firm_days=firm_days,
-                                              risk_level=risk_level)
-        finally:
-            engine.dispose()
-        import datetime as _dt
-
-        planned_as_of = _dt.date.fromisoformat(run.summary_extra["as_of"])
-        # uploads may carry facts up to today, or up to the as-of day or the day before the
-        # workbook's start when those are later (a workbook planned ahead of the calendar)
-        record_source = RecordSource(db, scenario, max(
-            planned_as_of, scenario.plant.start_date - _dt.timedelta(days=1), _dt.date.today()))
-        scenario = run.plan.scenario  # what-if re-plans start from the record's state too
-        source = f"{source} from the record as of {run.summary_extra.get('as_of')}"
-    elif run is None:
-        scenario, source = _load(workbook_bytes_or_path, work, demo_days)
-        run = options.run(scenario)
-    else:
-        scenario, source = run.plan.scenario, run.plan.scenario.source_name or "the given plan"
-    seconds = time.perf_counter() - t0
+        record_source = RecordSource(db, None)  # filled by the startup plan
+    progress = PlanProgress()
+    start = _Startup(workbook_bytes_or_path, loaded, work, demo_days, options, run, db, as_of,
+                     record_source, progress,
+                     None if plan_cache in (None, False) else plan_cache)
 
     store = PlanStore(str(work / "plans"), size_limit=cache_bytes)
-    meta = {"source": source, "whatif": "as the workbook says", "made": time.strftime("%H:%M:%S"),
-            "seconds": seconds}
-    scenario_id = store.put("scenario", scenario, {"source": source}, pin=True)
-    plan_id = store.put("run", run, meta, pin=True)
-
     server = flask.Flask("reagentplan.dashboard")
     if origins is None:
         origins = tuple(o.strip() for o in os.environ.get(ORIGINS_ENV, "").split(",") if o.strip())
@@ -238,25 +223,171 @@ def create_app(workbook_bytes_or_path=None, *, futures: int = 500, seed: int = 0
     install_headers(server)
 
     manager = DiskcacheManager(diskcache.Cache(str(work / "jobs"), size_limit=JOBS_BYTES))
+    # with the startup page first, the views' components appear only after a reload
     app = Dash(__name__, server=server, serve_locally=True, title="reagentplan · station logistics",
                update_title=None, background_callback_manager=manager, include_assets_files=False,
-               enable_mcp=False, suppress_callback_exceptions=False)
+               enable_mcp=False, suppress_callback_exceptions=background)
     prefix = app.config.requests_pathname_prefix or "/"
     app.index_string = INDEX_STRING.replace(
         "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
-    app.layout = build_layout(run, meta, scenario_id, plan_id, study,
-                              record_source.overview() if record_source is not None else None)
+    app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=None,
+                                      plan_id=None, work_dir=work, startup_seconds=None,
+                                      warnings=(), throttle=guard, origins=origins,
+                                      record=record_source, progress=progress, ready=False,
+                                      from_cache=False, plan_meta=None)
+    page: list = []
+
+    def finish() -> None:
+        scenario, run_, meta = start.run()
+        scenario_id = store.put("scenario", scenario, {"source": meta["source"]}, pin=True)
+        plan_id = store.put("run", run_, meta, pin=True)
+        page.append(build_layout(run_, meta, scenario_id, plan_id, study,
+                                 record_source.overview() if record_source is not None else None))
+        ns = app.reagentplan
+        ns.scenario_id, ns.plan_id, ns.startup_seconds = scenario_id, plan_id, meta["seconds"]
+        ns.warnings = tuple(getattr(scenario, "warnings", ()))
+        ns.from_cache, ns.plan_meta = bool(meta.get("from_cache")), meta
+        if on_ready is not None:
+            on_ready(ns)
+        ns.ready = True  # the page shows the views from now on
+
     callbacks.register(app, store, options, manager)
     study_view.register(app)
     if record_source is not None:
         from .record_callbacks import register_record
 
         register_record(app, record_source)
-    app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=scenario_id,
-                                      plan_id=plan_id, work_dir=work, startup_seconds=seconds,
-                                      warnings=tuple(getattr(scenario, "warnings", ())),
-                                      throttle=guard, origins=origins, record=record_source)
+    if not background:
+        try:
+            finish()
+        finally:
+            progress.finish()
+        app.layout = page[0]
+        return app
+
+    from .views import startup as startup_view
+
+    what = loaded[1] if loaded is not None else "the demo station"
+
+    def layout():
+        return page[0] if app.reagentplan.ready else startup_view.layout(progress.snapshot(), what)
+
+    app.layout = layout
+    startup_view.register(app, progress)
+
+    def work_thread() -> None:
+        try:
+            finish()
+            progress.finish()
+        except BaseException as exc:  # shown on the page and on the console
+            from reagentplan.errors import ScenarioError
+
+            text = exc.report() if isinstance(exc, ScenarioError) else f"{type(exc).__name__}: {exc}"
+            progress.finish(text)
+            print(f"The first plan could not be made: {text}", file=sys.stderr)
+
+    threading.Thread(target=work_thread, daemon=True, name="reagentplan-startup-plan").start()
     return app
+
+
+class _Startup:
+    """The startup plan: the scenario (the given workbook, the demo station, or the
+    record's state), planned or read back from the plan cache, saying each step."""
+
+    def __init__(self, workbook, loaded, work: Path, demo_days: int, options: PlanSettings, run,
+                 db, as_of, record_source, progress, plan_cache):
+        self.workbook, self.loaded, self.work, self.demo_days = workbook, loaded, work, demo_days
+        self.options, self.given_run, self.db, self.as_of = options, run, db, as_of
+        self.record_source, self.progress, self.plan_cache = record_source, progress, plan_cache
+
+    def _scenario(self):
+        if self.loaded is None:
+            self.progress.say("Building the demo station workbook…")
+            self.loaded = _load(None, self.work, self.demo_days)
+        return self.loaded
+
+    def _source_bytes(self):
+        """What the plan is made from, for its fingerprint: the workbook's bytes, or the
+        demo's parameters (the demo is built by this package's code)."""
+        if self.workbook is None:
+            return f"demo station, {self.demo_days} days"
+        if isinstance(self.workbook, (bytes, bytearray)):
+            return bytes(self.workbook)
+        return Path(self.workbook).read_bytes()
+
+    def run(self):
+        """``(scenario, run, meta)``: meta as the header shows it."""
+        from reagentplan import plancache
+
+        say = self.progress.say
+        t0 = time.perf_counter()
+        if self.given_run is not None:
+            run = self.given_run
+            scenario = run.plan.scenario
+            if self.record_source is not None:
+                self._fill_record(run, self.loaded[0] if self.loaded else scenario)
+            return scenario, run, {"source": scenario.source_name or "the given plan",
+                                   "whatif": "as the workbook says",
+                                   "made": time.strftime("%H:%M:%S"),
+                                   "seconds": time.perf_counter() - t0}
+        scenario, source = self._scenario()
+        settings = dataclasses.asdict(self.options)
+        directory = None if self.plan_cache is True else self.plan_cache
+        if self.db is None:
+            key = plancache.plan_key(self._source_bytes(), settings)
+            run, made = plancache.cached(
+                key, lambda: plancache.plan_in_steps(scenario, self.options, say=say),
+                directory=directory, progress=self.progress, use=self.plan_cache is not None)
+        else:
+            run, made, source = self._from_record(scenario, source, settings, directory)
+            scenario = run.plan.scenario  # what-if re-plans start from the record's state too
+        meta = {"source": source, "whatif": "as the workbook says", "made": made["made"],
+                "seconds": made["seconds"], "from_cache": made["from_cache"]}
+        return scenario, run, meta
+
+    def _from_record(self, scenario, source, settings, directory):
+        from reagentplan import plancache
+        from reagentplan.pipeline import run_plan_from_record
+        from reagentplan.record.asof import latest_fact_day, load_record
+        from reagentplan.record.db import connect
+
+        say = self.progress.say
+        wb_path = self.workbook if isinstance(self.workbook, (str, os.PathLike)) \
+            else self.work / "demo_station.xlsx"
+        say("Reading the operations record…")
+        engine = connect(self.db)
+        try:
+            record = load_record(engine)
+            as_of = self.as_of
+            if as_of is None:  # what is true now: the day of the newest recorded fact
+                as_of = latest_fact_day(record)
+            key = plancache.plan_key(self._source_bytes(), settings, as_of=as_of,
+                                     last_import_id=record.last_import_id)
+
+            def make():
+                say(f"Planning from the record's state at the end of {as_of} "
+                    f"({self.options.futures} futures)…")
+                return run_plan_from_record(wb_path, engine, as_of, scenario=scenario, store=False,
+                                            **settings)
+
+            run, made = plancache.cached(key, make, directory=directory, progress=self.progress,
+                                         use=self.plan_cache is not None)
+        finally:
+            engine.dispose()
+        self._fill_record(run, scenario)
+        return run, made, f"{source} from the record as of {run.summary_extra.get('as_of')}"
+
+    def _fill_record(self, run, scenario) -> None:
+        """The record tab's station and the last day an upload may carry."""
+        import datetime as _dt
+
+        as_of = run.summary_extra.get("as_of")
+        planned_as_of = _dt.date.fromisoformat(str(as_of)) if as_of else _dt.date.today()
+        # uploads may carry facts up to today, or up to the as-of day or the day before the
+        # workbook's start when those are later (a workbook planned ahead of the calendar)
+        self.record_source.scenario = scenario
+        self.record_source.today = max(planned_as_of, scenario.plant.start_date - _dt.timedelta(days=1),
+                                       _dt.date.today())
 
 
 def make_server(app: Dash, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT, *,

@@ -14,13 +14,13 @@ import dataclasses
 import os
 import tempfile
 import time
-from dataclasses import dataclass
 from pathlib import Path
 
 from dash import Input, Output, State, dcc, html, no_update
 from dash.exceptions import PreventUpdate
 
 from reagentplan.errors import ScenarioError
+from reagentplan.settings import PlanSettings
 from reagentplan.whatif import apply_whatif, describe_whatif
 
 from .store import PlanStore
@@ -30,25 +30,6 @@ from .views.common import fmt_money
 
 VIEWS = (coordinator, plant, sales)
 UPLOAD_CAP_MB = C.MAX_UPLOAD_BYTES // 2**20
-
-
-@dataclass(frozen=True)
-class PlanOptions:
-    """How re-plans are run (the startup plan uses the same)."""
-
-    futures: int = 500
-    seed: int = 0
-    solver: str = "highs"
-    time_limit: float = 60.0
-    firm_days: int = 56
-    risk_level: float = 0.05
-
-    def run(self, scenario):
-        from reagentplan.pipeline import run_plan
-
-        return run_plan(scenario, futures=self.futures, seed=self.seed, solver=self.solver,
-                        time_limit=self.time_limit, firm_days=self.firm_days,
-                        risk_level=self.risk_level)
 
 
 # --------------------------------------------------------------------------- drawing
@@ -282,9 +263,10 @@ def whatif_kwargs(scenario, load_pct, sulfur_pct, removal, outage_on, outage_ran
     return kwargs
 
 
-def replan(store: PlanStore, options: PlanOptions, scenario_id, load_pct, sulfur_pct, removal,
+def replan(store: PlanStore, options: PlanSettings, scenario_id, load_pct, sulfur_pct, removal,
            outage_on, outage_range, set_progress=None, removal_range=None, allowance_price=None):
-    """Apply the what-if, plan, store the run: ``(plan id, message, message class)``."""
+    """Apply the what-if, plan it with ``options`` (those of the startup plan), store the
+    run: ``(plan id, message, message class)``."""
     say = set_progress or (lambda _text: None)
     entry = store.get("scenario", scenario_id)
     if entry is None:
@@ -297,7 +279,9 @@ def replan(store: PlanStore, options: PlanOptions, scenario_id, load_pct, sulfur
         say(f"Sampling {options.futures} futures, solving the plan and replaying it…"
             if options.futures else "Solving the plan…")
         t0 = time.perf_counter()
-        run = options.run(changed)
+        from reagentplan.pipeline import run_plan
+
+        run = run_plan(changed, options)
         seconds = time.perf_counter() - t0
     except ScenarioError as exc:
         return no_update, exc.report(), "rp-msg bad"
@@ -338,7 +322,7 @@ def download(store: PlanStore, plan_id):
 # --------------------------------------------------------------------------- wiring
 
 
-def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
+def register(app, store: PlanStore, options: PlanSettings, manager) -> None:
     """Wire the callbacks to ``app``."""
 
     drawn = DrawnViews()
@@ -411,6 +395,6 @@ def register(app, store: PlanStore, options: PlanOptions, manager) -> None:
         return download(store, plan_id)
 
 
-__all__ = ["PlanOptions", "register", "parse_upload", "accept_upload", "whatif_kwargs", "replan",
+__all__ = ["register", "parse_upload", "accept_upload", "whatif_kwargs", "replan",
            "header_content", "view_outputs", "download", "plan_workbook_bytes", "scenario_controls",
            "outage_text"]

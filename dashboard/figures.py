@@ -152,7 +152,8 @@ def contract_figure(progress: pd.DataFrame, title: str, empty_text: str,
                 hoverinfo="skip"), row=i, col=1)
         top = np.nanmax(np.r_[p["planned_t"].to_numpy(float), p["max_t"].to_numpy(float),
                               p["min_t"].to_numpy(float), 1.0])
-        fig.update_yaxes(title_text="t", row=i, col=1, range=[0, 1.15 * top])
+        # the unit on each tick ("20k t"): a rotated one-letter axis title reads as an odd glyph
+        fig.update_yaxes(title_text=None, ticksuffix=" t", row=i, col=1, range=[0, 1.15 * top])
     fig.update_layout(template=TEMPLATE, title=title, barmode="overlay",
                       height=150 + 150 * len(lanes), bargap=0.2, margin=dict(t=60, b=90),
                       # below the two-line month labels (month, then year), not over them

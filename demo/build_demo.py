@@ -13,7 +13,7 @@ arguments always give the same workbook.
 
 Usage::
 
-    python -m demo.build_demo [OUT.xlsx] [--start 2027-01-01] [--horizon 365]
+    python -m reagentplan.demo.build_demo [OUT.xlsx] [--start 2027-01-01] [--horizon 365]
 
 or, from Python, :func:`build_demo_workbook`.
 """
@@ -669,7 +669,7 @@ def build_demo_workbook(
 
 def _main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(
-        prog="python -m demo.build_demo",
+        prog="python -m reagentplan.demo.build_demo",
         description=f"Write the scenario workbook of the invented {STATION_NAME}.",
     )
     parser.add_argument("out", nargs="?", default="velmora_bend.xlsx",

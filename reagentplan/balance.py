@@ -29,6 +29,7 @@ import pandas as pd
 
 from . import chemistry as chem
 from .scenario import Scenario
+from .timeseries.generation import median_generation
 from .units import KG_PER_GJ_TO_LB_PER_MMBTU
 
 # --------------------------------------------------------------------------- inputs
@@ -129,8 +130,6 @@ def scenario_drivers(scenario: Scenario) -> Drivers:
     coal's sulfur] mixes by the sulfur each source brings (a source of no sulfur adds
     none), so the blend's sulfur in rejects is the sum of the sources'.
     """
-    from .forecast.generation import median_generation  # lazy: the forecast imports this module
-
     gen = median_generation(scenario)  # (days × units) [MWh]: plan, else forecast median
     hr = np.array([u.heat_rate_gj_per_mwh for u in scenario.units])
     coal_frac = 1 - np.array([u.gas_heat_share_pct for u in scenario.units]) / 100

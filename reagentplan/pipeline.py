@@ -7,19 +7,20 @@ their own.
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import pandas as pd
 
 from .balance import balance_frame
 from .scenario import Scenario
+from .schema import STORE_FLOW_COLUMN
 from .risk import RiskResult, replay
 from .schedule import PlanResult, make_plan
+from .settings import PLAN, PlanSettings
 
 #: Which sampled flow guards which store.
-STORE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
-               "bottom_ash": "bottom_ash_t"}
+STORE_FLOWS = STORE_FLOW_COLUMN
 
 
 #: Extra balance outputs kept per future for the permit consequence of a shortfall.
@@ -54,40 +55,48 @@ class PlanRun:
         return list(self.futures.warnings) if self.futures is not None else []
 
 
-def run_plan(scenario: Scenario, *, futures: int = 500, seed: int = 0, solver: str = "highs",
-             time_limit: float = 60.0, firm_days: int = 56, risk_level: float = 0.05,
-             progress: bool = False, previous: pd.DataFrame | None = None,
-             sampler=None) -> PlanRun:
-    """Sample ``futures`` futures (none when 0), plan against them, replay the plan
-    against them (the risk).  ``sampler(scenario)``, when given, returns the futures
-    instead (futures sampled once and cut to the scenario's days, as a rehearsal's
-    weekly plans take them; see `reagentplan.rehearse.guard`)."""
+def settings_of(settings: PlanSettings | None = None, **changes) -> PlanSettings:
+    """``settings`` (default `reagentplan.settings.PLAN`) with ``changes`` to its fields
+    (an unknown name raises ``TypeError``)."""
+    return replace(settings or PLAN, **changes) if changes else (settings or PLAN)
+
+
+def run_plan(scenario: Scenario, settings: PlanSettings | None = None, *, progress: bool = False,
+             previous: pd.DataFrame | None = None, sampler=None, **changes) -> PlanRun:
+    """Sample ``settings.futures`` futures (none when 0), plan against them, replay the
+    plan against them (the risk).  ``settings`` defaults to `reagentplan.settings.PLAN`;
+    ``changes`` (``futures=0, time_limit=20``...) replace its fields.  ``sampler(scenario)``,
+    when given, returns the futures instead (futures sampled once and cut to the
+    scenario's days, as a rehearsal's weekly plans take them; see
+    `reagentplan.rehearse.guard`)."""
+    settings = settings_of(settings, **changes)
     fut = None
     if sampler is not None:
         fut = sampler(scenario)
-    elif futures > 0:
+    elif settings.futures > 0:
         from .forecast import sample_futures
 
-        fut = sample_futures(scenario, futures, seed=seed, progress=progress, keep=FUTURE_FLOWS)
-    return plan_with_futures(scenario, fut, solver=solver, time_limit=time_limit,
-                             firm_days=firm_days, risk_level=risk_level, progress=progress,
-                             previous=previous)
+        fut = sample_futures(scenario, settings.futures, seed=settings.seed, progress=progress,
+                             keep=FUTURE_FLOWS)
+    return plan_with_futures(scenario, fut, settings, progress=progress, previous=previous)
 
 
-def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_limit: float = 60.0,
-                      firm_days: int = 56, risk_level: float = 0.05,
-                      progress: bool = False, previous: pd.DataFrame | None = None) -> PlanRun:
+def plan_with_futures(scenario: Scenario, fut, settings: PlanSettings | None = None, *,
+                      progress: bool = False, previous: pd.DataFrame | None = None,
+                      **changes) -> PlanRun:
     """Plan ``scenario`` against futures already sampled (`reagentplan.forecast.Futures`
     holding at least `FUTURE_FLOWS`, or ``None`` for none) and replay the plan against
-    them.  `run_plan` is this after sampling; a study calls it with futures shared
-    between its cases."""
+    them; ``settings`` and ``changes`` as `run_plan` (its futures and seed unused).
+    `run_plan` is this after sampling; a study calls it with futures shared between
+    its cases."""
+    settings = settings_of(settings, **changes)
     balance = balance_frame(scenario)
     flows = None
     if fut is not None:
         flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
                  if store in scenario.storage and q in fut.flows}
-    plan = make_plan(scenario, balance, flows=flows, risk_level=risk_level, firm_days=firm_days,
-                     solver=solver, time_limit=time_limit, progress=progress, previous=previous)
+    plan = make_plan(scenario, balance, flows=flows, progress=progress, previous=previous,
+                     **settings.solve_options())
     risk = None
     if fut is not None:
         from .schedule.plan import flows_at_plan_stone
@@ -100,9 +109,11 @@ def plan_with_futures(scenario: Scenario, fut, *, solver: str = "highs", time_li
     return PlanRun(plan, fut, risk, {"contract_months": contract_month_note(scenario)})
 
 
-def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = None, *,
-                         scenario: Scenario | None = None, horizon_days: int | None = None,
-                         store: bool = True, **options) -> PlanRun:
+def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = None,
+                         settings: PlanSettings | None = None, *, scenario: Scenario | None = None,
+                         horizon_days: int | None = None, store: bool = True,
+                         progress: bool = False, previous: pd.DataFrame | None = None,
+                         sampler=None, **changes) -> PlanRun:
     """Plan a workbook from the operations record's state at the end of ``as_of``
     (default: the day before the workbook's start) and store the plan as a new version.
 
@@ -110,7 +121,8 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     stock, the month-to-date contract tonnes, the booked orders and the histories
     (`reagentplan.record.asof`).  ``scenario`` is the workbook already loaded (else it
     is read); ``horizon_days`` overrides the workbook's; ``store`` = False plans without
-    storing a version (the dashboard's view).  ``options`` are those of `run_plan`.
+    storing a version (the dashboard's view).  ``settings``, ``changes``, ``progress``,
+    ``previous`` and ``sampler`` are those of `run_plan`.
     """
     from .output import run_summary
     from .record.asof import apply_asof, asof_state, load_record
@@ -130,14 +142,15 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     record = load_record(engine)
     state = asof_state(scenario, record, as_of)
     planned = apply_asof(scenario, state, horizon_days)
-    if options.get("previous") is None and store:
-        options["previous"] = plan_in_force(engine)
-    run = run_plan(planned, **options)
+    settings = settings_of(settings, **changes)
+    if previous is None and store:
+        previous = plan_in_force(engine)
+    run = run_plan(planned, settings, progress=progress, previous=previous, sampler=sampler)
     run.summary_extra.update(state.summary())
     if not store:
         run.summary_extra["plan_id"] = None
         return run
-    opts = {k: v for k, v in options.items() if k not in ("progress", "previous")} | {"horizon_days": horizon_days}
+    opts = settings.as_dict() | {"horizon_days": horizon_days}
     plan_id = store_plan(engine, summary=run_summary(run), movements=run.plan.movements,
                          inventory=run.plan.inventory, workbook_bytes=data,
                          workbook_name=Path(workbook).name, as_of=as_of,
@@ -158,7 +171,7 @@ def plan_in_force(engine) -> pd.DataFrame | None:
 
 
 def baseline_from_record(workbook: str | Path, engine, as_of: dt.date, *, scenario: Scenario,
-                         horizon_days: int | None = None, firm_days: int = 56):
+                         horizon_days: int | None = None, firm_days: int = PLAN.firm_days):
     """The reorder-point policy planned from the record's state at the end of ``as_of``,
     without the optimiser (a rehearsal of the baseline needs no solve): the planned
     scenario, its lanes, the policy's `DailyPlan` and its ``movements`` frame."""

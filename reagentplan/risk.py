@@ -27,9 +27,10 @@ import numpy as np
 import pandas as pd
 
 from .balance import trailing_sum
-from .schedule.evaluate import PRODUCTION, DailyPlan
+from .schedule.evaluate import DailyPlan
 from .schedule.lanes import SUPPLY, Lane
 from .schedule.plan import PlanResult
+from .schema import STORE_FLOW_COLUMN
 
 #: Chance above which a store's day counts as at risk in the ranked list [-].
 ALERT_LEVEL = 0.05
@@ -247,8 +248,7 @@ def _remedy_text(lane: Lane, d: int, qty, scn) -> str:
 
 def deterministic_flows(balance: pd.DataFrame) -> dict[str, np.ndarray]:
     """The balance itself as a single future, (1 × days) per store."""
-    cols = {"limestone": "limestone_t", **PRODUCTION}
-    return {s: balance[c].to_numpy(float)[None, :] for s, c in cols.items()}
+    return {s: balance[c].to_numpy(float)[None, :] for s, c in STORE_FLOW_COLUMN.items()}
 
 
 __all__ = ["replay", "RiskResult", "deterministic_flows", "replay_limestone", "replay_byproduct"]

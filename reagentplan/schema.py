@@ -13,6 +13,11 @@ from typing import Any
 
 STORES = ("limestone", "gypsum", "fly_ash", "bottom_ash")
 BYPRODUCTS = ("gypsum", "fly_ash", "bottom_ash")
+#: The column of `reagentplan.balance.balance_frame` (and of the sampled futures) that is
+#: each store's daily flow [t/d]: what the scrubber takes from the limestone store, what
+#: the plant makes into the others (gypsum as wet cake).  The one place this is written.
+STORE_FLOW_COLUMN = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
+                     "bottom_ash": "bottom_ash_t"}
 #: Pulveriser (mill) rejects: hauled straight from the mills, no store of their own.
 MILL_REJECTS = "mill_rejects"
 #: Materials a disposal site may take: the stored byproducts and the mill rejects.

@@ -17,7 +17,7 @@ def minimal_path(tmp_path):
 
 @pytest.fixture(scope="session")
 def demo_path(tmp_path_factory):
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     return build_demo_workbook(tmp_path_factory.mktemp("demo") / "demo_station.xlsx")
 

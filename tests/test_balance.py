@@ -231,3 +231,21 @@ def test_a_plan_over_the_permit_reports_it_as_a_breach():
     set_value(s, "scrubber", "removal_pct", None, 99)
     set_value(s, "plant", "so2_limit_kg_per_gj", None, 5.0)
     assert permit_breaches(balance_frame(load_scenario(workbook_bytes(s)))) == []
+
+
+def test_each_store_has_one_flow_column_of_the_balance():
+    """The store -> balance column mapping is written once (`schema.STORE_FLOW_COLUMN`):
+    every store has one, it is a column of the balance, and the plan, its evaluation,
+    the record's as-of levels, the rehearsal's truth and the pipeline use that mapping."""
+    from reagentplan import pipeline, schema
+    from reagentplan.balance import BALANCE_COLUMNS
+    from reagentplan.rehearse import truth
+    from reagentplan.schedule import evaluate, plan
+
+    assert tuple(schema.STORE_FLOW_COLUMN) == schema.STORES
+    assert set(schema.STORE_FLOW_COLUMN.values()) <= set(BALANCE_COLUMNS)
+    assert schema.STORE_FLOW_COLUMN["gypsum"] == "gypsum_wet_t"  # wet cake, as hauled
+    assert plan.DEMAND_COLUMN == schema.STORE_FLOW_COLUMN
+    assert evaluate.PRODUCTION == {s: schema.STORE_FLOW_COLUMN[s] for s in schema.BYPRODUCTS}
+    assert pipeline.STORE_FLOWS is schema.STORE_FLOW_COLUMN
+    assert truth.TRUE_FLOWS is schema.STORE_FLOW_COLUMN

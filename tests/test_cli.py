@@ -132,3 +132,46 @@ def test_a_plan_over_the_permit_exits_1_and_names_it(tmp_path, capsys):
     permit = [b for b in summary["breaches"] if b["store"] == "so2_permit"]
     assert len(permit) == 1 and permit[0]["tonnes"] > 0
     assert "so2_permit: over the SO2 permit limit" in capsys.readouterr().out
+
+
+def test_a_reader_that_closes_the_pipe_ends_the_command_quietly(minimal_path):
+    """``reagentplan check WORKBOOK | head -1``: the reader is gone before the command
+    writes (closed here at once, while the child is still starting); the command ends
+    with Python's exit code for a broken pipe (1) and says nothing on stderr, rather
+    than "Could not read or write a file" or "Exception ignored ... BrokenPipeError"."""
+    proc = subprocess.Popen([sys.executable, "-m", "reagentplan", "check", str(minimal_path)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.close()  # the reader goes away, as head does after its line
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=120) == 1
+    assert err == "", err
+
+
+def test_check_piped_to_head_through_a_shell(minimal_path):
+    """The same through a real shell pipe: one line out, nothing on stderr (whether head
+    left before or after the command's last write)."""
+    r = subprocess.run(f'"{sys.executable}" -m reagentplan check "{minimal_path}" | head -1',
+                       shell=True, capture_output=True, text=True, timeout=120)
+    assert "sound" in r.stdout and len(r.stdout.splitlines()) == 1
+    assert r.stderr == "", r.stderr
+
+
+def test_every_command_declares_the_shared_options_from_the_settings():
+    """--time-limit, --firm-days, --risk-level, --futures and --solver default to the
+    settings each command plans with (reagentplan.settings), not to numbers of their own."""
+    from reagentplan.cli import build_parser
+    from reagentplan.settings import PLAN, STUDY, WEEKLY_PLAN
+
+    sub = next(a for a in build_parser()._actions if a.dest == "command").choices
+    for name, base in (("plan", PLAN), ("study", STUDY), ("rehearse", WEEKLY_PLAN), ("dashboard", PLAN),
+                       ("demo", PLAN)):
+        defaults = {a.dest: a.default for a in sub[name]._actions}
+        assert defaults["time_limit"] == base.time_limit, name
+        if "firm_days" in defaults:
+            assert defaults["firm_days"] == base.firm_days, name
+        if "risk_level" in defaults:
+            assert defaults["risk_level"] == pytest.approx(100 * base.risk_level), name
+        if "solver" in defaults:
+            assert defaults["solver"] == base.solver, name
+    assert {a.dest: a.default for a in sub["rehearse"]._actions}["plan_futures"] == WEEKLY_PLAN.futures
+    assert {a.dest: a.default for a in sub["study"]._actions}["futures"] == STUDY.futures

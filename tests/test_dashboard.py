@@ -20,12 +20,12 @@ from helpers import START, minimal_sheets, workbook_bytes
 from reagentplan import CAUTION
 from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
+from reagentplan.settings import PlanSettings
 
-from dashboard import callbacks, figures, frames
-from dashboard.callbacks import PlanOptions
-from dashboard.security import DashboardRefused, is_loopback, password_for
-from dashboard.store import PlanStore, valid_id
-from dashboard.views import coordinator, plant, sales
+from reagentplan.dashboard import callbacks, figures, frames
+from reagentplan.dashboard.security import DashboardRefused, is_loopback, password_for
+from reagentplan.dashboard.store import PlanStore, valid_id
+from reagentplan.dashboard.views import coordinator, plant, sales
 
 DAYS = 40
 
@@ -162,6 +162,10 @@ def test_contract_figure_draws_one_panel_per_lane(small_run):
     prog = frames.contract_progress(plan.scenario, plan.lanes, plan.evaluation.month_totals)
     fig = figures.contract_figure(prog, "title", "none")
     assert len(fig.layout.annotations) == prog["lane"].nunique()
+    # the unit rides on the ticks, not as a rotated one-letter axis title (an odd glyph)
+    axes = [a for k, a in fig.layout.to_plotly_json().items() if k.startswith("yaxis")]
+    assert axes and all(not (a.get("title") or {}).get("text") and a.get("ticksuffix") == " t"
+                        for a in axes)
     assert isinstance(figures.contract_figure(prog.iloc[0:0], "t", "nothing here"), go.Figure)
 
 
@@ -251,7 +255,7 @@ def test_whatif_kwargs_from_the_sliders(small_run):
 def test_replan_stores_a_new_run_with_the_whatif(small_run, store):
     sid = store.put("scenario", small_run.plan.scenario, {"source": "w.xlsx"})
     said = []
-    pid, message, cls = callbacks.replan(store, PlanOptions(futures=10, time_limit=20), sid,
+    pid, message, cls = callbacks.replan(store, PlanSettings(futures=10, time_limit=20), sid,
                                          100, 120, 95.0, ["on"], [5, 12], set_progress=said.append)
     assert valid_id(pid) and cls == "rp-msg good"
     assert "coal sulfur x1.20" in message and "rail closed" in message
@@ -267,7 +271,7 @@ def test_replan_stores_a_new_run_with_the_whatif(small_run, store):
 
 
 def test_replan_of_an_unknown_scenario_says_so(store):
-    pid, message, cls = callbacks.replan(store, PlanOptions(futures=0), "0" * 32, 100, 100, 97,
+    pid, message, cls = callbacks.replan(store, PlanSettings(futures=0), "0" * 32, 100, 100, 97,
                                          [], [0, 1])
     assert cls == "rp-msg bad" and "upload it again" in message
 
@@ -336,7 +340,7 @@ def test_cli_refuses_a_bad_workbook_with_exit_code_2(tmp_path, capsys):
 
 @pytest.fixture(scope="module")
 def guarded_app(small_run, tmp_path_factory):
-    from dashboard.app import create_app
+    from reagentplan.dashboard.app import create_app
 
     return create_app(run=small_run, password="s3cret pass", work_dir=tmp_path_factory.mktemp("guarded"))
 
@@ -358,7 +362,7 @@ def test_password_guards_every_request(guarded_app, path):
 
 
 def test_unguarded_page_serves_everything_locally_with_the_caution(small_run, tmp_path):
-    from dashboard.app import create_app
+    from reagentplan.dashboard.app import create_app
 
     app = create_app(run=small_run, work_dir=tmp_path / "app")
     assert app.config.serve_locally

@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pytest
 
-from dashboard.testing import CHROMEDRIVER, CHROMIUM, chromium_driver  # noqa: E402
+from reagentplan.dashboard.testing import CHROMEDRIVER, CHROMIUM, chromium_driver  # noqa: E402
 
 if not os.path.exists(CHROMIUM):
     pytest.skip(f"no Chromium at {CHROMIUM} (Debian package 'chromium')", allow_module_level=True)
@@ -38,9 +38,9 @@ TIMEOUT = 60
 
 @pytest.fixture(scope="module")
 def server(tmp_path_factory):
-    from dashboard.app import create_app
-    from dashboard.testing import serve_in_thread
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.dashboard.app import create_app
+    from reagentplan.dashboard.testing import serve_in_thread
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     folder = tmp_path_factory.mktemp("dash")
     workbook = build_demo_workbook(folder / "demo60.xlsx", horizon_days=60)
@@ -163,7 +163,7 @@ def test_dashboard_in_chromium(server, browser, tmp_path):
     screenshot(d, tmp_path / "bad_upload.png")
 
     # a good upload (another station: 35 days from March) and a re-plan with a what-if
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     good = build_demo_workbook(tmp_path / "spring.xlsx", start_date=dt.date(2027, 3, 1),
                                horizon_days=35)
@@ -205,3 +205,32 @@ def test_dashboard_in_chromium(server, browser, tmp_path):
         Path(keep).mkdir(parents=True, exist_ok=True)
         for png in tmp_path.glob("*.png"):
             shutil.copy(png, Path(keep) / png.name)
+
+
+def test_startup_page_shows_the_steps_then_the_views(browser, tmp_path_factory):
+    """Started in the background (as `reagentplan dashboard` does), the page first says
+    what is being done and updates it, then opens the views by itself when the plan is
+    ready; screenshots of both are saved in the test's folder."""
+    from reagentplan.dashboard.app import create_app
+    from reagentplan.dashboard.testing import serve_in_thread
+
+    folder = tmp_path_factory.mktemp("startup")
+    app = create_app(None, futures=100, time_limit=30, demo_days=90, background=True,
+                     plan_cache=folder / "cache", work_dir=folder / "work")
+    url, stop = serve_in_thread(app)
+    try:
+        browser.get(url)
+        wait(browser, lambda d: "What is being done" in d.find_element(By.TAG_NAME, "body").text,
+             "the startup page", 20)
+        assert not app.reagentplan.ready
+        wait(browser, lambda d: "Sampling 100 futures" in text(d, "startup-steps")
+             or "Solving the plan" in text(d, "startup-steps"), "a later step shown", 60)
+        screenshot(browser, folder / "startup.png")
+        wait(browser, lambda d: text(d, "kpi-cost") != "", "the views after the plan", 300)
+        assert "plan cost" in text(browser, "kpi-cost").lower()
+        assert not browser.find_elements(By.ID, "startup-steps")
+        wait(browser, lambda d: graph_count(d) >= 1 and drawn_graphs(d) >= 1, "a chart drawn")
+        screenshot(browser, folder / "first-view.png")
+        assert not [e for e in browser.get_log("browser") if e["level"] == "SEVERE"]
+    finally:
+        stop()

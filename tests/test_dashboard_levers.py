@@ -10,11 +10,11 @@ import pytest
 from helpers import START, minimal_sheets, workbook_bytes
 from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
+from reagentplan.settings import PlanSettings
 
-from dashboard import callbacks
-from dashboard.callbacks import PlanOptions
-from dashboard.store import PlanStore, valid_id
-from dashboard.views import controls as C
+from reagentplan.dashboard import callbacks
+from reagentplan.dashboard.store import PlanStore, valid_id
+from reagentplan.dashboard.views import controls as C
 
 
 def sheets(lo=None, hi=None):
@@ -102,7 +102,7 @@ def test_scenario_controls_reset_the_range_and_the_price(ranged, store):
 
 def test_replan_carries_the_range_and_price_into_the_planned_scenario(fixed, store):
     sid = store.put("scenario", fixed, {"source": "w.xlsx"})
-    pid, message, cls = callbacks.replan(store, PlanOptions(futures=0, time_limit=20), sid,
+    pid, message, cls = callbacks.replan(store, PlanSettings(futures=0, time_limit=20), sid,
                                          100, 100, 97.0, [], [0, 1],
                                          removal_range=[95.0, 99.0], allowance_price=420)
     assert valid_id(pid) and cls == "rp-msg good", message
@@ -116,13 +116,13 @@ def test_replan_carries_the_range_and_price_into_the_planned_scenario(fixed, sto
 
 def test_replan_with_a_removal_outside_the_range_says_why(ranged, store):
     sid = store.put("scenario", ranged, {"source": "w.xlsx"})
-    pid, message, cls = callbacks.replan(store, PlanOptions(futures=0), sid, 100, 100, 90.0, [],
+    pid, message, cls = callbacks.replan(store, PlanSettings(futures=0), sid, 100, 100, 90.0, [],
                                          [0, 1], removal_range=[95.0, 99.0])
     assert cls == "rp-msg bad" and "outside the workbook's removal range 95 to 99 %" in message
 
 
 def test_the_page_wires_the_new_controls(tmp_path, fixed):
-    from dashboard.app import create_app
+    from reagentplan.dashboard.app import create_app
 
     run = run_plan(fixed, futures=0, time_limit=20)
     app = create_app(run=run, work_dir=tmp_path / "app")

@@ -15,12 +15,12 @@ import pytest
 
 from helpers import START, minimal_sheets, synthetic_history, workbook_bytes
 from reagentplan.forecast import backtest, fit_generation, fit_unit, median_generation
-from reagentplan.forecast.generation import (MODEL_NAMES, SEASON_MIN_DAYS, WEEKLY_MIN_DAYS,
-                                             simulate_generation)
-from reagentplan.forecast.noise import fit_ar_noise, noise_mean_sd, simulate_noise
-from reagentplan.forecast.outages import (OutageModel, fit_outages, off_line_probability,
-                                          simulate_outages)
 from reagentplan.scenario import Unit, load_scenario
+from reagentplan.timeseries.generation import (MODEL_NAMES, SEASON_MIN_DAYS, WEEKLY_MIN_DAYS,
+                                               simulate_generation)
+from reagentplan.timeseries.noise import fit_ar_noise, noise_mean_sd, simulate_noise
+from reagentplan.timeseries.outages import (OutageModel, fit_outages, off_line_probability,
+                                            simulate_outages)
 
 UNITS = tuple(Unit(f"U{k}", 200.0, 10.0, 0.0) for k in range(1, 5))
 CAP = 200.0 * 24
@@ -260,7 +260,7 @@ def test_the_last_deviation_persists_unless_the_history_is_old(base, gap_days, p
     m = fit_generation(hist, scn.units)
     plan = pd.DataFrame(np.nan, index=scn.dates, columns=["U1"])
     g = simulate_generation(m, scn.dates, plan, 4000, np.random.SeedSequence(3))["U1"]
-    from reagentplan.forecast.generation import expected_load_factor
+    from reagentplan.timeseries.generation import expected_load_factor
 
     lift = np.median(g[0]) / CAP - expected_load_factor(usual, scn.dates[:1])[0]
     if persists:

@@ -18,8 +18,8 @@ from reagentplan.scenario import load_scenario
 from reagentplan.schedule.lever import lever_days
 from reagentplan.summary import describe_lever, describe_plan
 
-from dashboard import callbacks, figures
-from dashboard.views import plant
+from reagentplan.dashboard import callbacks, figures
+from reagentplan.dashboard.views import plant
 
 SHEET = "Scrubber and permit"
 

@@ -15,8 +15,8 @@ from helpers import minimal_sheets, workbook_bytes
 from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
 
-from dashboard.app import create_app
-from dashboard.testing import DashSession, serve_in_thread
+from reagentplan.dashboard.app import create_app
+from reagentplan.dashboard.testing import DashSession, serve_in_thread
 
 pytestmark = pytest.mark.slow
 

@@ -297,3 +297,64 @@ def test_stone_period_setting_unused_when_quarries_give_caco3(sheets):
     scn = load_scenario(workbook_bytes(sheets))
     hits = [str(w) for w in scn.warnings if w.sheet == "period_settings"]
     assert len(hits) == 1 and "row 2" in hits[0] and "not used" in hits[0] and "suppliers" in hits[0]
+
+
+# ------------------------------------------------------------------ every problem in one run
+
+
+def test_blank_template_lists_every_problem_in_one_run(tmp_path):
+    """The plant sheet's missing values and the empty tables, together: the user fills
+    the template once, not once per run."""
+    from reagentplan.template import write_template
+
+    with pytest.raises(ScenarioError) as info:
+        load_scenario(write_template(tmp_path / "blank.xlsx"))
+    found = [str(p) for p in info.value.problems]
+    assert any("sheet 'plant'" in m and "value (name)" in m for m in found), found
+    assert any("sheet 'plant'" in m and "value (start_date)" in m for m in found), found
+    for sheet in ("units", "coal_sources", "suppliers", "coal_blend"):
+        assert any(f"sheet '{sheet}'" in m and "the sheet has no rows" in m for m in found), sheet
+    assert sum("sheet 'storage'" in m and "no row for the store" in m for m in found) == 4
+    assert found[0].startswith("sheet 'plant'")  # still in the order the sheets are read
+
+
+def test_a_table_with_a_bad_cell_is_not_called_empty(sheets):
+    """Rows with a bad cell are left out of the checks that follow; the sheet they are
+    on is not reported as having no rows on top of its cell's problem."""
+    set_value(sheets, "units", 0, "capacity_mw", "lots")
+    set_value(sheets, "storage", 0, "capacity_t", "full")
+    sheets["plant"] = [r for r in sheets["plant"] if r[0] != "name"]  # a problem on another sheet
+    found = problems(sheets)
+    assert any("sheet 'units'" in m and "'lots'" in m for m in found), found
+    assert not any("has no rows" in m or "no row for the store" in m for m in found), found
+
+
+# ------------------------------------------------------------------ generation left to history
+
+
+def _history_rows(days: int) -> list[list]:
+    return [["date", "unit", "mwh"]] + [[START - dt.timedelta(days=days - i), "U1", 2400.0 + 10 * (i % 7)]
+                                        for i in range(days)]
+
+
+def test_generation_sheet_may_be_left_out_when_history_covers_the_forecast(sheets):
+    """WORKBOOK.md: the forecast is made from generation_history for the days that
+    `generation` does not cover, so with history the `generation` sheet may be absent
+    (it then covers no day), as it may be empty."""
+    del sheets["generation"]
+    sheets["generation_history"] = _history_rows(60)
+    scn = load_scenario(workbook_bytes(sheets))
+    assert len(scn.generation) == 0 and len(scn.generation_history) == 60
+    assert scn.generation_matrix().isna().all().all()
+
+
+def test_generation_sheet_left_out_with_too_little_history(sheets):
+    del sheets["generation"]
+    sheets["generation_history"] = _history_rows(5)
+    m = one(sheets, "sheet 'generation_history'", "column 'unit'")
+    assert "5 day(s) of history" in m and "no generation on 10 of 10" in m
+
+
+def test_generation_sheet_still_needed_without_history(sheets):
+    del sheets["generation"]
+    assert "the sheet is missing" in one(sheets, "sheet 'generation'")

@@ -260,8 +260,11 @@ TWO_SITES = (("Dear Pit", 9.0, 5, 30), ("Cheap Pit", 5.0, 12, None))
 def test_haul_cheapest_first_within_daily_limit_and_airspace():
     """20 t of rejects a day for 10 days (the hand-worked coal).  Cheap Pit ($5/t, 12 t/d)
     takes 12 t every day; Dear Pit ($9/t, 5 t/d, 30 t of airspace) takes 5 t on days
-    0-5, then is full.  Cost 10 × 12 × 5 + 30 × 9 = $870; left over 6 × 3 + 4 × 8 = 50 t,
-    one breach over the ten days naming both limits.  No lane of the model is made."""
+    0-5, then is full.  Cost 10 × 12 × 5 + 30 × 9 = $870.  Left over 3 t a day on days
+    0-5 and 8 t a day after: the reject bins (2 days × 20 t = 40 t) hold 3, 6, ..., 18,
+    26, 34 t, then overflow by 2 t on day 8 and 8 t on day 9: 10 t not hauled, one
+    breach over those two days naming both limits and the full bins, 40 t waiting at
+    the end.  No lane of the model is made."""
     from reagentplan.schedule.lanes import build_lanes
     from reagentplan.schedule.rejects import haul_rejects, rejects_breaches
 
@@ -272,11 +275,13 @@ def test_haul_cheapest_first_within_daily_limit_and_airspace():
     assert [d.site for d in haul.sites] == ["Cheap Pit", "Dear Pit"]
     np.testing.assert_allclose(haul.hauled_t["Cheap Pit"], 12.0)
     np.testing.assert_allclose(haul.hauled_t["Dear Pit"], [5] * 6 + [0] * 4, atol=1e-9)
-    np.testing.assert_allclose(haul.unhauled_t, [3] * 6 + [8] * 4, atol=1e-9)
+    np.testing.assert_allclose(haul.unhauled_t, [0] * 8 + [2, 8], atol=1e-9)
+    np.testing.assert_allclose(haul.waiting_t, [3, 6, 9, 12, 15, 18, 26, 34, 40, 40], atol=1e-9)
     assert haul.cost.sum() == pytest.approx(870.0)
     (b,) = rejects_breaches(haul, scn.dates)
-    assert b["store"] == "mill_rejects" and b["tonnes"] == pytest.approx(50.0)
-    assert (b["first_date"], b["last_date"]) == ("2030-03-04", "2030-03-13")
+    assert b["store"] == "mill_rejects" and b["tonnes"] == pytest.approx(10.0)
+    assert (b["first_date"], b["last_date"]) == ("2030-03-12", "2030-03-13")
+    assert "reject bins full" in b["cause"]
     assert "Cheap Pit at its daily limit of 12 t" in b["cause"]
     assert "airspace used up at Dear Pit" in b["cause"]
     assert not any(lane.material == "mill_rejects" for lane in build_lanes(scn, frame))
@@ -284,7 +289,8 @@ def test_haul_cheapest_first_within_daily_limit_and_airspace():
 
 def test_a_closed_site_sends_the_rejects_to_the_next():
     """Cheap Pit closed on the second day (a lane closure): that day Dear Pit takes its
-    5 t and 15 t are left, the cause naming the closure."""
+    5 t and 15 t wait in the bins (they hold 40 t); Cheap Pit takes them with the third
+    day's 20 t.  No breach."""
     from reagentplan.schedule.rejects import haul_rejects, rejects_breaches
 
     s = hand_sheets(days=3, sites=(("Dear Pit", 9.0, 5, None), ("Cheap Pit", 5.0, None, None)))
@@ -292,16 +298,49 @@ def test_a_closed_site_sends_the_rejects_to_the_next():
     s["lane_closures"] = [["party", "mode", "first_date", "last_date"], ["Cheap Pit", None, day, day]]
     scn = load_scenario(workbook_bytes(s))
     haul = haul_rejects(scn, balance_frame(scn)["mill_rejects_t"])
-    np.testing.assert_allclose(haul.hauled_t["Cheap Pit"], [20, 0, 20])
-    np.testing.assert_allclose(haul.unhauled_t, [0, 15, 0], atol=1e-9)
+    np.testing.assert_allclose(haul.hauled_t["Cheap Pit"], [20, 0, 35])
+    np.testing.assert_allclose(haul.hauled_t["Dear Pit"], [0, 5, 0])
+    np.testing.assert_allclose(haul.unhauled_t, 0.0, atol=1e-9)
+    np.testing.assert_allclose(haul.waiting_t, [0, 15, 0], atol=1e-9)
+    assert rejects_breaches(haul, scn.dates) == []
+
+
+def test_a_site_closed_on_sundays_makes_no_breach():
+    """The only rejects site is closed every Sunday (lane closures): Sunday's 20 t wait in
+    the bins and go on Monday with Monday's (40 t that day), so four weeks of rejects
+    make no breach and cost 27 × 20 × $6 hauled + 20 t waiting at the end; a closure of three days running (60 t made,
+    bins of 40 t) still overflows by 20 t - 20 t is one breach naming the closure.
+    Common practice, no source: reject bins sized for a weekend."""
+    from reagentplan.schedule.rejects import haul_rejects, rejects_breaches, waiting_end_cost
+
+    s = hand_sheets(days=28)
+    sundays = [START + dt.timedelta(days=i) for i in range(28) if (START + dt.timedelta(days=i)).weekday() == 6]
+    s["lane_closures"] = [["party", "mode", "first_date", "last_date"]] + [["Mill Pit", None, d, d] for d in sundays]
+    scn = load_scenario(workbook_bytes(s))
+    haul = haul_rejects(scn, balance_frame(scn)["mill_rejects_t"])
+    hauled = haul.hauled_t["Mill Pit"]
+    sunday = np.array([d.weekday() == 6 for d in scn.dates])
+    monday = np.array([d.weekday() == 0 for d in scn.dates]) & (np.arange(28) > 0)
+    assert hauled[sunday].sum() == 0 and np.allclose(hauled[monday], 40.0)
+    assert haul.unhauled_t.sum() == 0 and rejects_breaches(haul, scn.dates) == []
+    # the horizon ends on a Sunday: its 20 t wait, charged at the end at the site's $6/t
+    assert haul.cost.sum() == pytest.approx(27 * 20 * 6.0) and haul.waiting_t[-1] == pytest.approx(20.0)
+    assert waiting_end_cost(haul) == pytest.approx(120.0)
+
+    s = hand_sheets(days=10)
+    s["lane_closures"] = [["party", "mode", "first_date", "last_date"],
+                          ["Mill Pit", None, START + dt.timedelta(days=2), START + dt.timedelta(days=4)]]
+    scn = load_scenario(workbook_bytes(s))
+    haul = haul_rejects(scn, balance_frame(scn)["mill_rejects_t"])
+    np.testing.assert_allclose(haul.unhauled_t, [0, 0, 0, 0, 20, 0, 0, 0, 0, 0], atol=1e-9)
     (b,) = rejects_breaches(haul, scn.dates)
-    assert b["first_date"] == b["last_date"] == f"{day:%Y-%m-%d}" and "Cheap Pit closed" in b["cause"]
+    assert "Mill Pit closed" in b["cause"] and b["tonnes"] == pytest.approx(20.0)
 
 
 def test_plan_and_baseline_pay_the_same_haul_and_report_the_breach(tmp_path):
     """Through ``reagentplan plan``: the cost line ``mill_rejects_disposal`` is $870 for
-    the plan and the baseline alike (the hand-worked haul above), the 50 t left over is a
-    breach (exit 1) charged at the overflow penalty, and plan.xlsx shows the haul on its
+    the plan and the baseline alike (the hand-worked haul above), the 10 t the bins cannot
+    hold is a breach (exit 1) charged at the overflow penalty, and plan.xlsx shows the haul on its
     Mill rejects, Daily balance and Costs sheets."""
     path = write_workbook(hand_sheets(days=10, sites=TWO_SITES), tmp_path / "rejects.xlsx")
     out = tmp_path / "out"
@@ -309,9 +348,9 @@ def test_plan_and_baseline_pay_the_same_haul_and_report_the_breach(tmp_path):
     summary = json.loads((out / "summary.json").read_text())
     assert summary["costs"]["mill_rejects_disposal"] == pytest.approx(870.0)
     assert summary["baseline_costs"]["mill_rejects_disposal"] == pytest.approx(870.0)
-    assert summary["costs"]["overflow_penalty"] >= 50 * 1000 - 1e-6
+    assert summary["costs"]["overflow_penalty"] >= 10 * 1000 - 1e-6
     (b,) = [b for b in summary["breaches"] if b["store"] == "mill_rejects"]
-    assert b["tonnes"] == pytest.approx(50.0) and "daily limit" in b["cause"]
+    assert b["tonnes"] == pytest.approx(10.0) and "daily limit" in b["cause"]
     bal = pd.read_csv(out / "balance.csv")
     np.testing.assert_allclose(bal["mill_rejects_t"], 20.0)
     mv = pd.read_csv(out / "movements.csv")

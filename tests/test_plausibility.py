@@ -197,7 +197,7 @@ def test_a_sound_plan_has_an_empty_warning_list(tmp_path, minimal_path):
 def test_the_dashboard_upload_names_the_unusual_values():
     import base64
 
-    from dashboard.callbacks import parse_upload
+    from reagentplan.dashboard.callbacks import parse_upload
 
     s = minimal_sheets()
     set_value(s, "scrubber", "removal_pct", None, 0.97)

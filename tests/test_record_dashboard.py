@@ -9,9 +9,9 @@ import datetime as dt
 
 import sqlalchemy as sa
 
-from dashboard.app import create_app
-from dashboard.record_callbacks import record_upload
-from dashboard.views import record as R
+from reagentplan.dashboard.app import create_app
+from reagentplan.dashboard.record_callbacks import record_upload
+from reagentplan.dashboard.views import record as R
 from reagentplan.cli import main
 from reagentplan.record.db import connect
 

@@ -10,7 +10,7 @@ import threading
 
 import pytest
 
-from dashboard.testing import CHROMEDRIVER, CHROMIUM, chromium_driver
+from reagentplan.dashboard.testing import CHROMEDRIVER, CHROMIUM, chromium_driver
 
 if not (os.path.exists(CHROMIUM) and os.path.exists(CHROMEDRIVER)):
     pytest.skip(f"no Chromium at {CHROMIUM} or chromedriver at {CHROMEDRIVER} (Debian packages "
@@ -37,7 +37,7 @@ def wait(driver, condition, what: str, timeout: float = 60):
 def test_record_tab_in_chromium(tmp_path):
     from werkzeug.serving import make_server
 
-    from dashboard.app import create_app
+    from reagentplan.dashboard.app import create_app
 
     url = f"sqlite:///{tmp_path / 'r.db'}"
     wb = scenario_path(tmp_path)

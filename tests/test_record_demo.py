@@ -5,8 +5,8 @@ from __future__ import annotations
 
 import sqlalchemy as sa
 
-from demo.build_demo import build_demo_workbook
-from demo.record_demo import describe_weeks, weekly_loop
+from reagentplan.demo.build_demo import build_demo_workbook
+from reagentplan.demo.record_demo import describe_weeks, weekly_loop
 from reagentplan.cli import main
 from reagentplan.record.db import connect
 

@@ -6,6 +6,7 @@ identity, no source needed), the same seed gives the same figures."""
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 
 import numpy as np
@@ -17,6 +18,10 @@ from helpers import minimal_sheets, set_value, write_workbook
 from reagentplan.cli import main
 from reagentplan.rehearse import Disturbances, rehearse
 from reagentplan.scenario import load_scenario
+from reagentplan.settings import WEEKLY_PLAN
+
+#: The weekly plans of these tests: 10 solver seconds, else the rehearsal's own.
+QUICK = dataclasses.replace(WEEKLY_PLAN, time_limit=10)
 
 WEEKS, FUTURES, LOOKAHEAD = 3, 2, 35
 #: Rough disturbances so that the test meets them: half the trains late (common practice, no source).
@@ -35,8 +40,8 @@ def _sheets():
 @pytest.fixture(scope="module")
 def rehearsal(tmp_path_factory):
     path = write_workbook(_sheets(), tmp_path_factory.mktemp("rh") / "tiny.xlsx")
-    res = rehearse(path, weeks=WEEKS, futures=FUTURES, seed=3, lookahead_days=LOOKAHEAD, firm_days=14,
-                   time_limit=10, disturbances=ROUGH)
+    res = rehearse(path, weeks=WEEKS, futures=FUTURES, seed=3, lookahead_days=LOOKAHEAD, settings=QUICK,
+                   disturbances=ROUGH)
     return path, res
 
 
@@ -126,11 +131,10 @@ def test_same_seed_same_figures(rehearsal):
                                                                          "fly_ash_t", "bottom_ash_t")),
                                 sc.storage)[1]
     from reagentplan.rehearse.guard import GuardFutures
-    from reagentplan.rehearse.run import PLAN_FUTURES
 
     run = rehearse_policy(path, sc, world, "plan", weeks=WEEKS, disturbances=ROUGH, seed=3,
-                          lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10,
-                          guard=GuardFutures.sample(sc, PLAN_FUTURES, 3))
+                          lookahead_days=LOOKAHEAD, settings=QUICK,
+                          guard=GuardFutures.sample(sc, QUICK.futures, 3))
     again = policy_figures(sc, run)
     first = res.table[(res.table["policy"] == "plan") & (res.table["future"] == 1)].iloc[0].to_dict()
     for k, v in again.items():
@@ -223,8 +227,8 @@ def test_guard_futures_are_cut_and_scaled_to_each_week(tmp_path):
 def test_two_workers_play_the_same_rehearsal(tmp_path):
     """Futures played in two processes give the same rows as played in one."""
     path = write_workbook(_sheets(), tmp_path / "tiny.xlsx")
-    kw = dict(weeks=2, futures=2, seed=5, lookahead_days=LOOKAHEAD, firm_days=14, time_limit=10,
-              disturbances=ROUGH, plan_futures=20)
+    kw = dict(weeks=2, futures=2, seed=5, lookahead_days=LOOKAHEAD,
+              settings=dataclasses.replace(QUICK, futures=20), disturbances=ROUGH)
     one = rehearse(path, workers=1, **kw).table.drop(columns="plan_seconds")
     two = rehearse(path, workers=2, **kw).table.drop(columns="plan_seconds")
     pd.testing.assert_frame_equal(one, two)
@@ -245,8 +249,8 @@ def test_poorer_stone_is_drawn_in_more_tonnes_and_off_spec_gypsum_refused(tmp_pa
     path = write_workbook(s, tmp_path / "poor.xlsx")
     sc = load_scenario(path)
     assert balance_frame(sc, caco3_pct=np.full(sc.plant.horizon_days, 88.0))["gypsum_purity_pct"].max() < 94
-    res = rehearse(path, weeks=WEEKS, futures=1, seed=3, lookahead_days=LOOKAHEAD, firm_days=14,
-                   time_limit=10, disturbances=ROUGH, plan_futures=10)
+    res = rehearse(path, weeks=WEEKS, futures=1, seed=3, lookahead_days=LOOKAHEAD,
+                   settings=dataclasses.replace(QUICK, futures=10), disturbances=ROUGH)
     use = sample_futures(sc, 1, seed=3, keep=("limestone_t",)).flows["limestone_t"][0].astype(float)
     refused = 0.0
     for run in res.runs:

@@ -22,7 +22,7 @@ from reagentplan.schedule.evaluate import DailyPlan
 @pytest.fixture(scope="module")
 def small_run(demo_path):
     """A 60-day plan of the demo station with 300 futures."""
-    from demo.build_demo import build_demo_workbook
+    from reagentplan.demo.build_demo import build_demo_workbook
 
     path = build_demo_workbook(demo_path.parent / "demo60.xlsx", horizon_days=60)
     return run_plan(load_scenario(path), futures=300, seed=3, time_limit=30)

@@ -23,10 +23,10 @@ from helpers import minimal_sheets, workbook_bytes, write_workbook
 from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
 
-from dashboard.app import MAX_REQUEST_BYTES, create_app
-from dashboard.security import LoginThrottle
-from dashboard.testing import serve_in_thread
-from dashboard.views import controls as C
+from reagentplan.dashboard.app import MAX_REQUEST_BYTES, create_app
+from reagentplan.dashboard.security import LoginThrottle
+from reagentplan.dashboard.testing import serve_in_thread
+from reagentplan.dashboard.views import controls as C
 
 ROOT = Path(__file__).resolve().parents[1]
 PASSWORD = "s3cret pass"
@@ -248,6 +248,7 @@ def test_the_dashboard_command_serves_with_waitress_and_stops_on_sigterm(tmp_pat
     port = _free_port()
     env = {k: v for k, v in os.environ.items() if k != "REAGENTPLAN_DASHBOARD_PASSWORD"}
     env["TMPDIR"] = str(tmp_path)
+    env["REAGENTPLAN_CACHE"] = str(tmp_path / "plan-cache")
     proc = subprocess.Popen([sys.executable, "-m", "reagentplan", "dashboard", str(path), "--port",
                              str(port), "--futures", "0", "--time-limit", "20"], cwd=ROOT, env=env,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
@@ -264,10 +265,17 @@ def test_the_dashboard_command_serves_with_waitress_and_stops_on_sigterm(tmp_pat
         assert r.status == 200 and r.headers["Server"] == "reagentplan"
         assert r.headers["X-Frame-Options"] == "DENY"
         assert any(p.name.startswith("reagentplan-dashboard-") for p in tmp_path.iterdir())
+        while b"plan-id" not in urllib.request.urlopen(f"http://127.0.0.1:{port}/_dash-layout",
+                                                       timeout=30).read():  # the first plan
+            assert proc.poll() is None, proc.communicate()
+            assert time.monotonic() < deadline, "the first plan was not made"
+            time.sleep(0.3)
     finally:
         proc.send_signal(signal.SIGTERM)
         out, err = proc.communicate(timeout=60)
     assert proc.returncode == 0, err
     assert "Traceback" not in err
     assert f"Dashboard on http://127.0.0.1:{port}/" in out
+    assert "The first plan is ready" in out
+    assert len(list((tmp_path / "plan-cache").glob("*.plan"))) == 1  # kept for the next start
     assert not any(p.name.startswith("reagentplan-dashboard-") for p in tmp_path.iterdir())

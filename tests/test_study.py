@@ -27,10 +27,11 @@ from reagentplan.errors import ScenarioError
 from reagentplan.forecast import sample_futures
 from reagentplan.forecast.futures import futures_from_drivers, sample_drivers
 from reagentplan.risk import deterministic_flows
+from reagentplan.settings import PlanSettings
 from reagentplan.study.cluster import run_cases
 from reagentplan.study.grid import build_grid, parse_vary
 from reagentplan.study.results import pick_winner
-from reagentplan.study.run import (CaseSettings, plan_case, replay_byproduct_heel,
+from reagentplan.study.run import (plan_case, replay_byproduct_heel,
                                    replay_costs, replay_limestone_capped)
 from reagentplan.workbook import read_raw
 
@@ -137,7 +138,7 @@ def test_a_resampled_case_plans_as_the_plan_command_does(shared):
     from reagentplan.study.run import run_case
 
     g = _grid_of(_sheets(), ["coal_sources[Coal A].sulfur_pct=2.5"])
-    row = run_case(g.cases[0], shared, CaseSettings(time_limit=30))
+    row = run_case(g.cases[0], shared, PlanSettings(time_limit=30))
     assert row["futures"] == "resampled" and row["status"] == "optimal"
     ref = run_plan(g.cases[0].scenario, futures=shared.n_futures, seed=shared.seed, time_limit=30)
     assert row["total_cost"] == round(ref.plan.evaluation.total_cost, 2)
@@ -259,7 +260,7 @@ def test_a_removal_variant_changes_limestone_on_the_same_coal(grid, shared):
 
 
 def test_replaying_the_deterministic_future_prices_the_plan_as_the_plan_does(grid, shared):
-    run = plan_case(grid.cases[0], shared, CaseSettings(time_limit=30))
+    run = plan_case(grid.cases[0], shared, PlanSettings(time_limit=30))
     fig = replay_costs(run.plan, deterministic_flows(run.plan.balance))
     assert fig.costs.shape == (1,)
     assert fig.costs[0] == pytest.approx(run.plan.evaluation.total_cost, rel=1e-9, abs=1e-6)
@@ -311,7 +312,7 @@ def _strip(rows):
 
 
 def test_a_local_cluster_of_two_gives_what_a_serial_run_gives(grid, shared, cluster):
-    settings = CaseSettings(time_limit=30)
+    settings = PlanSettings(time_limit=30)
     serial = run_cases(tuple(reversed(grid.cases)), shared, settings, None, progress=False)
     dist = run_cases(grid.cases, shared, settings, cluster, progress=False)
     assert dist.workers == 2 and not dist.interrupted and dist.scatter_seconds > 0
@@ -329,7 +330,7 @@ def test_a_case_that_raises_in_a_worker_is_reported_and_the_others_finish(grid, 
         grid.cases[1].scenario, storage={k: v for k, v in grid.cases[1].scenario.storage.items()
                                          if k != "limestone"}))
     cases = (grid.cases[0], broken, grid.cases[2])
-    res = run_cases(cases, shared, CaseSettings(time_limit=30), cluster, progress=False)
+    res = run_cases(cases, shared, PlanSettings(time_limit=30), cluster, progress=False)
     status = {r["case"]: r["status"] for r in res.rows}
     assert status == {1: "optimal", 2: "failed", 3: "optimal"}
     assert res.rows[1]["message"].startswith("KeyError: 'limestone'")
@@ -337,8 +338,8 @@ def test_a_case_that_raises_in_a_worker_is_reported_and_the_others_finish(grid, 
 
 
 def test_a_case_past_its_timeout_is_reported_as_timed_out(grid, shared):
-    res = run_cases(grid.cases[:1], shared, CaseSettings(time_limit=30, case_timeout=0.001),
-                    None, progress=False)
+    res = run_cases(grid.cases[:1], shared, PlanSettings(time_limit=30), None,
+                    case_timeout=0.001, progress=False)
     assert res.rows[0]["status"] == "timeout"
     assert "no result after 0.001 s" in res.rows[0]["message"]
 

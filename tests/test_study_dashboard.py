@@ -18,7 +18,7 @@ from reagentplan.pipeline import run_plan
 from reagentplan.scenario import load_scenario
 from reagentplan.study.results import read_study_table
 
-from dashboard.views import study as view
+from reagentplan.dashboard.views import study as view
 
 SPECS = ["scrubber.removal_pct=96,98", "storage[gypsum].capacity_t=3000,4000"]
 
@@ -78,7 +78,7 @@ def test_an_uploaded_study_csv_is_read_and_a_bad_one_named(study_dir):
 
 
 def test_the_app_has_a_studies_tab_filled_from_the_folder(study_dir, small_run, tmp_path):
-    from dashboard.app import create_app
+    from reagentplan.dashboard.app import create_app
 
     app = create_app(run=small_run, study_dir=study_dir, work_dir=tmp_path / "work")
     tab = app.layout["tab-study"]
@@ -105,8 +105,8 @@ def test_the_studies_tab_in_chromium_shows_the_values_on_hover(study_dir, small_
     from selenium.webdriver.support.ui import WebDriverWait
     from werkzeug.serving import make_server
 
-    from dashboard.app import create_app
-    from dashboard.testing import chromium_driver
+    from reagentplan.dashboard.app import create_app
+    from reagentplan.dashboard.testing import chromium_driver
 
     app = create_app(run=small_run, study_dir=study_dir, work_dir=tmp_path / "work")
     logging.getLogger("werkzeug").setLevel(logging.ERROR)

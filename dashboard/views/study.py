@@ -16,6 +16,7 @@ import pandas as pd
 import plotly.graph_objects as go
 from dash import Input, Output, State, dcc, html
 
+from reagentplan.settings import STUDY
 from reagentplan.study.results import case_risk, pick_winner, read_study_table, varied_columns
 
 from ..style import ACCENT, BAD, MUTED, STORE_COLOURS
@@ -30,7 +31,7 @@ WINNER = "study-winner"
 OUTPUTS = (CHART, TABLE, WINNER)
 FIGURE_OUTPUTS = (CHART,)
 #: The risk level assumed for a study.csv uploaded without its study.json [-].
-DEFAULT_RISK_LEVEL = 0.05
+DEFAULT_RISK_LEVEL = STUDY.risk_level
 PLANNED = ("optimal", "feasible")
 
 

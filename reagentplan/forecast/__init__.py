@@ -1,10 +1,11 @@
 """Forecasts of generation and coal quality, and the sampled futures built from them.
 
-- `generation`: per unit, yearly season + weekday pattern + persistent deviations from
-  ``generation_history`` (or a named fallback when the history is short), around the
-  dispatch plan where ``generation`` gives one.
-- `outages`: forced outages, estimated from off-line runs and sampled as an
-  alternating renewal process.
+- generation (`reagentplan.timeseries.generation`, re-exported here): per unit, yearly
+  season + weekday pattern + persistent deviations from ``generation_history`` (or a
+  named fallback when the history is short), around the dispatch plan where
+  ``generation`` gives one.
+- outages (`reagentplan.timeseries.outages`): forced outages, estimated from off-line
+  runs and sampled as an alternating renewal process.
 - `coal_quality`: per source, spread and day-to-day persistence of sulfur, ash and HHV
   from ``coal_quality_history`` (or ``sulfur_sd_pct``), mixed by the blend schedule.
 - `futures`: `sample_futures` pushes N joint futures through the mass balance and
@@ -21,12 +22,12 @@ Typical use::
     forecast_frame(futures)        # long table: date, quantity, p10, p50, p90, mean
 """
 
+from ..timeseries.generation import (MODEL_NAMES, GenerationModel, UnitModel, fit_generation,
+                                     fit_unit, median_generation)
+from ..timeseries.outages import OutageModel, fit_outages
 from .backtest import BacktestResult, backtest, describe_backtest
 from .coal_quality import QualityModel, SourceModel, fit_quality
 from .futures import FLOWS, ForecastModel, Futures, fit_forecast, sample_futures
-from .generation import (MODEL_NAMES, GenerationModel, UnitModel, fit_generation, fit_unit,
-                         median_generation)
-from .outages import OutageModel, fit_outages
 from .output import (FORECAST_COLUMNS, FORECAST_QUANTITIES, describe_forecast, forecast_frame,
                      horizon_totals, notes_text)
 

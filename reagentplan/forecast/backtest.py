@@ -33,9 +33,9 @@ import pandas as pd
 
 from ..errors import Problem, ScenarioError
 from ..scenario import MIN_HISTORY_DAYS, Scenario
-from . import streams
+from ..timeseries import streams
+from ..timeseries.generation import MODEL_NAMES, fit_generation, simulate_generation
 from .coal_quality import MIN_SAMPLES, daily_lab_means, fit_source, simulate_source
-from .generation import MODEL_NAMES, fit_generation, simulate_generation
 
 TRAILING_DAYS = 28
 SEASONAL_LAG_DAYS = 364

@@ -33,9 +33,9 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import CoalSource, Scenario
-from . import streams
-from .memo import per_scenario
-from .noise import ARNoise, correlate, fit_ar_noise, simulate_noise, stationary_ar1
+from ..timeseries import streams
+from ..timeseries.memo import per_scenario
+from ..timeseries.noise import ARNoise, correlate, fit_ar_noise, simulate_noise, stationary_ar1
 
 PROPERTIES = ("sulfur_pct", "ash_pct", "hhv_mj_per_kg")
 #: Physical bounds of each property [its unit] (the workbook's accepted ranges).
@@ -45,7 +45,7 @@ BOUNDS = {"sulfur_pct": (0.0, 100.0), "ash_pct": (0.0, 100.0), "hhv_mj_per_kg": 
 DEFAULT_PERSISTENCE = 0.8
 #: Lab results needed to fit a property's spread and persistence.
 MIN_SAMPLES = 10
-#: As `reagentplan.forecast.generation.MAX_LEAD_DAYS`: older results are forgotten [d].
+#: As `reagentplan.timeseries.generation.MAX_LEAD_DAYS`: older results are forgotten [d].
 MAX_LEAD_DAYS = 366
 #: Lab results of this many days up to the latest one set the level and the fit [d]
 #: (a stated choice: a year holds every season of a mine's seams; no published source).
@@ -184,7 +184,7 @@ def fit_source(source: CoalSource, samples: pd.DataFrame | None) -> SourceModel:
 
     References
     ----------
-    statsmodels ``SARIMAX(order=(1, 0, 0))`` via `reagentplan.forecast.noise.fit_ar_noise`.
+    statsmodels ``SARIMAX(order=(1, 0, 0))`` via `reagentplan.timeseries.noise.fit_ar_noise`.
     """
     daily = daily_lab_means(samples) if samples is not None and len(samples) else None
     if daily is not None:

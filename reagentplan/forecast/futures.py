@@ -55,10 +55,10 @@ import pandas as pd
 from ..balance import BalanceParams, Drivers, mass_balance, rejects_sulfur_share_blend
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario
-from . import streams
+from ..timeseries import streams
+from ..timeseries.generation import (GenerationModel, GenerationSampler, fit_scenario_generation,
+                                     generation_sampler, plan_basis, sample_generation)
 from .coal_quality import PROPERTIES, QualityModel, blend, fit_quality, simulate_source
-from .generation import (GenerationModel, GenerationSampler, fit_scenario_generation,
-                         generation_sampler, plan_basis, sample_generation)
 
 #: Quantities kept per future and day, in this order.
 FLOWS = ("generation_mwh", "sulfur_pct", "limestone_t", "gypsum_wet_t", "fly_ash_t",

@@ -51,6 +51,21 @@ def write_json(data, path: Path) -> Path:
     return path
 
 
+def write_bytes(data: bytes, path: str | os.PathLike) -> Path:
+    """Write ``data`` to ``path`` through a unique temporary name beside it (two writers
+    at once never share one), so a reader sees the old file or the whole new one."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+        os.replace(tmp, path)
+    finally:
+        Path(tmp).unlink(missing_ok=True)
+    return path
+
+
 def save_workbook(wb, path: str | os.PathLike) -> Path:
     """Save an openpyxl workbook to ``path`` through a temporary name beside it, so an
     existing file is replaced only by a complete one."""

@@ -77,15 +77,30 @@ def _frame_to_sheet(ws, frame: pd.DataFrame, start_row: int = 1, formats: dict |
             elif isinstance(v, dt.date):
                 cell.number_format = "yyyy-mm-dd"
     for j, col in enumerate(frame.columns, start=1):
-        w = (widths or {}).get(col, max(10, min(40, len(str(col)) + 2)))
+        w = (widths or {}).get(col) or _column_width(str(col), frame[col])
         ws.column_dimensions[get_column_letter(j)].width = w
     ws.freeze_panes = ws.cell(start_row + 1, 1)
-    ws.row_dimensions[start_row].height = 32
+    ws.row_dimensions[start_row].height = 58  # up to four lines of a wrapped header
     ws.print_title_rows = f"{start_row}:{start_row}"
     ws.page_setup.orientation = "landscape"
     ws.page_setup.fitToWidth = 1
     ws.page_setup.fitToHeight = 0
     ws.sheet_properties.pageSetUpPr.fitToPage = True
+
+
+def _column_width(header: str, values: pd.Series) -> float:
+    """A column as narrow as its header allows when wrapped on up to three lines and its
+    widest value, between 9 and 40 characters (so a wide table still prints readably)."""
+    longest_word = max((len(w) for w in header.split()), default=0)
+    need = max(longest_word, -(-len(header) // 3))
+    sample = values.head(400)
+    if pd.api.types.is_numeric_dtype(sample):
+        finite = sample[np.isfinite(sample.astype(float))] if len(sample) else sample
+        widest = max((len(f"{abs(float(v)):,.0f}") + 2 for v in finite), default=4)
+    else:
+        widest = max((len(str(v)) for v in sample if v is not None), default=4)
+        widest = 10 if pd.api.types.is_datetime64_any_dtype(sample) else widest
+    return float(max(9, min(40, max(need, widest) + 2)))
 
 
 def _title(ws, text: str, note: str) -> None:
@@ -201,7 +216,7 @@ def rejects_frame(run) -> pd.DataFrame | None:
         return None
     frame = haul_frame(haul, plan.balance["mill_rejects_t"], plan.scenario.dates)
     cur = plan.scenario.plant.currency
-    names = {"made_t": "rejects made [t]", "not_hauled_t": "not hauled [t]",
+    names = {"made_t": "rejects made [t]", "not_hauled_t": "not hauled [t]", "waiting_t": "waiting in the bins [t]",
              "cost": f"haul cost [{cur}]"}
     return frame.rename(columns=lambda c: names.get(c, c[:-2] + " [t]" if c.endswith("_t") else c))
 
@@ -218,7 +233,7 @@ def _records(objs) -> pd.DataFrame:
 
 
 def _line_chart(ws, title: str, data_ws, first_col: int, cols: list[int], n_rows: int, anchor: str,
-                y_title: str) -> None:
+                y_title: str | None) -> None:
     chart = LineChart()
     chart.title, chart.y_axis.title, chart.x_axis.title = title, y_title, "date"
     chart.height, chart.width = 9, 24
@@ -279,7 +294,7 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     for store in scn.storage:
         label = store.replace("_", " ")
         cols = [stores.columns.get_loc(f"{label} {k} [t]") + 1 for k in ("level", "safety", "capacity")]
-        _line_chart(charts, f"{label} [t]", ws, 1, cols, n, f"A{row}", "t")
+        _line_chart(charts, f"{label}, end-of-day tonnes [t]", ws, 1, cols, n, f"A{row}", None)
         row += 19
     if run.risk is not None and run.risk.top:
         top = pd.DataFrame(run.risk.top).rename(columns=TOP_RISK_HEADERS)
@@ -321,7 +336,8 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
             cws.cell(i, j, v if not isinstance(v, np.generic) else v.item())
     if len(pivot.columns) > 1:
         bar = BarChart()
-        bar.title, bar.y_axis.title = "Shipments by buyer per month", "t"
+        # the unit in the title: a one-letter axis title is drawn rotated as an odd glyph
+        bar.title = "Shipments by buyer per month, tonnes [t]"
         bar.height, bar.width = 9, 24
         bar.add_data(Reference(cws, min_col=start_col + 1, max_col=start_col + len(pivot.columns) - 1,
                                min_row=1, max_row=len(pivot) + 1), titles_from_data=True)
@@ -353,7 +369,8 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
     if rejects is not None:
         bal[f"mill rejects haul cost [{cur}]"] = plan.evaluation.rejects.cost
     _frame_to_sheet(ws, bal, formats={c: "#,##0.0" for c in bal.columns if "[t]" in c or "[GJ]" in c
-                                      or "[MWh]" in c} | {c: "0.000" for c in bal.columns if "/" in c})
+                                      or "[MWh]" in c} | {c: "0.000" for c in bal.columns if "/" in c}
+                    | {c: "0.00" for c in bal.columns if "[%]" in c})
     ws = wb.create_sheet("Costs")
     costs = costs_frame(run)
     _title(ws, "Costs of the plan and of the reorder-point baseline",
@@ -365,7 +382,71 @@ def write_plan_workbook(run, path: str | os.PathLike) -> Path:
                     widths={"item": 30, costs.columns[1]: 20, costs.columns[2]: 28})
     _assumptions(wb.create_sheet("Assumptions"), run)
 
+    for sheet in wb.worksheets:
+        _page_setup(sheet, scn.plant.name, _window_end(run) if sheet.title in DAILY_SHEETS else None)
     return save_workbook(wb, path)
+
+
+#: Sheets with a row per day (or per load): printed for the firm window only.
+DAILY_SHEETS = ("Plant manager", "Sales", "Stone and gypsum", "Scrubber and permit", "Daily balance")
+#: Most columns of a table printed on one page across.
+MAX_COLUMNS_PER_PAGE = 20
+#: Page margins [inch]: narrow, as printers allow.
+MARGINS = {"left": 0.4, "right": 0.4, "top": 0.6, "bottom": 0.6, "header": 0.25, "footer": 0.25}
+
+
+def _window_end(run) -> dt.date:
+    """Last day of the firm window (the days planned one by one)."""
+    p = run.plan.scenario.plant
+    return p.start_date + dt.timedelta(days=min(run.plan.firm_days, p.horizon_days) - 1)
+
+
+def _page_setup(ws, station: str, window_end: dt.date | None = None) -> None:
+    """Print ``ws`` readably: landscape, one page wide, narrow margins, the sheet and the
+    station in the header and the page number in the footer, the header rows (already
+    set as print titles) and the first column repeated.  With ``window_end``, the print
+    area stops at the last row dated on or before it (charts and side tables above that
+    row are kept) and the footer says so; the sheet itself keeps every row."""
+    from openpyxl.utils.cell import coordinate_from_string
+
+    ps = ws.page_setup
+    # a tall list of inputs reads best upright; every table across
+    ps.orientation = "portrait" if ws.title == "Assumptions" else "landscape"
+    # a table of many columns (the daily balance) on as many pages across as keep it legible
+    wide = ws.print_title_rows is not None and ws.max_column > MAX_COLUMNS_PER_PAGE
+    ps.fitToWidth, ps.fitToHeight = (-(-ws.max_column // MAX_COLUMNS_PER_PAGE) if wide else 1), 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+    for side, inches in MARGINS.items():
+        setattr(ws.page_margins, side, inches)
+    ws.print_options.horizontalCentered = False
+    ws.oddHeader.center.text = f"&A · {station}"[:200]
+    ws.oddFooter.right.text = "page &P of &N"
+    if ws.print_title_rows and ws.max_column > 6:
+        ws.print_title_cols = "A:A"
+    if window_end is None:
+        return
+    last, later = 0, False
+    for row in ws.iter_rows():
+        for cell in row:
+            v = cell.value
+            if isinstance(v, dt.datetime):
+                v = v.date()
+            if isinstance(v, dt.date):
+                if v <= window_end:
+                    last = max(last, cell.row)
+                else:
+                    later = True
+    if not later or not last:
+        return
+    for chart in ws._charts:  # a chart's rows, at about 0.5 cm each
+        anchor = chart.anchor if isinstance(chart.anchor, str) else None
+        if anchor:
+            _, top = coordinate_from_string(anchor)
+            last = max(last, top + int(np.ceil(chart.height / 0.5)))
+    ws.print_area = f"A1:{get_column_letter(ws.max_column)}{last}"
+    if last <= 80:  # the firm window's rows on one page (no page of four spilled rows)
+        ps.fitToHeight = 1
+    ws.oddFooter.left.text = f"Printed to {window_end:%d %b %Y}, the end of the firm window; the sheet holds every day."
 
 
 def _stone_sheet(wb, run) -> None:

@@ -120,7 +120,7 @@ def study_meta(result) -> dict:
         "vary": [spec.text for spec in result.grid.specs], "cases": len(result.frame),
         "futures": result.shared.n_futures, "seed": result.shared.seed,
         "risk_level": s.risk_level, "solver": s.solver, "time_limit": s.time_limit,
-        "firm_days": s.firm_days, "case_timeout": s.case_timeout,
+        "firm_days": s.firm_days, "case_timeout": result.case_timeout,
         "cluster": result.run.where, "workers": result.run.workers,
         "seconds": round(result.run.seconds, 2), "interrupted": result.run.interrupted,
         "cases_on_shared_futures": shared,

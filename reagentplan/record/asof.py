@@ -26,13 +26,10 @@ import sqlalchemy as sa
 from ..balance import balance_frame
 from ..errors import Problem
 from ..scenario import FirmOrder, Scenario, Store
+from ..schema import STORE_FLOW_COLUMN
 from .db import RecordError
 from .importer import resolve_out_lane, resolve_supply_lane
 from .models import FACT_TABLES, Import
-
-#: Daily flow of the balance that empties (limestone) or fills (byproducts) each store.
-STORE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
-               "bottom_ash": "bottom_ash_t"}
 
 
 @dataclass(frozen=True)
@@ -210,7 +207,7 @@ def book_levels(scenario: Scenario, record: RecordFrames, last: dt.date,
             continue
         use = np.zeros(len(days))
         if bal is not None:
-            use[1:] = bal[STORE_FLOWS[store]].to_numpy(float)
+            use[1:] = bal[STORE_FLOW_COLUMN[store]].to_numpy(float)
         if store == "limestone":
             net = _daily(record.arrivals, days) - use
         else:

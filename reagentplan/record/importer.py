@@ -31,7 +31,8 @@ import sqlalchemy as sa
 
 from .. import schema
 from ..errors import Problem
-from ..scenario import Scenario, _Collector, _did_you_mean, _read_table, _show
+from ..scenario import Scenario
+from ..scenario.tables import Collector, did_you_mean, read_table_into, show_value
 from ..workbook import MAX_ROWS, RawSheet, read_raw
 from .db import RecordError, require_current, write_transaction
 from .models import FACT_TABLES, Import, ReplacedValue
@@ -106,19 +107,19 @@ def read_record_file(path: str | Path | tuple[str, bytes]) -> tuple[dict[str, Ra
     if path.suffix.lower() == ".csv":
         stem = path.stem.strip().lower()
         if stem not in RECORD_SHEETS:
-            raise RecordError(Problem(path.name, None, None, f"a CSV named '{path.name}'{_did_you_mean(stem, names)}",
+            raise RecordError(Problem(path.name, None, None, f"a CSV named '{path.name}'{did_you_mean(stem, names)}",
                                       "a CSV named after a record sheet: " + ", ".join(f"{n}.csv" for n in names)),
                               "The record file")
         return {stem: _csv_sheet(data, path.name)}, data
     raw = read_raw(data if upload else path)
-    out = _Collector()
+    out = Collector()
     sheets = {}
     for title, sheet in raw.items():
         key = title.strip().lower()
         if key in RECORD_SHEETS:
             sheets[key] = sheet
         elif not (key in schema.NOTE_SHEETS or key.startswith("notes")):
-            out.add(title, None, None, f"unknown sheet{_did_you_mean(key, names)}",
+            out.add(title, None, None, f"unknown sheet{did_you_mean(key, names)}",
                     "one of " + ", ".join(names) + " (or a 'notes' sheet)")
     if not sheets and not out.problems:
         out.add(None, None, None, f"'{path.name}' has none of the record's sheets", "one of " + ", ".join(names))
@@ -138,13 +139,13 @@ def parse_record(raws: list[tuple[str, dict[str, RawSheet]]], scenario: Scenario
     it was read) and the warnings.  Raises `RecordError` naming every problem.
     """
     today = today or dt.date.today()
-    out = _Collector()
+    out = Collector()
     warnings: list[str] = []
     parts: dict[str, list[pd.DataFrame]] = {}
     for _file, sheets in raws:
         for name, raw in sheets.items():
             spec = dataclasses.replace(RECORD_SHEETS[name], name=raw.name)
-            records = _read_table(raw, spec, out)
+            records = read_table_into(raw, spec, out)
             for col in TEXT_COLUMNS.get(name, ()):
                 j = raw.header.index(col) if col in raw.header else None
                 by_row = {r: (v[j] if j is not None and j < len(v) else None) for r, v in raw.rows}
@@ -166,7 +167,7 @@ def parse_record(raws: list[tuple[str, dict[str, RawSheet]]], scenario: Scenario
 
 
 def _check_frame(name: str, frame: pd.DataFrame, scenario: Scenario | None, today: dt.date,
-                 out: _Collector, warnings: list[str]) -> None:
+                 out: Collector, warnings: list[str]) -> None:
     spec = RECORD_SHEETS[name]
     # the same key twice across files (within one sheet the reader already refused it)
     if len(frame) and frame["_sheet"].nunique() > 1:
@@ -200,7 +201,7 @@ def _check_frame(name: str, frame: pd.DataFrame, scenario: Scenario | None, toda
         cap = frame["unit"].map(caps)
         for _, r in frame[cap.isna()].iterrows():
             out.add(r["_sheet"], int(r["_row"]), "unit",
-                    f"unknown unit '{r['unit']}'{_did_you_mean(r['unit'], list(caps))}",
+                    f"unknown unit '{r['unit']}'{did_you_mean(r['unit'], list(caps))}",
                     "a unit of the scenario's units sheet: " + ", ".join(caps))
         for i, r in frame[frame["mwh"] > cap * 24 * 1.0001].iterrows():
             out.add(r["_sheet"], int(r["_row"]), "mwh", f"found {r['mwh']:g} MWh for {r['unit']}",
@@ -210,11 +211,11 @@ def _check_frame(name: str, frame: pd.DataFrame, scenario: Scenario | None, toda
         bad = frame[~frame["source"].isin(sources)]
         for _, r in bad.iterrows():
             out.add(r["_sheet"], int(r["_row"]), "source",
-                    f"unknown source '{r['source']}'{_did_you_mean(r['source'], sources)}",
+                    f"unknown source '{r['source']}'{did_you_mean(r['source'], sources)}",
                     "a source of the scenario's coal_sources sheet: " + ", ".join(sources))
 
 
-def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: _Collector) -> None:
+def _check_lanes(name: str, frame: pd.DataFrame, scenario: Scenario, out: Collector) -> None:
     """Each row's lane (resolved once per party, mode and month; row by row only where a
     party has several lanes that the load size must tell apart), and loads against
     tonnes for the lane's load size."""
@@ -297,7 +298,7 @@ def resolve_supply_lane(scenario: Scenario, supplier: str, mode, date: dt.date, 
     names = sorted({s.supplier for s in scenario.suppliers})
     lanes = [s for s in scenario.suppliers if s.supplier == supplier]
     if not lanes:
-        return None, ("supplier", f"unknown supplier '{supplier}'{_did_you_mean(supplier, names)}",
+        return None, ("supplier", f"unknown supplier '{supplier}'{did_you_mean(supplier, names)}",
                       "a supplier of the scenario's suppliers sheet: " + ", ".join(names))
     if mode is not None and not (isinstance(mode, float) and math.isnan(mode)):
         modes = sorted({s.mode for s in lanes})
@@ -316,7 +317,7 @@ def resolve_out_lane(scenario: Scenario, party: str, material: str, mode, date: 
     if not buyers and not sites:
         names = sorted({b.buyer for b in scenario.buyers if b.material == material}
                        | {d.site for d in scenario.disposal if d.material == material})
-        return None, ("party", f"no {material} lane for '{party}'{_did_you_mean(party, names)}",
+        return None, ("party", f"no {material} lane for '{party}'{did_you_mean(party, names)}",
                       f"a buyer or disposal site of the scenario for {material}: " + ", ".join(names))
     if sites and not buyers:
         return sites[0], None
@@ -429,7 +430,7 @@ def _compare(name: str, frame: pd.DataFrame, old: pd.DataFrame):
 
 
 def _key_text(name: str, row) -> str:
-    return ", ".join(f"{k} {_show(_plain(row[k]))}" for k in RECORD_SHEETS[name].key)
+    return ", ".join(f"{k} {show_value(_plain(row[k]))}" for k in RECORD_SHEETS[name].key)
 
 
 def record_files(engine, paths: list[str | Path | tuple[str, bytes]], *, scenario: Scenario | None = None,
@@ -467,7 +468,7 @@ def record_files(engine, paths: list[str | Path | tuple[str, bytes]], *, scenari
                         conflicts.append(Problem(
                             row["_sheet"], int(row["_row"]), c,
                             f"{_key_text(name, row)} is already recorded with {c} = "
-                            f"{_show(_plain(row[c + '_old']))}; this file says {_show(_plain(row[c]))}",
+                            f"{show_value(_plain(row[c + '_old']))}; this file says {show_value(_plain(row[c]))}",
                             "the recorded value, or `record --replace` to replace it (the old value "
                             "is kept in the audit trail)"))
         if conflicts:
@@ -537,7 +538,7 @@ def _typed(row: dict) -> dict:
 
 def _text(v: Any) -> str | None:
     v = _plain(v)
-    return None if v is None else _show(v)
+    return None if v is None else show_value(v)
 
 
 def _user() -> str:

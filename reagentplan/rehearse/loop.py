@@ -35,15 +35,11 @@ from ..record.db import connect, upgrade
 from ..record.importer import record_files
 from ..record.versions import StoredPlan, diff_plans
 from ..scenario import Scenario
+from ..settings import WEEKLY_PLAN, PlanSettings
 from ..schedule.lanes import LANDFILL, SALE, SUPPLY, quality_ok
 from .truth import Disturbances, World, partial_take, surveyed, train_delay
 
 POLICIES = ("plan", "baseline")
-#: The accepted chance of breaking a limit on a day that each weekly plan is guarded at:
-#: 1 %, not a single plan's 5 %, because a rehearsal counts a future clean only when no
-#: day of its weeks breaks a limit (on the demo, 16 weeks x 6 futures: 5 % left an
-#: overflow in 2 of 6 futures, 1 % in none; DEVELOPERS.md, "Rehearsal").
-RISK_LEVEL = 0.01
 
 ORDER_COLUMNS = ["order_id", "date", "supplier", "mode", "loads", "tonnes", "status"]
 ARRIVAL_COLUMNS = ["date", "supplier", "mode", "loads", "tonnes", "ticket", "caco3_pct"]
@@ -97,19 +93,19 @@ def _xlsx(frames: dict[str, pd.DataFrame]) -> bytes:
     return buf.getvalue()
 
 
-def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, firm_days, time_limit, solver,
-                 guard=None, previous: pd.DataFrame | None = None, risk_level: float = RISK_LEVEL):
-    """(movements, lanes, status) of the policy's plan as of ``as_of``; ``guard`` gives
-    the futures guarding it (`GuardFutures`, or None for none); ``previous`` is the plan in
-    force (its firm-window loads cost something to move)."""
+def _policy_plan(policy: str, workbook, engine, as_of, scenario, lookahead_days, settings: PlanSettings,
+                 guard=None, previous: pd.DataFrame | None = None):
+    """(movements, lanes, status) of the policy's plan as of ``as_of`` made with
+    ``settings``; ``guard`` gives the futures guarding it (`GuardFutures`, or None for
+    none; ``settings.futures`` is not sampled here); ``previous`` is the plan in force
+    (its firm-window loads cost something to move)."""
     if policy == "plan":
-        run = run_plan_from_record(workbook, engine, as_of, scenario=scenario, horizon_days=lookahead_days,
-                                   store=False, futures=0, sampler=guard, firm_days=firm_days,
-                                   time_limit=time_limit, solver=solver, previous=previous,
-                                   risk_level=risk_level)
+        run = run_plan_from_record(workbook, engine, as_of, settings, scenario=scenario,
+                                   horizon_days=lookahead_days, store=False, futures=0, sampler=guard,
+                                   previous=previous)
         return run.plan.movements, run.plan.lanes, run.plan.outcome.status
     _, lanes, _, mv = baseline_from_record(workbook, engine, as_of, scenario=scenario,
-                                           horizon_days=lookahead_days, firm_days=firm_days)
+                                           horizon_days=lookahead_days, firm_days=settings.firm_days)
     return mv, lanes, "reorder point"
 
 
@@ -119,202 +115,273 @@ def _stored(mv: pd.DataFrame, start: dt.date, days: int) -> StoredPlan:
     return StoredPlan(0, None, start, days, dt.datetime(2000, 1, 1), "", {}, mv)
 
 
+@dataclass
+class _Walk:
+    """What one policy's walk through its world carries from week to week: the true
+    stock per store [t], the rows gathered so far and the plan in force."""
+
+    scenario: Scenario
+    world: World
+    policy: str
+    disturbances: Disturbances
+    rng: np.random.Generator
+    engine: object
+    as_of: dt.date
+    true: dict[str, float]
+    ref_caco3: np.ndarray        # the balance's CaCO3 of the stone fed per day [-]
+    ref_gypsum: np.ndarray       # the balance's wet gypsum per day [t/d]
+    fed: np.ndarray              # the CaCO3 of the stone really fed per day [-]
+    silo_caco3: float            # the silo's CaCO3 now [-]
+    orders: dict[str, dict] = field(default_factory=dict)
+    daily: list = field(default_factory=list)
+    moved: list = field(default_factory=list)
+    plans: list = field(default_factory=list)
+    changes: list = field(default_factory=list)
+    statuses: list = field(default_factory=list)
+    all_lanes: dict = field(default_factory=dict)
+    plan_seconds: float = 0.0
+    prev: tuple | None = None    # (movements, first day) of the plan in force
+
+
+def _open_record(walk: _Walk) -> None:
+    """The record as the rehearsal starts: the workbook's booked limestone orders and a
+    survey of every store at the eve of the start."""
+    scenario, as_of = walk.scenario, walk.as_of
+    first = [{"order_id": f"WB-{i + 1}", "date": pd.Timestamp(o.date), "supplier": o.party,
+              "mode": o.mode, "loads": o.loads, "tonnes": o.tonnes, "status": "booked"}
+             for i, o in enumerate(scenario.firm_orders) if o.material == "limestone"]
+    for r in first:
+        walk.orders[r["order_id"]] = dict(r, lane=None, planned=r["date"], arrival=r["date"], week=0)
+    survey = pd.DataFrame([{"date": pd.Timestamp(as_of), "store": k,
+                            "level_t": surveyed(walk.rng, v, walk.disturbances), "method": "survey"}
+                           for k, v in walk.true.items()])
+    facts = {"stock_surveys": survey}
+    if first:
+        facts["orders"] = pd.DataFrame(first, columns=ORDER_COLUMNS)
+    record_files(walk.engine, [("week_0.xlsx", _xlsx(facts))], scenario=scenario, today=as_of)
+
+
+def _plan_week(walk: _Walk, week: int, workbook, lookahead_days: int, settings: PlanSettings, guard):
+    """Plan as of the week's eve from the record and keep the plan (and, after the first
+    week, its firm-window changes against the plan in force): (movements, lanes by name,
+    the plan's first day)."""
+    import time
+
+    t0 = time.perf_counter()
+    mv, lanes, status = _policy_plan(walk.policy, workbook, walk.engine, walk.as_of, walk.scenario,
+                                     lookahead_days, settings, guard,
+                                     None if walk.prev is None else walk.prev[0])
+    walk.plan_seconds += time.perf_counter() - t0
+    walk.statuses.append(status)
+    lane_of = {ln.name: ln for ln in lanes}
+    walk.all_lanes.update(lane_of)
+    plan_start = walk.as_of + dt.timedelta(days=1)
+    walk.plans.append(mv.assign(week=week))
+    if walk.prev is not None:
+        firm = settings.firm_days
+        d = diff_plans(_stored(walk.prev[0], walk.prev[1], firm), _stored(mv, plan_start, firm))
+        walk.changes.append(d.assign(week=week))
+    walk.prev = (mv, plan_start)
+    return mv, lane_of, plan_start
+
+
+def _book_orders(walk: _Walk, week: int, mv: pd.DataFrame, lane_of: dict, week_end: dt.date) -> None:
+    """The coordinator books the inbound lines whose order-by day falls in the week; a
+    train may turn out late (and an order booked before the rehearsal, the workbook's,
+    too)."""
+    rng, dist = walk.rng, walk.disturbances
+    due = mv[(mv["direction"] == "in") & ~mv["booked"].astype(bool)
+             & (mv["date"] > pd.Timestamp(walk.as_of)) & (mv["order_by"] <= pd.Timestamp(week_end))]
+    for r in due.itertuples(index=False):
+        lane = lane_of[r.lane]
+        oid = f"R{week}-{r.lane[:24]}-{r.date:%Y%m%d}"
+        late = train_delay(rng, dist) if lane.mode == "rail" else 0
+        walk.orders[oid] = {"order_id": oid, "date": r.date, "supplier": r.party, "mode": lane.mode,
+                            "loads": int(r.loads), "tonnes": float(r.tonnes), "status": "booked",
+                            "lane": r.lane, "planned": r.date,
+                            "arrival": r.date + pd.Timedelta(days=late), "week": week}
+    for o in walk.orders.values():
+        if o["week"] == 0 and o["lane"] is None:
+            o["lane"] = _supply_lane(lane_of, o)
+            if o["mode"] == "rail":
+                o["arrival"] = o["planned"] + pd.Timedelta(days=train_delay(rng, dist))
+
+
+def _carry_out_limestone(walk: _Walk, week_days: pd.DatetimeIndex, lane_of: dict) -> list[dict]:
+    """The week's trains and trucks arrive and the scrubber draws its true CaCO3 need
+    from the well-mixed silo (`silo_replay`), so poorer stone is drawn in more tonnes:
+    the daily rows of the limestone store, and the week's arrivals as recorded."""
+    scenario, world = walk.scenario, walk.world
+    coupled = scenario.quality_coupled
+    arrivals = []
+    came, came_c = np.zeros(len(week_days)), np.zeros((len(week_days), 1))
+    for k, day in enumerate(week_days):
+        for o in [o for o in walk.orders.values() if o["arrival"] == day]:
+            lane = walk.all_lanes.get(o["lane"]) or lane_of[_supply_lane(lane_of, o)]
+            tonnes = float(o["loads"] * lane.load_t)
+            # one stone (no supplier gives its own CaCO3): the scrubber sheet's
+            # value that day, period settings included, and no lab result
+            c = scenario.stone_caco3_pct(lane.source) if coupled else None
+            came[k] += tonnes
+            if coupled:
+                came_c[k, 0] += tonnes * c / 100
+            arrivals.append({"date": day, "supplier": o["supplier"], "mode": o["mode"],
+                             "loads": o["loads"], "tonnes": tonnes, "ticket": f"A-{o['order_id']}",
+                             "caco3_pct": c})
+            walk.moved.append({"date": day, "lane": lane.name, "kind": SUPPLY, "material": "limestone",
+                               "party": o["supplier"], "loads": o["loads"], "tonnes": tonnes})
+    days_i = np.array([world.day(day) for day in week_days])
+    need = world.flows["limestone"][days_i] * walk.ref_caco3[days_i]
+    if coupled:
+        r = silo_replay(walk.true["limestone"], [walk.silo_caco3], came, came_c, need)
+        walk.silo_caco3 = float(r["frac"][-1, 0])
+    else:
+        # one stone: the silo holds the day's stone, as the balance takes it
+        # (period settings included), so the world's use is drawn as it is
+        r = silo_replay(walk.true["limestone"], [1.0], came, came[:, None],
+                        world.flows["limestone"][days_i])
+        r["unmet_caco3_t"] = r["unmet_caco3_t"] * walk.ref_caco3[days_i]
+        r["frac"] = walk.ref_caco3[days_i][:, None]
+    walk.true["limestone"] = float(r["level_t"][-1])
+    walk.fed[days_i] = r["frac"][:, 0]
+    st = scenario.storage["limestone"]
+    for k, day in enumerate(week_days):
+        walk.daily.append({"date": day, "store": "limestone", "level_t": float(r["level_t"][k]),
+                           "unmet_t": float(r["unmet_caco3_t"][k] / r["frac"][k, 0]), "overflow_t": 0.0,
+                           "safety_t": st.safety_t, "capacity_t": st.capacity_t,
+                           "used_t": float(r["stone_t"][k]), "caco3_pct": float(100 * r["frac"][k, 0]),
+                           "refused_t": 0.0})
+    return arrivals
+
+
+def _carry_out_byproducts(walk: _Walk, week: int, week_days: pd.DatetimeIndex, mv: pd.DataFrame,
+                          lane_of: dict) -> list[dict]:
+    """The byproducts of the stone really fed (the day's cake and its purity at the
+    silo's CaCO3: the world's gypsum scaled by the balance there) pile up and leave as
+    planned, never below the store's safety stock, a buyer taking only part of a day's
+    loads at times and its laboratory refusing off-spec product: the daily rows of each
+    byproduct store, and the week's shipments as recorded."""
+    scenario, world, rng = walk.scenario, walk.world, walk.rng
+    shipments = []
+    bal = balance_frame(scenario, caco3_pct=100 * walk.fed)
+    gyp_scale = np.divide(bal["gypsum_wet_t"].to_numpy(float), walk.ref_gypsum,
+                          out=np.ones(len(walk.fed)), where=walk.ref_gypsum > 0)
+    spec_ok = {}
+    for day in week_days:
+        i = world.day(day)
+        for store in walk.true:
+            if store == "limestone":
+                continue
+            st = scenario.storage[store]
+            overflow = refused = 0.0
+            made = world.flows[store][i] * (gyp_scale[i] if store == "gypsum" else 1.0)
+            x = walk.true[store] + made
+            out = mv[(mv["direction"] == "out") & (mv["date"] == day) & (mv["material"] == store)]
+            for r in out.sort_values("cost").itertuples(index=False):
+                lane = lane_of[r.lane]
+                # a haul-out goes as planned but never below the store's
+                # safety stock (the heel a coordinator keeps), as the
+                # reorder-point rule ships only the stock above safety
+                room = max(x - st.safety_t, 0.0)
+                if lane.kind == SALE:
+                    if r.lane not in spec_ok:
+                        spec_ok[r.lane] = quality_ok(lane.source, bal)[0]
+                    loads = partial_take(rng, int(r.loads), walk.disturbances)
+                    loads = min(loads, int(np.floor(room / lane.load_t)))
+                    if not spec_ok[r.lane][i]:
+                        # the buyer's laboratory refuses the day's product
+                        refused += loads * lane.load_t
+                        continue
+                    tonnes = loads * lane.load_t
+                else:
+                    loads, tonnes = None, float(min(r.tonnes, room))
+                if (loads is not None and loads <= 0) or tonnes <= 1e-6:
+                    continue
+                x -= tonnes
+                ticket = f"S-{week}-{len(shipments) + 1:05d}"
+                shipments.append({"date": day, "party": r.party, "material": store,
+                                  "mode": lane.mode, "loads": loads, "tonnes": round(tonnes, 3),
+                                  "ticket": ticket})
+                walk.moved.append({"date": day, "lane": lane.name, "kind": lane.kind, "material": store,
+                                   "party": r.party, "loads": loads if loads is not None else np.nan,
+                                   "tonnes": round(tonnes, 3)})
+            if x > st.capacity_t:
+                overflow, x = x - st.capacity_t, float(st.capacity_t)
+            walk.true[store] = x
+            walk.daily.append({"date": day, "store": store, "level_t": x, "unmet_t": 0.0,
+                               "overflow_t": overflow, "safety_t": st.safety_t, "capacity_t": st.capacity_t,
+                               "used_t": 0.0, "caco3_pct": np.nan, "refused_t": refused})
+    return shipments
+
+
+def _record_week(walk: _Walk, week: int, week_end: dt.date, arrivals: list[dict],
+                 shipments: list[dict]) -> None:
+    """The week recorded as a coordinator would: orders (a train known late re-dated),
+    arrivals, shipments, and the survey at the week's end."""
+    replace = False
+    for o in walk.orders.values():
+        if o["planned"] <= pd.Timestamp(week_end) < o["arrival"] and o["date"] != o["arrival"]:
+            o["date"], replace = o["arrival"], True
+    facts = {"orders": pd.DataFrame([{k: o[k] for k in ORDER_COLUMNS} for o in walk.orders.values()],
+                                    columns=ORDER_COLUMNS),
+             "stock_surveys": pd.DataFrame([{"date": pd.Timestamp(week_end), "store": k,
+                                             "level_t": surveyed(walk.rng, v, walk.disturbances),
+                                             "method": "survey"} for k, v in walk.true.items()])}
+    if arrivals:
+        facts["arrivals"] = pd.DataFrame(arrivals, columns=ARRIVAL_COLUMNS)
+    if shipments:
+        facts["shipments"] = pd.DataFrame(shipments, columns=SHIPMENT_COLUMNS)
+    record_files(walk.engine, [(f"week_{week}.xlsx", _xlsx(facts))], scenario=walk.scenario,
+                 replace=replace, today=week_end)
+
+
 def rehearse_policy(workbook: str | Path, scenario: Scenario, world: World, policy: str, *, weeks: int,
                     disturbances: Disturbances, seed: int = 0, lookahead_days: int = 120,
-                    firm_days: int = 14, time_limit: float = 20.0, solver: str = "highs",
-                    guard=None, risk_level: float = RISK_LEVEL, on_week=None) -> PolicyRun:
+                    settings: PlanSettings = WEEKLY_PLAN, guard=None, on_week=None) -> PolicyRun:
     """Follow ``policy`` (``plan`` or ``baseline``) for ``weeks`` weeks in ``world``.
 
     The disturbances come from ``numpy.random.default_rng([seed, world.index])``: both
     policies meet the same stream of chances (common random numbers), though what they
     meet depends on what they book.  ``guard`` (`GuardFutures`) gives the futures that
-    guard each weekly plan (None: none, the deterministic balance only) at ``risk_level``
-    (the accepted chance of breaking a limit on a day, as `make_plan` takes it).  ``on_week(week)`` is called after each
-    week."""
-    import time
+    guard each weekly plan (None: none, the deterministic balance only); ``settings``
+    (`reagentplan.settings.WEEKLY_PLAN` by default) are how each weekly plan is made.
+    ``on_week(week)`` is called after each week.
 
-    rng = np.random.default_rng([seed, world.index])
+    Each week is the steps `_plan_week`, `_book_orders`, `_carry_out_limestone`,
+    `_carry_out_byproducts` and `_record_week`, in this order (the order the random
+    chances are drawn in)."""
+    ref = balance_frame(scenario)
+    ref_caco3 = ref["limestone_caco3_pct"].to_numpy(float) / 100
     start = scenario.plant.start_date
-    as_of = start - dt.timedelta(days=1)
-    true = {k: float(st.initial_t) for k, st in scenario.storage.items()}
-    daily, moved, changes, plans, statuses = [], [], [], [], []
-    orders: dict[str, dict] = {}
-    plan_seconds = 0.0
-    all_lanes: dict = {}
     with tempfile.TemporaryDirectory(prefix="rehearse-") as tmp:
         engine = connect(f"sqlite:///{Path(tmp) / 'record.db'}")
         try:
             upgrade(engine)
-            first = [{"order_id": f"WB-{i + 1}", "date": pd.Timestamp(o.date), "supplier": o.party,
-                      "mode": o.mode, "loads": o.loads, "tonnes": o.tonnes, "status": "booked"}
-                     for i, o in enumerate(scenario.firm_orders) if o.material == "limestone"]
-            for r in first:
-                orders[r["order_id"]] = dict(r, lane=None, planned=r["date"], arrival=r["date"], week=0)
-            survey = pd.DataFrame([{"date": pd.Timestamp(as_of), "store": k, "level_t": surveyed(rng, v, disturbances),
-                                    "method": "survey"} for k, v in true.items()])
-            facts = {"stock_surveys": survey}
-            if first:
-                facts["orders"] = pd.DataFrame(first, columns=ORDER_COLUMNS)
-            record_files(engine, [("week_0.xlsx", _xlsx(facts))], scenario=scenario, today=as_of)
-            prev = None
-            ref = balance_frame(scenario)
-            ref_caco3 = ref["limestone_caco3_pct"].to_numpy(float) / 100
-            ref_gypsum = ref["gypsum_wet_t"].to_numpy(float)
-            fed = ref_caco3.copy()
-            coupled = scenario.quality_coupled
-            silo_caco3 = scenario.scrubber.limestone_caco3_pct / 100
+            walk = _Walk(scenario, world, policy, disturbances, np.random.default_rng([seed, world.index]),
+                         engine, start - dt.timedelta(days=1),
+                         {k: float(st.initial_t) for k, st in scenario.storage.items()},
+                         ref_caco3, ref["gypsum_wet_t"].to_numpy(float), ref_caco3.copy(),
+                         scenario.scrubber.limestone_caco3_pct / 100)
+            _open_record(walk)
             for week in range(1, weeks + 1):
-                week_end = as_of + dt.timedelta(days=7)
-                t0 = time.perf_counter()
-                mv, lanes, status = _policy_plan(policy, workbook, engine, as_of, scenario, lookahead_days,
-                                                 firm_days, time_limit, solver, guard,
-                                                 None if prev is None else prev[0], risk_level)
-                plan_seconds += time.perf_counter() - t0
-                statuses.append(status)
-                lane_of = {ln.name: ln for ln in lanes}
-                all_lanes.update(lane_of)
-                plan_start = as_of + dt.timedelta(days=1)
-                plans.append(mv.assign(week=week))
-                if prev is not None:
-                    d = diff_plans(_stored(prev[0], prev[1], firm_days), _stored(mv, plan_start, firm_days))
-                    changes.append(d.assign(week=week))
-                prev = (mv, plan_start)
-                # the coordinator books what must be ordered this week
-                due = mv[(mv["direction"] == "in") & ~mv["booked"].astype(bool)
-                         & (mv["date"] > pd.Timestamp(as_of)) & (mv["order_by"] <= pd.Timestamp(week_end))]
-                for r in due.itertuples(index=False):
-                    lane = lane_of[r.lane]
-                    oid = f"R{week}-{r.lane[:24]}-{r.date:%Y%m%d}"
-                    late = train_delay(rng, disturbances) if lane.mode == "rail" else 0
-                    orders[oid] = {"order_id": oid, "date": r.date, "supplier": r.party, "mode": lane.mode,
-                                   "loads": int(r.loads), "tonnes": float(r.tonnes), "status": "booked",
-                                   "lane": r.lane, "planned": r.date,
-                                   "arrival": r.date + pd.Timedelta(days=late), "week": week}
-                # an order booked before the rehearsal (the workbook's) may be late too
-                for o in orders.values():
-                    if o["week"] == 0 and o["lane"] is None:
-                        o["lane"] = _supply_lane(lane_of, o)
-                        if o["mode"] == "rail":
-                            o["arrival"] = o["planned"] + pd.Timedelta(days=train_delay(rng, disturbances))
-                arrivals, shipments = [], []
+                week_end = walk.as_of + dt.timedelta(days=7)
+                mv, lane_of, plan_start = _plan_week(walk, week, workbook, lookahead_days, settings, guard)
+                _book_orders(walk, week, mv, lane_of, week_end)
                 week_days = pd.date_range(plan_start, week_end, freq="D")
-                # the limestone store first: a well-mixed silo (`silo_replay`) whose stone
-                # carries the day's CaCO3 need, so poorer stone is drawn in more tonnes
-                came, came_c = np.zeros(len(week_days)), np.zeros((len(week_days), 1))
-                for k, day in enumerate(week_days):
-                    for o in [o for o in orders.values() if o["arrival"] == day]:
-                        lane = all_lanes.get(o["lane"]) or lane_of[_supply_lane(lane_of, o)]
-                        tonnes = float(o["loads"] * lane.load_t)
-                        # one stone (no supplier gives its own CaCO3): the scrubber sheet's
-                        # value that day, period settings included, and no lab result
-                        c = scenario.stone_caco3_pct(lane.source) if coupled else None
-                        came[k] += tonnes
-                        if coupled:
-                            came_c[k, 0] += tonnes * c / 100
-                        arrivals.append({"date": day, "supplier": o["supplier"], "mode": o["mode"],
-                                         "loads": o["loads"], "tonnes": tonnes, "ticket": f"A-{o['order_id']}",
-                                         "caco3_pct": c})
-                        moved.append({"date": day, "lane": lane.name, "kind": SUPPLY, "material": "limestone",
-                                      "party": o["supplier"], "loads": o["loads"], "tonnes": tonnes})
-                days_i = np.array([world.day(day) for day in week_days])
-                need = world.flows["limestone"][days_i] * ref_caco3[days_i]
-                if coupled:
-                    r = silo_replay(true["limestone"], [silo_caco3], came, came_c, need)
-                    silo_caco3 = float(r["frac"][-1, 0])
-                else:
-                    # one stone: the silo holds the day's stone, as the balance takes it
-                    # (period settings included), so the world's use is drawn as it is
-                    r = silo_replay(true["limestone"], [1.0], came, came[:, None],
-                                    world.flows["limestone"][days_i])
-                    r["unmet_caco3_t"] = r["unmet_caco3_t"] * ref_caco3[days_i]
-                    r["frac"] = ref_caco3[days_i][:, None]
-                true["limestone"] = float(r["level_t"][-1])
-                fed[days_i] = r["frac"][:, 0]
-                st = scenario.storage["limestone"]
-                for k, day in enumerate(week_days):
-                    daily.append({"date": day, "store": "limestone", "level_t": float(r["level_t"][k]),
-                                  "unmet_t": float(r["unmet_caco3_t"][k] / r["frac"][k, 0]), "overflow_t": 0.0,
-                                  "safety_t": st.safety_t, "capacity_t": st.capacity_t,
-                                  "used_t": float(r["stone_t"][k]), "caco3_pct": float(100 * r["frac"][k, 0]),
-                                  "refused_t": 0.0})
-                # the byproducts of the stone really fed: the day's cake and its purity at
-                # the silo's CaCO3 (the world's gypsum scaled by the balance there)
-                bal = balance_frame(scenario, caco3_pct=100 * fed)
-                gyp_scale = np.divide(bal["gypsum_wet_t"].to_numpy(float), ref_gypsum,
-                                      out=np.ones(len(fed)), where=ref_gypsum > 0)
-                spec_ok = {}
-                for day in week_days:
-                    i = world.day(day)
-                    for store in true:
-                        if store == "limestone":
-                            continue
-                        st = scenario.storage[store]
-                        overflow = refused = 0.0
-                        made = world.flows[store][i] * (gyp_scale[i] if store == "gypsum" else 1.0)
-                        x = true[store] + made
-                        out = mv[(mv["direction"] == "out") & (mv["date"] == day) & (mv["material"] == store)]
-                        for r in out.sort_values("cost").itertuples(index=False):
-                            lane = lane_of[r.lane]
-                            # a haul-out goes as planned but never below the store's
-                            # safety stock (the heel a coordinator keeps), as the
-                            # reorder-point rule ships only the stock above safety
-                            room = max(x - st.safety_t, 0.0)
-                            if lane.kind == SALE:
-                                if r.lane not in spec_ok:
-                                    spec_ok[r.lane] = quality_ok(lane.source, bal)[0]
-                                loads = partial_take(rng, int(r.loads), disturbances)
-                                loads = min(loads, int(np.floor(room / lane.load_t)))
-                                if not spec_ok[r.lane][i]:
-                                    # the buyer's laboratory refuses the day's product
-                                    refused += loads * lane.load_t
-                                    continue
-                                tonnes = loads * lane.load_t
-                            else:
-                                loads, tonnes = None, float(min(r.tonnes, room))
-                            if (loads is not None and loads <= 0) or tonnes <= 1e-6:
-                                continue
-                            x -= tonnes
-                            ticket = f"S-{week}-{len(shipments) + 1:05d}"
-                            shipments.append({"date": day, "party": r.party, "material": store,
-                                              "mode": lane.mode, "loads": loads, "tonnes": round(tonnes, 3),
-                                              "ticket": ticket})
-                            moved.append({"date": day, "lane": lane.name, "kind": lane.kind, "material": store,
-                                          "party": r.party, "loads": loads if loads is not None else np.nan,
-                                          "tonnes": round(tonnes, 3)})
-                        if x > st.capacity_t:
-                            overflow, x = x - st.capacity_t, float(st.capacity_t)
-                        true[store] = x
-                        daily.append({"date": day, "store": store, "level_t": x, "unmet_t": 0.0,
-                                      "overflow_t": overflow, "safety_t": st.safety_t, "capacity_t": st.capacity_t,
-                                      "used_t": 0.0, "caco3_pct": np.nan, "refused_t": refused})
-                # the week recorded as a coordinator would: orders (a train known late re-dated),
-                # arrivals, shipments, and the survey at the week's end
-                replace = False
-                for o in orders.values():
-                    if o["planned"] <= pd.Timestamp(week_end) < o["arrival"] and o["date"] != o["arrival"]:
-                        o["date"], replace = o["arrival"], True
-                facts = {"orders": pd.DataFrame([{k: o[k] for k in ORDER_COLUMNS} for o in orders.values()],
-                                                columns=ORDER_COLUMNS),
-                         "stock_surveys": pd.DataFrame([{"date": pd.Timestamp(week_end), "store": k,
-                                                         "level_t": surveyed(rng, v, disturbances),
-                                                         "method": "survey"} for k, v in true.items()])}
-                if arrivals:
-                    facts["arrivals"] = pd.DataFrame(arrivals, columns=ARRIVAL_COLUMNS)
-                if shipments:
-                    facts["shipments"] = pd.DataFrame(shipments, columns=SHIPMENT_COLUMNS)
-                record_files(engine, [(f"week_{week}.xlsx", _xlsx(facts))], scenario=scenario,
-                             replace=replace, today=week_end)
-                as_of = week_end
+                arrivals = _carry_out_limestone(walk, week_days, lane_of)
+                shipments = _carry_out_byproducts(walk, week, week_days, mv, lane_of)
+                _record_week(walk, week, week_end, arrivals, shipments)
+                walk.as_of = week_end
                 if on_week is not None:
                     on_week(week)
         finally:
             engine.dispose()
-    order_frame = pd.DataFrame(list(orders.values()),
+    order_frame = pd.DataFrame(list(walk.orders.values()),
                                columns=["order_id", "lane", "supplier", "mode", "planned", "arrival", "date",
                                         "loads", "tonnes", "week"])
-    return PolicyRun(policy, world.index, pd.DataFrame(daily), pd.DataFrame(
-        moved, columns=["date", "lane", "kind", "material", "party", "loads", "tonnes"]), order_frame,
-        plans, changes, all_lanes, plan_seconds, statuses)
+    return PolicyRun(policy, world.index, pd.DataFrame(walk.daily), pd.DataFrame(
+        walk.moved, columns=["date", "lane", "kind", "material", "party", "loads", "tonnes"]), order_frame,
+        walk.plans, walk.changes, walk.all_lanes, walk.plan_seconds, walk.statuses)
 
 
 def _supply_lane(lane_of: dict, order: dict) -> str:

@@ -10,15 +10,11 @@ import pandas as pd
 
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario, load_scenario
-from .loop import POLICIES, RISK_LEVEL, rehearse_policy
+from ..settings import WEEKLY_PLAN, PlanSettings
+from .loop import POLICIES, rehearse_policy
 from .guard import GuardFutures
 from .metrics import COST_CAUSES, months_over_max, policy_figures
 from .truth import TRUE_FLOWS, Disturbances, worlds_from_futures
-
-#: Futures guarding each weekly plan by default: sampled once, cut to each week
-#: (`GuardFutures`); the real loop guards each ``plan --db`` with 500 of its own.
-PLAN_FUTURES = 50
-
 
 @dataclass
 class RehearsalResult:
@@ -59,8 +55,9 @@ class RehearsalResult:
         return out
 
 
-def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, firm_days: int,
-           d: Disturbances, plan_futures: int = 0, workers: int = 1, risk_level: float = RISK_LEVEL) -> None:
+def _check(scenario: Scenario, weeks: int, futures: int, lookahead_days: int, settings: PlanSettings,
+           d: Disturbances, workers: int = 1) -> None:
+    firm_days, plan_futures, risk_level = settings.firm_days, settings.futures, settings.risk_level
     problems = []
     def bad(option, found, expected):
         problems.append(Problem(None, None, option, f"found {found}", expected))
@@ -118,15 +115,15 @@ def _play(job: dict):
 
 
 def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: int = 0,
-             lookahead_days: int = 120, firm_days: int = 14, time_limit: float = 20.0,
-             solver: str = "highs", disturbances: Disturbances = Disturbances(),
-             plan_futures: int = PLAN_FUTURES, policies=POLICIES, progress: bool = False,
-             scenario: Scenario | None = None, workers: int = 1,
-             risk_level: float = RISK_LEVEL) -> RehearsalResult:
+             lookahead_days: int = 120, settings: PlanSettings = WEEKLY_PLAN,
+             disturbances: Disturbances = Disturbances(), policies=POLICIES, progress: bool = False,
+             scenario: Scenario | None = None, workers: int = 1) -> RehearsalResult:
     """Rehearse ``weeks`` weeks of the weekly loop on ``futures`` sampled futures
-    (seeded by ``seed``) for each policy.  Each weekly plan is guarded by
-    ``plan_futures`` futures sampled once from a seed of their own and cut to its days
-    (`GuardFutures`; 0: none) at ``risk_level``.  ``workers`` processes play the
+    (seeded by ``seed``) for each policy.  Each weekly plan is made with ``settings``
+    (`reagentplan.settings.WEEKLY_PLAN` by default) and guarded by ``settings.futures``
+    futures sampled once from a seed of their own and cut to its days (`GuardFutures`;
+    0: none) at ``settings.risk_level`` (``settings.seed`` is not used: the guard's seed
+    follows ``seed``).  ``workers`` processes play the
     futures at once (each future's two policies are independent of the others'); they
     are spawned, so a script calling this with ``workers`` > 1 needs the
     ``if __name__ == "__main__":`` guard.  Raises `ScenarioError` for bad settings."""
@@ -135,16 +132,15 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     from ..forecast import sample_futures
 
     scenario = at_setpoint(scenario or load_scenario(workbook))
-    _check(scenario, weeks, futures, lookahead_days, firm_days, disturbances, plan_futures, workers, risk_level)
+    _check(scenario, weeks, futures, lookahead_days, settings, disturbances, workers)
     t0 = time.perf_counter()
     fut = sample_futures(scenario, futures, seed=seed, keep=tuple(TRUE_FLOWS.values()))
     worlds = worlds_from_futures(fut, scenario.storage)
-    guard = GuardFutures.sample(scenario, plan_futures, seed)
+    guard = GuardFutures.sample(scenario, settings.futures, seed)
     t_sample = time.perf_counter() - t0
     jobs = [dict(workbook=workbook, scenario=scenario, world=w, policy=policy, weeks=weeks,
-                 disturbances=disturbances, seed=seed, lookahead_days=lookahead_days, firm_days=firm_days,
-                 time_limit=time_limit, solver=solver, guard=guard if policy == "plan" else None,
-                 risk_level=risk_level)
+                 disturbances=disturbances, seed=seed, lookahead_days=lookahead_days, settings=settings,
+                 guard=guard if policy == "plan" else None)
             for w in worlds for policy in policies]
     bar = None
     if progress:
@@ -168,8 +164,9 @@ def rehearse(workbook: str | Path, *, weeks: int = 16, futures: int = 20, seed: 
     total = time.perf_counter() - t0
     plan_s = sum(r.plan_seconds for r in runs)
     settings = {"workbook": Path(workbook).name, "weeks": weeks, "futures": futures, "seed": seed,
-                "lookahead_days": lookahead_days, "firm_days": firm_days, "time_limit": time_limit,
-                "solver": solver, "plan_futures": plan_futures, "risk_level": risk_level, "workers": workers,
+                "lookahead_days": lookahead_days, "firm_days": settings.firm_days,
+                "time_limit": settings.time_limit, "solver": settings.solver,
+                "plan_futures": settings.futures, "risk_level": settings.risk_level, "workers": workers,
                 "start_date": f"{scenario.plant.start_date:%Y-%m-%d}",
                 "removal": "fixed at the setpoint (the truth is sampled at it; a removal range and "
                            "allowances are left out)",

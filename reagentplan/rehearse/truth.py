@@ -13,9 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..schema import STORE_FLOW_COLUMN
+
 #: Which balance quantity a store's true daily flow is [t/d].
-TRUE_FLOWS = {"limestone": "limestone_t", "gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t",
-              "bottom_ash": "bottom_ash_t"}
+TRUE_FLOWS = STORE_FLOW_COLUMN
 
 
 @dataclass(frozen=True)

@@ -15,16 +15,14 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import Scenario
+from ..schema import BYPRODUCTS, STORE_FLOW_COLUMN
 from .lanes import SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
-from .rejects import RejectsHaul, haul_rejects, rejects_breaches
+from .penalties import (ALLOWANCE_SHORT_PENALTY_FACTOR, CONTRACT_PENALTY_PER_T, EMPTY_PENALTY_FACTOR,
+                        PERMIT_PENALTY_FACTOR)
+from .rejects import RejectsHaul, haul_rejects, rejects_breaches, waiting_end_cost
+from .terms import AllowanceTerms, allowance_costs, allowance_holding_t, end_caco3_value, permit_excess_t
 
-#: A tonne of limestone demand that cannot be met (the store is empty) costs this many
-#: times the shortage penalty: the scrubber cannot run.  Common practice, no source.
-EMPTY_PENALTY_FACTOR = 5.0
-#: Money per tonne short of a monthly contract minimum (take-or-pay style).
-CONTRACT_PENALTY_PER_T = 25.0
-
-PRODUCTION = {"gypsum": "gypsum_wet_t", "fly_ash": "fly_ash_t", "bottom_ash": "bottom_ash_t"}
+PRODUCTION = {s: STORE_FLOW_COLUMN[s] for s in BYPRODUCTS}
 
 
 def shortfall_rate(lane: Lane) -> float:
@@ -138,8 +136,10 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
     """Levels, costs (with the end-of-horizon stock value) and breaches of a daily plan.
 
     ``mill_rejects_disposal`` is the haul of the balance's ``mill_rejects_t`` [t/d] to the
-    mill-reject sites (`haul_rejects`); rejects no site takes are a breach and are charged
-    at the overflow penalty per tonne [money/t], as a tonne with nowhere to go.
+    mill-reject sites (`haul_rejects`); rejects no site takes wait in the reject bins
+    for the next open day, and what overflows the bins is a breach, charged at the
+    overflow penalty per tonne [money/t], as a tonne with nowhere to go; rejects still in
+    the bins at the end join the byproducts' end-stock charge (cheapest site's cost).
     """
     p = scenario.plant
     levels, unmet = store_levels(scenario, balance, lanes, plan)
@@ -211,8 +211,14 @@ def evaluate(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane], plan:
             charge = cheapest_disposal_cost(scenario, store) * max(levels[store][-1], 0.0)
             end_value += charge
             end_parts["byproducts"] += float(charge)
+    if haul.waiting_t is not None:
+        # mill rejects still in the bins, to be hauled at the cheapest site's cost
+        charge = waiting_end_cost(haul)
+        end_value += charge
+        end_parts["byproducts"] += charge
     if "allowances_end" in costs:
-        # allowances left at the end, at the last sell price (a credit, with the stock)
+        # allowances left at the end: held at the last sell price (a credit), a shortfall
+        # at the last buy price (`terms.allowance_end_value`), with the stock
         end_parts["allowances"] = costs.pop("allowances_end")
         end_value += end_parts["allowances"]
     costs["end_stock_value"] = float(end_value)
@@ -228,9 +234,6 @@ def _permit_and_allowances(scenario: Scenario, balance: pd.DataFrame, plan: Dail
     left at the end (``allowances_end``, moved to the end-stock value) and tonnes emitted
     without an allowance (``allowance_penalty``, and a breach).  Neither line exists in
     a scenario without a removal range or an allowance sheet (`lever.py`)."""
-    from .lever import (ALLOWANCE_SHORT_PENALTY_FACTOR, PERMIT_PENALTY_FACTOR, AllowanceTerms,
-                        allowance_costs, allowance_holding_t, permit_excess_t)
-
     p = scenario.plant
     emitted = balance["so2_emitted_t"].to_numpy(float)
     rng = scenario.scrubber.removal_range
@@ -259,10 +262,8 @@ def limestone_end_value(scenario: Scenario, level_t: float, caco3_pct: float) ->
     """The limestone left at the end as a cost line [money] (negative: a credit): at the
     cheapest delivered cost per tonne, or, when the suppliers' stone differs, per tonne
     of the CaCO3 in it (``caco3_pct`` [%], the silo's) at the cheapest delivered cost of
-    a tonne of CaCO3 (`model.end_caco3_value`)."""
+    a tonne of CaCO3 (`terms.end_caco3_value`)."""
     if scenario.quality_coupled:
-        from .model import end_caco3_value
-
         return -end_caco3_value(scenario, None) * level_t * caco3_pct / 100
     return -cheapest_delivered_cost(scenario) * level_t
 

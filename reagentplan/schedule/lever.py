@@ -22,7 +22,9 @@ Allowances (optional sheet ``allowances``): every tonne emitted uses one allowan
 holding (opening + allocations + bought − sold − emitted) may not go below zero (a tonne-day
 short is priced at `ALLOWANCE_SHORT_PENALTY_FACTOR` × the shortage penalty and reported);
 buying and selling are at the sheet's prices within its monthly limits; allowances left at
-the end are valued at the last sell price, so holding and selling compare fairly.
+the end are valued at the last sell price, so holding and selling compare fairly, and a
+shortfall left at the end is bought at the last buy price (`terms.allowance_end_value`,
+the model and the evaluation alike).
 
 References
 ----------
@@ -42,14 +44,10 @@ import numpy as np
 import pandas as pd
 
 from ..scenario import Scenario
+from .evaluate import store_levels
+from .penalties import ALLOWANCE_SHORT_PENALTY_FACTOR, PERMIT_PENALTY_FACTOR
+from .terms import AllowanceTerms, allowance_costs, allowance_holding_t, permit_excess_t
 
-#: A tonne-day of SO2 over the permit's rolling limit costs this many times the
-#: workbook's shortage penalty per tonne (common practice, no source: a permit breach is
-#: worse than a silo below safety, and as bad as an empty one).
-PERMIT_PENALTY_FACTOR = 5.0
-#: A tonne of SO2 emitted without an allowance costs this many times the shortage
-#: penalty (common practice, no source).
-ALLOWANCE_SHORT_PENALTY_FACTOR = 5.0
 #: Columns of the balance that the plan follows with the removal.
 AFFINE_COLUMNS = ("limestone_t", "caco3_need_t", "limestone_scrubber_t", "limestone_hcl_t",
                   "gypsum_wet_t", "gypsum_dry_t", "gypsum_inerts_t", "fly_ash_t", "bottom_ash_t",
@@ -134,80 +132,29 @@ class RemovalLever:
         return permit_excess_t(emitted_t, self.heat_gj, self.limit_kg_per_gj, self.avg_days)
 
 
-def permit_excess_t(emitted_t, heat_gj, limit_kg_per_gj, avg_days: int) -> np.ndarray:
-    """Per day, the SO2 [t] emitted over the ``avg_days`` days ending that day (fewer at the
-    start) above ``limit_kg_per_gj`` [kg/GJ] × their heat input [GJ] / 1000; zeros when
-    there is no limit."""
-    from ..balance import trailing_sum
-
-    e = np.asarray(emitted_t, dtype=float)
-    if limit_kg_per_gj is None:
-        return np.zeros_like(e)
-    allowed = limit_kg_per_gj * trailing_sum(np.asarray(heat_gj, dtype=float), avg_days) / 1000.0
-    return np.clip(trailing_sum(e, avg_days) - allowed, 0, None)
-
-
 # --------------------------------------------------------------------------- allowances
-
-
-@dataclass
-class AllowanceTerms:
-    """The allowance sheet per horizon day: opening holding [t SO2], allocations [t/d],
-    buy and sell prices [money/t], the most bought (and, apart, sold) per month [t]."""
-
-    opening_t: float
-    allocated_t: np.ndarray
-    buy_price: np.ndarray
-    sell_price: np.ndarray
-    max_trade_t_per_month: np.ndarray
-
-    @classmethod
-    def from_scenario(cls, scenario: Scenario) -> "AllowanceTerms | None":
-        days = scenario.allowance_days()
-        if days is None:
-            return None
-        return cls(float(scenario.allowance_opening_t or 0.0), days["allocated_t"].to_numpy(float),
-                   days["buy_price_per_t"].to_numpy(float), days["sell_price_per_t"].to_numpy(float),
-                   days["max_trade_t_per_month"].to_numpy(float))
-
-
-def allowance_holding_t(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> np.ndarray:
-    """End-of-day allowance holding [t SO2]: opening + allocations + bought − sold − emitted,
-    cumulated."""
-    flow = (terms.allocated_t + np.asarray(bought_t, float) - np.asarray(sold_t, float)
-            - np.asarray(emitted_t, float))
-    return terms.opening_t + np.cumsum(flow)
-
-
-def allowance_costs(terms: AllowanceTerms, emitted_t, bought_t, sold_t) -> dict[str, float]:
-    """Money of the allowance account: ``trade`` (bought × buy price − sold × sell price),
-    ``end_value`` (minus the holding left at the end × the last sell price) and ``short_t``
-    (the most the holding went below zero, tonnes of SO2 emitted without an allowance)."""
-    bought_t, sold_t = np.asarray(bought_t, float), np.asarray(sold_t, float)
-    holding = allowance_holding_t(terms, emitted_t, bought_t, sold_t)
-    trade = float((bought_t * terms.buy_price).sum() - (sold_t * terms.sell_price).sum())
-    end_value = -float(terms.sell_price[-1] * max(holding[-1], 0.0))
-    return {"trade": trade, "end_value": end_value, "short_t": float(max(-holding.min(initial=0.0), 0.0))}
 
 
 def baseline_trades(terms: AllowanceTerms, emitted_t, month_index: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The careful hand rule: never sell; buy, on the day the holding would go below zero,
-    just what keeps it at zero, within the month's purchase limit. Returns (bought, sold)
-    per day [t]."""
+    just what keeps it at zero, within the monthly purchase limit in force that day (the
+    month's purchases so far at most that day's limit, as the model holds them).
+    Returns (bought, sold) per day [t]."""
     e = np.asarray(emitted_t, float)
     n = len(e)
     bought = np.zeros(n)
-    left_in_month: dict[int, float] = {}
+    bought_in_month: dict[int, float] = {}
     holding = terms.opening_t
     for d in range(n):
         holding += terms.allocated_t[d] - e[d]
         if holding < 0:
             m = int(month_index[d])
             cap = terms.max_trade_t_per_month[d]
-            room = left_in_month.setdefault(m, np.inf if np.isnan(cap) else float(cap))
+            so_far = bought_in_month.get(m, 0.0)
+            room = np.inf if np.isnan(cap) else max(float(cap) - so_far, 0.0)
             buy = min(-holding, room)
             bought[d] = buy
-            left_in_month[m] = room - buy
+            bought_in_month[m] = so_far + buy
             holding += buy
     return bought, np.zeros(n)
 
@@ -240,7 +187,6 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
     ``balance_of`` gives the balance of a plan (its silo's stone and its removal)."""
     from dataclasses import replace as dc_replace
 
-    from .evaluate import store_levels
     from .permit import runs
 
     if plan.removal is None or lever is None:

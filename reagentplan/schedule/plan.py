@@ -10,11 +10,13 @@ import numpy as np
 import pandas as pd
 
 from .. import CAUTION
+from ..settings import PLAN
 from ..balance import balance_frame
 from ..scenario import Scenario
+from ..schema import STORE_FLOW_COLUMN
 from .baseline import baseline_plan
 from .causes import explain
-from .evaluate import PRODUCTION, DailyPlan, Evaluation, evaluate, freight_by_day
+from .evaluate import DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLimits, end_caco3_value,
                     solve_plan)
@@ -31,7 +33,7 @@ MAX_SILO_STEPS = 5
 SILO_TOLERANCE_PCT = 0.05
 
 
-DEMAND_COLUMN = {"limestone": "limestone_t", **PRODUCTION}
+DEMAND_COLUMN = STORE_FLOW_COLUMN
 
 
 def guard_margins(balance: pd.DataFrame, flows: dict[str, np.ndarray] | None,
@@ -287,9 +289,9 @@ def gap_scope(scenario: Scenario, iterations: list[dict] | None = None) -> str:
 
 
 def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
-              flows: dict[str, np.ndarray] | None = None, risk_level: float = 0.05,
-              firm_days: int = 56, solver: str = "highs", time_limit: float = 60.0,
-              gap: float = 5e-4, progress: bool = False, previous: pd.DataFrame | None = None,
+              flows: dict[str, np.ndarray] | None = None, risk_level: float = PLAN.risk_level,
+              firm_days: int = PLAN.firm_days, solver: str = PLAN.solver, time_limit: float = PLAN.time_limit,
+              gap: float = PLAN.gap, progress: bool = False, previous: pd.DataFrame | None = None,
               change_cost_per_load: float = CHANGE_COST_PER_LOAD,
               late_days: int = LATE_TRAIN_DAYS, work: WorkLimits | None = None) -> PlanResult:
     """Plan a scenario.

@@ -1,9 +1,14 @@
 """Mill rejects: hauled each day straight from the pulverisers to the sites that take them.
 
-The rejects have no store: what the mills reject on a day leaves that day, to the
-``disposal`` rows of material ``mill_rejects``, cheapest first, each within its
-``max_t_per_day``, its remaining ``airspace_t`` and its open days (`lane_closures`).
-What no site can take is reported as a breach, the way a store's breaches are.
+The rejects fall into the mills' reject bins and are hauled from there, each day as
+much as the ``disposal`` rows of material ``mill_rejects`` take, cheapest first, each
+within its ``max_t_per_day``, its remaining ``airspace_t`` and its open days
+(`lane_closures`).  What the sites cannot take on a day waits in the bins for the next
+open day, up to `REJECTS_BIN_DAYS` days of the horizon's mean rejects; only what
+overflows the bins is reported as a breach, the way a store's breaches are.  So a site
+closed on Sundays takes Sunday's rejects on Monday, and no breach is made of it.  The
+rejects still in the bins at the end are charged at the cheapest site's cost, as a
+store's byproducts are.
 
 The haul is not a decision of the optimiser: the plan and the reorder-point baseline
 burn the same coal, so they make and haul the same rejects and pay the same for them.
@@ -23,6 +28,12 @@ from ..schema import MILL_REJECTS
 #: What a rejects breach says it is, beside the store breaches' kinds.
 NOT_HAULED = "not hauled away"
 
+#: The mills' reject bins hold this many days of the horizon's mean rejects [d]: what the
+#: sites cannot take on a day (a Sunday, a closure, a full site) waits there for the next
+#: open day.  Common practice, no source (reject hoppers and skips at the pulverisers are
+#: sized for a weekend or a day or two of a haul that does not come).
+REJECTS_BIN_DAYS = 2.0
+
 
 @dataclass(frozen=True)
 class RejectsHaul:
@@ -32,9 +43,11 @@ class RejectsHaul:
     ----------
     sites : the ``mill_rejects`` disposal rows, cheapest first
     hauled_t : per site name, tonnes hauled per day [t/d]
-    unhauled_t : rejects no site could take, per day [t/d]
+    unhauled_t : rejects no site could take and the bins could not hold, per day [t/d]
     cost : per day, the money paid for the haul [money/d]
     why : per day with rejects left over, what stopped each site ('' otherwise)
+    waiting_t : rejects in the bins at each day's end, to be hauled later [t]
+    bin_t : what the bins hold [t]
     """
 
     sites: tuple[DisposalSite, ...]
@@ -42,6 +55,8 @@ class RejectsHaul:
     unhauled_t: np.ndarray
     cost: np.ndarray
     why: tuple[str, ...]
+    waiting_t: np.ndarray | None = None
+    bin_t: float = 0.0
 
     @property
     def total_hauled_t(self) -> np.ndarray:
@@ -56,11 +71,14 @@ def rejects_sites(scenario: Scenario) -> tuple[DisposalSite, ...]:
 
 
 def haul_rejects(scenario: Scenario, rejects_t) -> RejectsHaul:
-    """Haul each day's mill rejects [t/d] to the cheapest open sites with room.
+    """Haul each day's mill rejects [t/d], with those waiting in the bins, to the cheapest
+    open sites with room.
 
     Each site takes at most its ``max_t_per_day`` [t/d] on a day it is open and, over the
     horizon, at most its remaining ``airspace_t`` [t]; the cost is ``cost_per_t``
-    [money/t] of each tonne hauled.
+    [money/t] of each tonne hauled.  What is left waits in the bins, which hold
+    B = `REJECTS_BIN_DAYS` × the mean rejects per day [t]; what is beyond B is not hauled
+    (a breach): w_d = min(w_{d−1} + made_d − hauled_d, B).
     """
     rejects_t = np.asarray(rejects_t, dtype=float)
     n = len(rejects_t)
@@ -68,24 +86,38 @@ def haul_rejects(scenario: Scenario, rejects_t) -> RejectsHaul:
     hauled = {d.site: np.zeros(n) for d in sites}
     open_ = {d.site: scenario.lane_open(d) for d in sites}
     room = {d.site: np.inf if d.airspace_t is None else float(d.airspace_t) for d in sites}
-    left = rejects_t.copy()
+    bin_t = REJECTS_BIN_DAYS * float(rejects_t.mean()) if n else 0.0
+    unhauled, waiting = np.zeros(n), np.zeros(n)
     cost = np.zeros(n)
     why: list[str] = [""] * n
+    left = 0.0
     for day in range(n):
+        left += rejects_t[day]
         for d in sites:
-            if left[day] <= 0 or not open_[d.site][day]:
+            if left <= 0 or not open_[d.site][day]:
                 continue
             cap = np.inf if d.max_t_per_day is None else float(d.max_t_per_day)
-            take = min(left[day], cap, room[d.site])
+            take = min(left, cap, room[d.site])
             hauled[d.site][day] = take
             room[d.site] -= take
-            left[day] -= take
+            left -= take
             cost[day] += take * d.cost_per_t
-        if left[day] > 1e-9:
-            why[day] = _why_full(sites, open_, hauled, room, day)
-        else:
-            left[day] = 0.0
-    return RejectsHaul(sites, hauled, left, cost, tuple(why))
+        if left > bin_t + 1e-9:
+            unhauled[day] = left - bin_t
+            left = bin_t
+            why[day] = _why_full(sites, open_, hauled, room, day) + f"; the reject bins full ({bin_t:,.0f} t)"
+        if left <= 1e-9:
+            left = 0.0
+        waiting[day] = left
+    return RejectsHaul(sites, hauled, unhauled, cost, tuple(why), waiting, bin_t)
+
+
+def waiting_end_cost(haul: RejectsHaul) -> float:
+    """The rejects still in the bins at the end, at the cheapest site's cost [money]
+    (0 without sites or rejects waiting)."""
+    if haul.waiting_t is None or not len(haul.waiting_t) or not haul.sites:
+        return 0.0
+    return float(haul.waiting_t[-1] * min(d.cost_per_t for d in haul.sites))
 
 
 def _why_full(sites, open_, hauled, room, day) -> str:
@@ -133,6 +165,8 @@ def haul_frame(haul: RejectsHaul, rejects_t, dates: pd.DatetimeIndex) -> pd.Data
     for d in haul.sites:
         out[f"to {d.site}_t"] = haul.hauled_t[d.site]
     out["not_hauled_t"] = haul.unhauled_t
+    if haul.waiting_t is not None:
+        out["waiting_t"] = haul.waiting_t
     out["cost"] = haul.cost
     return out
 
@@ -142,5 +176,5 @@ def has_rejects(scenario: Scenario) -> bool:
     return bool(rejects_sites(scenario)) or any(s.mill_rejects_pct > 0 for s in scenario.coal_sources)
 
 
-__all__ = ["NOT_HAULED", "RejectsHaul", "haul_frame", "haul_rejects", "has_rejects",
-           "rejects_breaches", "rejects_sites"]
+__all__ = ["NOT_HAULED", "REJECTS_BIN_DAYS", "RejectsHaul", "haul_frame", "haul_rejects", "has_rejects",
+           "rejects_breaches", "rejects_sites", "waiting_end_cost"]

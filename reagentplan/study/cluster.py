@@ -18,6 +18,7 @@ returns those that are, marked ``interrupted``.
 from __future__ import annotations
 
 import contextlib
+import functools
 import logging
 import os
 import signal
@@ -30,7 +31,8 @@ from dataclasses import dataclass
 
 from ..forecast.futures import DriverSamples
 from .grid import Case
-from .run import CaseSettings, failed_row, run_case
+from ..settings import PlanSettings
+from .run import failed_row, run_case
 
 #: Status of a case that Ctrl-C stopped before it finished.
 NOT_RUN = "not run"
@@ -132,11 +134,12 @@ def _probe(shared) -> int:
     return int(shared.n_futures)
 
 
-def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, settings: CaseSettings,
-              client=None, *, progress: bool = True, case_fn: Callable = run_case,
+def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, settings: PlanSettings,
+              client=None, *, case_timeout: float | None = None, progress: bool = True,
+              case_fn: Callable = run_case,
               on_start: Callable[[StudyRun], None] | None = None) -> StudyRun:
-    """Run every case (`run_case`) against the shared futures; serially when ``client``
-    is ``None``.
+    """Run every case (`run_case`, planned with ``settings``) against the shared
+    futures; serially when ``client`` is ``None``.  ``case_timeout``: see `run_case`.
 
     ``on_start`` is called once the futures are on the workers (with the workers and
     the dashboard filled in), before the first case runs.  Rows come back in case order
@@ -144,6 +147,8 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
     """
     from tqdm import tqdm
 
+    if case_timeout is not None:
+        case_fn = functools.partial(case_fn, case_timeout=case_timeout)
     by_case: dict[int, dict] = {}
     interrupted = False
     if client is None:

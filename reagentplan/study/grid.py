@@ -41,12 +41,10 @@ from typing import Any
 from .. import schema
 from ..errors import Problem, ScenarioError
 from ..scenario import Scenario, scenario_from_raw
+from ..settings import MAX_CASES  # most cases a study accepts unless told otherwise
 from ..units import BY_US_NAME, VARIANTS
 from ..workbook import RawSheet
 
-#: Most cases a study accepts unless told otherwise (``--max-cases``).  At seconds to a
-#: minute per solve this is hours to days of work; more is rarely meant.
-MAX_CASES = 500
 #: The option name used in messages.
 OPTION = "--vary"
 #: A key column that distinguishes seasonal terms of one lane, not different lanes.

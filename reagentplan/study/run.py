@@ -1,7 +1,7 @@
 """One case of a study: plan the variant and replay it against the shared futures.
 
 `run_case` is a pure function of picklable inputs (a `Case`, the shared
-`DriverSamples`, the `CaseSettings`) and returns a plain dict, so it runs the same in
+`DriverSamples`, the `reagentplan.settings.PlanSettings`) and returns a plain dict, so it runs the same in
 this process, in a `LocalCluster` worker or on a remote cluster; a case's row depends
 on nothing but its inputs (not on the worker, nor on the order the cases ran in).
 
@@ -64,6 +64,7 @@ from ..risk import store_flows
 from ..schedule.evaluate import EMPTY_PENALTY_FACTOR
 from ..schedule.lanes import LANDFILL, SALE, SUPPLY, cheapest_delivered_cost, cheapest_disposal_cost
 from ..schedule.plan import flows_at_plan_stone
+from ..settings import PlanSettings
 from .grid import Case
 
 #: Result fields of a case, after ``case`` and the varied values (DESIGN §7), then the
@@ -80,17 +81,6 @@ PLANNED = ("optimal", "feasible")
 #: the holding left at the end valued at the deterministic balance's emissions).
 FIXED_COSTS = ("limestone_purchase", "freight", "byproduct_sales", "landfill", "contract_penalty",
                "mill_rejects_disposal", "allowances")
-
-
-@dataclass(frozen=True)
-class CaseSettings:
-    """How every case of a study is planned (the `reagentplan plan` options)."""
-
-    solver: str = "highs"
-    time_limit: float = 60.0          # solver seconds per solve [s]
-    firm_days: int = 56
-    risk_level: float = 0.05          # [-]
-    case_timeout: float | None = None  # wall-clock limit of a whole case [s]; None = none
 
 
 @dataclass(frozen=True)
@@ -221,13 +211,12 @@ def case_futures(case: Case, shared: DriverSamples):
     return futures_from_drivers(shared, case.scenario, keep=FUTURE_FLOWS)
 
 
-def plan_case(case: Case, shared: DriverSamples, settings: CaseSettings) -> PlanRun:
+def plan_case(case: Case, shared: DriverSamples, settings: PlanSettings) -> PlanRun:
     """The case planned and replayed as `reagentplan plan` would (`plan_with_futures`),
-    against its futures (`case_futures`)."""
+    against its futures (`case_futures`; ``settings.futures`` and ``seed`` are the
+    shared futures', not used here)."""
     fut = case_futures(case, shared)
-    return plan_with_futures(case.scenario, fut, solver=settings.solver,
-                             time_limit=settings.time_limit, firm_days=settings.firm_days,
-                             risk_level=settings.risk_level)
+    return plan_with_futures(case.scenario, fut, settings)
 
 
 def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
@@ -282,7 +271,7 @@ def failed_row(case: Case, status: str, message: str, seconds: float | None = No
     return row
 
 
-def _run(case: Case, shared: DriverSamples, settings: CaseSettings) -> dict:
+def _run(case: Case, shared: DriverSamples, settings: PlanSettings) -> dict:
     t0 = time.perf_counter()
     try:
         run = plan_case(case, shared, settings)
@@ -294,30 +283,31 @@ def _run(case: Case, shared: DriverSamples, settings: CaseSettings) -> dict:
                           time.perf_counter() - t0)
 
 
-def run_case(case: Case, shared: DriverSamples, settings: CaseSettings) -> dict:
+def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
+             case_timeout: float | None = None) -> dict:
     """Plan one case and replay it against its futures: its result row.
 
-    A case that raises gives a ``failed`` row with the error; with
-    ``settings.case_timeout``, a case that has not finished by then gives a ``timeout``
+    A case that raises gives a ``failed`` row with the error; with ``case_timeout``
+    (wall-clock seconds of the whole case [s]; None: none), a case that has not finished by then gives a ``timeout``
     row (its thread cannot be stopped from outside: it runs on to its solver time limit
     in the background and its result is dropped).
     """
-    if not settings.case_timeout:
+    if not case_timeout:
         return _run(case, shared, settings)
     box: list[dict] = []
     t0 = time.perf_counter()
     worker = threading.Thread(target=lambda: box.append(_run(case, shared, settings)),
                               name=f"study-case-{case.case}", daemon=True)
     worker.start()
-    worker.join(settings.case_timeout)
+    worker.join(case_timeout)
     if box:
         return box[0]
     return failed_row(case, "timeout",
-                      f"no result after {settings.case_timeout:g} s (solver limit "
+                      f"no result after {case_timeout:g} s (solver limit "
                       f"{settings.time_limit:g} s per solve); the result is dropped",
                       time.perf_counter() - t0)
 
 
-__all__ = ["CaseSettings", "ReplayFigures", "replay_costs", "replay_byproduct_heel",
+__all__ = ["ReplayFigures", "replay_costs", "replay_byproduct_heel",
            "outbound_cost_per_t", "replay_limestone_capped", "inbound_cost_per_t", "case_futures", "plan_case",
            "result_row", "failed_row", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]

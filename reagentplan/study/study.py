@@ -23,7 +23,8 @@ from ..workbook import read_raw
 from .cluster import StudyRun, run_cases, study_client
 from .grid import MAX_CASES, Grid, build_grid
 from .results import Winner, pick_winner, study_frame
-from .run import CaseSettings, plan_case
+from ..settings import STUDY, PlanSettings
+from .run import plan_case
 
 #: Most futures a study shares (they are held by every worker) [-].
 MAX_STUDY_FUTURES = 100_000
@@ -35,12 +36,13 @@ class StudyResult:
 
     grid: Grid
     shared: DriverSamples
-    settings: CaseSettings
+    settings: PlanSettings
     run: StudyRun
     frame: pd.DataFrame
     winner: Winner
     winner_run: PlanRun | None
     winner_note: str = ""
+    case_timeout: float | None = None  # wall-clock limit of a whole case [s]; None = none
 
     @property
     def labels(self) -> dict[int, str]:
@@ -48,7 +50,7 @@ class StudyResult:
 
 
 def prepare_study(workbook: str | os.PathLike | BinaryIO | bytes, specs: list[str], *,
-                  futures: int = 200, seed: int = 0, max_cases: int = MAX_CASES
+                  futures: int = STUDY.futures, seed: int = STUDY.seed, max_cases: int = MAX_CASES
                   ) -> tuple[Grid, DriverSamples]:
     """Read the workbook, build and validate the grid, and sample the shared futures
     (of the drivers, from the workbook as it is).
@@ -69,20 +71,22 @@ def prepare_study(workbook: str | os.PathLike | BinaryIO | bytes, specs: list[st
     return grid, shared
 
 
-def run_study(grid: Grid, shared: DriverSamples, settings: CaseSettings, *,
-              cluster: str = "local", workers: int | None = None, progress: bool = True,
+def run_study(grid: Grid, shared: DriverSamples, settings: PlanSettings = STUDY, *,
+              case_timeout: float | None = None, cluster: str = "local", workers: int | None = None, progress: bool = True,
               on_start=None, winner_plan: bool = True, dashboard: bool = True) -> StudyResult:
     """Run every case (on ``cluster``: ``local``, a scheduler address or ``serial``),
     tabulate them and pick the winner within ``settings.risk_level``; the winner is
-    planned once more here (the same inputs give the same plan) for its plan folder."""
+    planned once more here (the same inputs give the same plan) for its plan folder.
+    ``case_timeout``: see `reagentplan.study.run.run_case`."""
     if cluster == "serial":
-        run = run_cases(grid.cases, shared, settings, None, progress=progress, on_start=on_start)
+        run = run_cases(grid.cases, shared, settings, None, case_timeout=case_timeout,
+                        progress=progress, on_start=on_start)
     else:
         run = None
         try:
             with study_client(cluster, workers, dashboard=dashboard) as client:
-                run = run_cases(grid.cases, shared, settings, client, progress=progress,
-                                on_start=on_start)
+                run = run_cases(grid.cases, shared, settings, client, case_timeout=case_timeout,
+                                progress=progress, on_start=on_start)
         except KeyboardInterrupt:  # a second Ctrl-C while the cluster closes
             if run is None:
                 raise
@@ -109,7 +113,7 @@ def run_study(grid: Grid, shared: DriverSamples, settings: CaseSettings, *,
                     note = (f"the winner re-planned here cost {again:,.2f}, not "
                             f"{row['total_cost']:,.2f} as in the study (the solver stopped at "
                             "its time limit in one of the two)")
-    return StudyResult(grid, shared, settings, run, frame, winner, winner_run, note)
+    return StudyResult(grid, shared, settings, run, frame, winner, winner_run, note, case_timeout)
 
 
 def describe_study(result: StudyResult) -> str:

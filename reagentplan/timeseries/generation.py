@@ -3,7 +3,7 @@
 Daily energy is modelled as a load factor (MWh / (capacity × 24 h)) [-]:
 
     on line:  lf[t] = weekday[t] + season[t] + e[t],    e = AR(p) noise
-    off line: 0, in forced outages sampled as in `reagentplan.forecast.outages`
+    off line: 0, in forced outages sampled as in `reagentplan.timeseries.outages`
 
 - **season**: Fourier terms of the calendar year (order 1-4, chosen by BIC), and
   **weekday**: one level per day of the week; together a linear regression (OLS) on the
