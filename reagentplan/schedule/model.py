@@ -212,8 +212,11 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     periods = build_periods(scenario.dates, firm_days)
     lin = None
     if chem is not None and not silo_lots:
-        lin = chem.linearisation(lanes, around if around is not None else hint, periods,
-                                 _silo_floor(scenario))
+        if isinstance(around, tuple):
+            lin = around  # the point itself: (u, j) per period, `quality.SiloChemistry.linearisation`
+        else:
+            lin = chem.linearisation(lanes, around if around is not None else hint, periods,
+                                     _silo_floor(scenario))
     problem = Problem(scenario, balance, lanes, firm, guard, periods, solver, chem=chem, lin=lin,
                       lever=lever, allow=allow, fixed=fixed, keep=keep, change_cost=change_cost,
                       late_days=late_days, margin_days=firm_days, silo_lots=silo_lots,
