@@ -106,6 +106,10 @@ def describe_plan(result) -> str:
     lines = [f"Plan for {result.scenario.plant.name}: solver {s['solver']} ({s['status']}, gap "
              f"{(s['gap'] or 0) * 100:.2f} %, {s['solve_seconds']:.1f} s)",
              f"  the gap covers {s['gap_scope']}",
+             *([f"  the silo's successive solves {'settled' if s['silo']['settled'] else 'did not settle'}: "
+                f"{s['silo']['why']}"] if s.get("silo") else []),
+             *(["  the wall-clock safety net cut a solve short: a re-run may give another plan "
+                "(allow more with --time-limit)"] if s.get("clock_cut") else []),
              f"  total cost {s['total_cost']:>14,.0f} {cur}   (reorder-point baseline "
              f"{s['baseline_total_cost']:,.0f} {cur}; both include the end-stock value)"]
     cash, pen = cost_split(s["costs"])
@@ -204,6 +208,11 @@ def describe_demo(run, out, files: list[str]) -> str:
              f"  {'  of which penalty weights':34} {bpen - pen:>14,.0f} {cur}"
              "   (the workbook's price on a tonne below safety or over capacity)",
              f"  {'limestone trains / trucks booked':34} {trains:>8} / {trucks}",
+             f"  {'gap to the best plan at most':34} {100 * (s['gap'] or 0):>13.2f} %"
+             + ("   (the silo's solves settled)" if s.get("silo", {}).get("settled")
+                else "   (the silo's solves had not settled)" if s.get("silo") else ""),
+             *(["  the wall-clock safety net cut a solve short: a re-run may give another plan"]
+               if s.get("clock_cut") else []),
              *describe_lever(s),
              ""]
     out_rows = mv[mv["direction"] == "out"]
