@@ -214,3 +214,21 @@ def test_apply_calibration_is_pure(scenario):
     assert applied.scrubber.ca_s_ratio == pytest.approx(cal.applied["ca_s_ratio"])
     assert applied.plant.fly_ash_share_pct == pytest.approx(cal.applied["fly_ash_share_pct"])
     assert scenario.scrubber.ca_s_ratio == 1.03
+
+
+def test_record_tab_shows_the_fitted_factors(tmp_path, scenario_file, scenario):
+    from reagentplan.dashboard.views import record as R
+    from reagentplan.record.db import connect
+    from reagentplan.record.overview import overview
+
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    assert main(["db", "upgrade", "--db", url]) == 0
+    path = write_record_workbook(record_sheets_of(synthetic_record(scenario, seed=2)), tmp_path / "r.xlsx")
+    assert main(["record", str(path), "--db", url, "--scenario", str(scenario_file), "--as-of", f"{AS_OF}"]) == 0
+    engine = connect(url)
+    ov = overview(engine, scenario)
+    engine.dispose()
+    view = ov.calibration.view()
+    assert list(view["status"]) == ["contradicts the workbook"] * 3
+    text = str(R.calibration(ov))
+    assert "1.030" in text and "contradicts the workbook" in text and "record-calibration-drift" in text

@@ -388,6 +388,17 @@ class Calibration:
         ok = t["low"].notna() & t["high"].notna()
         return t[ok & ((t["workbook_value"] < t["low"]) | (t["workbook_value"] > t["high"]))]
 
+    def view(self) -> pd.DataFrame:
+        """The factors as the dashboard shows them: key, sheet, workbook_value,
+        fitted_value, low, high and ``status`` (``contradicts the workbook``, ``agrees
+        with the workbook``, ``not estimable``)."""
+        t = self.table[["key", "sheet", "workbook_value", "fitted_value", "low", "high"]].copy()
+        missed = set(self.misses()["key"])
+        t["status"] = ["not estimable" if k not in self.applied else
+                       "contradicts the workbook" if k in missed else "agrees with the workbook"
+                       for k in t["key"]]
+        return t
+
     def summary(self) -> dict:
         """What a plan version records of the calibration it was planned with."""
         rows = {}
