@@ -67,7 +67,7 @@ def movements(first: dt.date, days: int, caco3: bool = False, rng=None):
             shp.append({"date": d, "party": "Cell 1", "material": "fly_ash", "mode": None, "loads": None,
                         "tonnes": 560.0, "ticket": f"LF-{i}"})
             shp.append({"date": d, "party": "Cell 1", "material": "bottom_ash", "mode": None, "loads": None,
-                        "tonnes": 120.0, "ticket": f"LB-{i}"})
+                        "tonnes": 110.0, "ticket": f"LB-{i}"})
     a = pd.DataFrame(arr, columns=empty_frames()["arrivals"].columns)
     s = pd.DataFrame(shp, columns=empty_frames()["shipments"].columns)
     return a, s

@@ -256,7 +256,7 @@ def survey_intervals(scenario: Scenario, record: RecordFrames, first_day: pd.Tim
         def upto(t):  # tonnes moved on or before day t [t]
             return float(cum[np.searchsorted(when, np.datetime64(t), side="right")])
 
-        floor = SURVEY_FLOOR_SHARE * scenario.storage[store].capacity_t
+        floor = max(SURVEY_FLOOR_SHARE * scenario.storage[store].capacity_t, 1.0)
         for j in range(1, len(g)):
             t0, t1 = pd.Timestamp(dates[j - 1]), pd.Timestamp(dates[j])
             moved_t = upto(t1) - upto(t0)
