@@ -232,3 +232,14 @@ def test_record_tab_shows_the_fitted_factors(tmp_path, scenario_file, scenario):
     assert list(view["status"]) == ["contradicts the workbook"] * 3
     text = str(R.calibration(ov))
     assert "1.030" in text and "contradicts the workbook" in text and "record-calibration-drift" in text
+
+
+def test_only_the_gypsum_surveyed_holds_ca_s(scenario):
+    """Gypsum responds weakly to the Ca/S too, but without limestone surveys the Ca/S is
+    not estimated from it: it is held, and the moisture's row says it was fitted so."""
+    cal = calibrate(scenario, synthetic_record(scenario, seed=1, stores=("gypsum",)))
+    t = cal.table.set_index("key")
+    assert pd.isna(t.at["ca_s_ratio", "fitted_value"])
+    assert "no store it mainly moves (limestone)" in t.at["ca_s_ratio", "note"]
+    assert "taken with ca_s_ratio at the workbook's value" in t.at["gypsum_moisture_pct", "note"]
+    assert set(cal.applied) == {"gypsum_moisture_pct"}

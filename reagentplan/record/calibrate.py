@@ -91,8 +91,10 @@ class Factor:
 
     ``key``/``sheet`` name it in the workbook; ``param`` is its `BalanceParams` field,
     ``scale`` converts the workbook's unit to the param's (% -> fraction: 0.01); ``step``
-    is the finite-difference step [workbook unit]; ``confounded`` says what the record
-    cannot tell it from."""
+    is the finite-difference step [workbook unit]; ``stores`` are the stores it mainly
+    moves (without two surveys of one of them the factor is not estimated, even where
+    another store responds to it weakly); ``confounded`` says what the record cannot tell
+    it from."""
 
     key: str
     sheet: str
@@ -100,15 +102,16 @@ class Factor:
     scale: float
     step: float
     unit: str
+    stores: tuple[str, ...]
     confounded: str
 
 
 FACTORS: tuple[Factor, ...] = (
-    Factor("ca_s_ratio", "scrubber", "ca_s_ratio", 1.0, 0.01, "mol/mol",
+    Factor("ca_s_ratio", "scrubber", "ca_s_ratio", 1.0, 0.01, "mol/mol", ("limestone",),
            "only the stone used per SO2 removed is seen, i.e. Ca/S over the stone's CaCO3"),
-    Factor("gypsum_moisture_pct", "scrubber", "gypsum_moisture", 0.01, 1.0, "%",
+    Factor("gypsum_moisture_pct", "scrubber", "gypsum_moisture", 0.01, 1.0, "%", ("gypsum",),
            "the wet cake's tonnes are seen; other dry solids (oxidation, inerts, fly ash slip) would look alike"),
-    Factor("fly_ash_share_pct", "plant", "fly_ash_share", 0.01, 1.0, "%",
+    Factor("fly_ash_share_pct", "plant", "fly_ash_share", 0.01, 1.0, "%", ("fly_ash", "bottom_ash"),
            "the collected fly ash is seen; its LOI and the precipitator's capture would look alike"),
 )
 
@@ -307,10 +310,12 @@ def _sensitivity(model: BalanceModel, iv: Intervals, shift: np.ndarray):
     return tot[0], ((tot[1:] - tot[0]) / steps[:, None]).T if k else np.zeros((len(iv), 0))
 
 
-def fit_factors(model: BalanceModel, iv: Intervals, level: float = LEVEL) -> Fit:
+def fit_factors(model: BalanceModel, iv: Intervals, level: float = LEVEL,
+                hold: dict[int, str] | None = None) -> Fit:
     """Fit the factors' shifts to the survey intervals (generalised least squares,
-    Gauss-Newton; the module's docstring gives the model).  Raises `RecordError` when
-    the intervals are too few for the factors the record can see."""
+    Gauss-Newton; the module's docstring gives the model).  Factors in ``hold`` (index
+    -> reason) stay at the workbook's value.  Raises `RecordError` when the intervals
+    are too few for the factors the record can see."""
     import statsmodels.api as sm
 
     k = len(model.factors)
@@ -321,9 +326,11 @@ def fit_factors(model: BalanceModel, iv: Intervals, level: float = LEVEL) -> Fit
     jw = white @ jac
     norms = np.linalg.norm(jw, axis=0)
     total = np.linalg.norm(white @ pred) if len(pred) else 0.0
-    reasons: dict[int, str] = {}
+    reasons: dict[int, str] = dict(hold or {})
     used = np.zeros(k, dtype=bool)
     for j in range(k):
+        if j in reasons:
+            continue
         if norms[j] <= 1e-9 * max(total, 1e-300):
             reasons[j] = "no surveyed store responds to it"
             continue
@@ -485,7 +492,10 @@ def calibrate(scenario: Scenario, record: RecordFrames, first: dt.date | None = 
     if labs:
         model = dataclasses.replace(model, params=dataclasses.replace(model.params, caco3=caco3[None, :] / 100))
     iv = survey_intervals(scenario, record, d0, usable)
-    fit = fit_factors(model, iv)
+    have = set(iv.store)
+    hold = {j: "no store it mainly moves (" + ", ".join(f.stores) + ") has two surveys in the window"
+            for j, f in enumerate(model.factors) if not have.intersection(f.stores)}
+    fit = fit_factors(model, iv, hold=hold)
 
     # which stores respond to each factor (over the whole window)
     steps = np.array([f.step for f in model.factors])
@@ -505,6 +515,8 @@ def calibrate(scenario: Scenario, record: RecordFrames, first: dt.date | None = 
         if not fit.used[j]:
             if not stores:
                 why = "the balance does not use it for this station"
+            elif j in hold:
+                why = hold[j] + " (" + ", ".join(f"{s}: {int(counts.get(s, 0))}" for s in f.stores) + ")"
             elif not surveyed:
                 why = "no store it moves (" + ", ".join(stores) + ") has two surveys in the window " + \
                       "(" + ", ".join(f"{s}: {int(counts.get(s, 0))}" for s in stores) + ")"
@@ -525,6 +537,10 @@ def calibrate(scenario: Scenario, record: RecordFrames, first: dt.date | None = 
                 else:
                     notes.append("the workbook's value lies within the interval")
             notes.append("from " + ", ".join(f"{s} ({int((iv.store == s).sum())} intervals)" for s in surveyed))
+            held = [g.key for i, g in enumerate(model.factors)
+                    if not fit.used[i] and set(responds[i]).intersection(surveyed)]
+            if held:
+                notes.append("taken with " + ", ".join(held) + " at the workbook's value")
         if f.key == "ca_s_ratio":
             if labs:
                 notes.append("at the deliveries' lab results (caco3_pct, well-mixed store)")
