@@ -7,7 +7,9 @@ planned, generation near the dispatch plan, new lab results every weekday); then
 piles are surveyed (the book level less a slow drift, plus measurement noise), the week
 is recorded, and the station re-plans as of the week's last day and sees what changed.
 Scripted events: a late train (week 3), a higher-sulfur seam in the lab results from
-week 4, a wallboard buyer who takes half the planned trucks (week 5).
+week 4, a wallboard buyer who takes half the planned trucks (week 5).  Throughout, the
+plant really runs at a Ca/S 0.05 above the workbook's and makes a cake 2 points wetter
+(`true_plant`): the drift `reagentplan calibrate` finds.
 
 Invented data for the demo only.
 """
@@ -35,9 +37,20 @@ WEEKLY_HORIZON_DAYS, WEEKLY_FIRM_DAYS = 60, 28
 LATE_TRAIN_WEEK, LATE_DAYS = 3, 3
 HIGH_SULFUR_WEEK, SULFUR_STEP_PCT = 4, 0.35
 SHORT_BUYER_WEEK, SHORT_BUYER, SHORT_SHARE = 5, "Larkspan Wallboard", 0.5
-#: The plant's real use runs this much above the balance (limestone) [-], so the book
-#: drifts from the surveys as it would at a plant; and the survey's noise [-].
-LIMESTONE_DRIFT, SURVEY_SD = 0.03, 0.01
+#: The plant really runs at a Ca/S this much above the workbook's [mol/mol] and makes a
+#: cake this many points wetter [%], so the book drifts from the surveys as it would at a
+#: plant and `reagentplan calibrate` has something to find; the survey's noise [-].
+TRUE_CA_S_STEP, TRUE_MOISTURE_STEP, SURVEY_SD = 0.05, 2.0, 0.007
+
+
+def true_plant(scenario):
+    """The demo station as it really runs: the workbook with `TRUE_CA_S_STEP` and
+    `TRUE_MOISTURE_STEP` added (invented)."""
+    import dataclasses
+
+    s = scenario.scrubber
+    return dataclasses.replace(scenario, scrubber=dataclasses.replace(
+        s, ca_s_ratio=s.ca_s_ratio + TRUE_CA_S_STEP, gypsum_moisture_pct=s.gypsum_moisture_pct + TRUE_MOISTURE_STEP))
 
 
 @dataclass
@@ -163,12 +176,17 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
             # the piles are surveyed at the week's end: the book less the plant's drift, with noise
             record = load_record(engine)
             state = asof_state(scenario, record, week_end)
-            use = float(past_balance(scenario, record, days[0].date(), week_end)["limestone_t"].sum())
+            booked = past_balance(scenario, record, days[0].date(), week_end)
+            real = past_balance(true_plant(scenario), record, days[0].date(), week_end)
+            # the truth: the book (rolled with the workbook's factors) corrected by what
+            # the real plant used and made more than the workbook says
+            extra = {"limestone": -float(real["limestone_t"].sum() - booked["limestone_t"].sum()),
+                     "gypsum": float(real["gypsum_wet_t"].sum() - booked["gypsum_wet_t"].sum())}
             found = {}
             rows = []
             for store in ("limestone", "gypsum"):
                 book = state.opening[store].level_t
-                truth = book - LIMESTONE_DRIFT * use if store == "limestone" else book
+                truth = book + extra[store]
                 level = round(max(truth * (1 + rng.normal(0, SURVEY_SD)), 0.0), -1)
                 found[store] = (level, book)
                 rows.append({"date": pd.Timestamp(week_end), "store": store, "level_t": level, "method": "survey"})

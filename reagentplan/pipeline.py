@@ -113,9 +113,14 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
                          settings: PlanSettings | None = None, *, scenario: Scenario | None = None,
                          horizon_days: int | None = None, store: bool = True,
                          progress: bool = False, previous: pd.DataFrame | None = None,
-                         sampler=None, **changes) -> PlanRun:
+                         sampler=None, calibrated: bool = False, **changes) -> PlanRun:
     """Plan a workbook from the operations record's state at the end of ``as_of``
     (default: the day before the workbook's start) and store the plan as a new version.
+
+    ``calibrated``: first fit the balance's factors to the record's surveys up to
+    ``as_of`` (`reagentplan.record.calibrate`) and plan (and roll the stores forward)
+    with the fitted values; the calibration is stored with the plan version (the
+    ``calibration`` key of its summary) and is part of its fingerprint.
 
     The workbook gives what does not change week to week; the record gives the opening
     stock, the month-to-date contract tonnes, the booked orders and the histories
@@ -140,6 +145,12 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     if as_of is None:
         as_of = scenario.plant.start_date - dt.timedelta(days=1)
     record = load_record(engine)
+    calibration = None
+    if calibrated:
+        from .record.calibrate import apply_calibration, calibrate
+
+        calibration = calibrate(scenario, record, last=as_of)
+        scenario = apply_calibration(scenario, calibration)
     state = asof_state(scenario, record, as_of)
     planned = apply_asof(scenario, state, horizon_days)
     settings = settings_of(settings, **changes)
@@ -147,10 +158,14 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
         previous = plan_in_force(engine)
     run = run_plan(planned, settings, progress=progress, previous=previous, sampler=sampler)
     run.summary_extra.update(state.summary())
+    if calibration is not None:
+        run.summary_extra["calibration"] = calibration.summary()
     if not store:
         run.summary_extra["plan_id"] = None
         return run
     opts = settings.as_dict() | {"horizon_days": horizon_days}
+    if calibration is not None:
+        opts["calibration"] = calibration.summary()["applied"]
     plan_id = store_plan(engine, summary=run_summary(run), movements=run.plan.movements,
                          inventory=run.plan.inventory, workbook_bytes=data,
                          workbook_name=Path(workbook).name, as_of=as_of,

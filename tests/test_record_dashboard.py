@@ -66,6 +66,8 @@ def test_record_tab_and_uploads(tmp_path):
     assert list(surveyed.y) == [2500.0]  # the recorded survey, as a point
     assert [t.name for t in fig.data][:2] == ["plan in force", "book (rolled from surveys)"]
     assert _find(layout, "record-change-summary") is not None
+    # one survey per store: no calibration, and the tab says why
+    assert "No calibration" in str(_find(layout, "record-calibration-table").children)
     weekly = _find(layout, R.WEEKLY).figure
     assert any(t.name == "limestone in: recorded" for t in weekly.data)
     source = app.reagentplan.record

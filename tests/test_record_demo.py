@@ -21,7 +21,7 @@ def test_weekly_loop_short(tmp_path):
     assert "lab results" in text and "week 4" in text
     for r in reports:
         surveyed, book = r.surveys["limestone"]
-        # the survey is the book less a 3 % drift of a week's use, with 1 % noise
+        # the survey is the book less the real plant's extra use, with 0.7 % noise
         assert abs(surveyed - book) < 0.1 * book
     url = f"sqlite:///{tmp_path / 'weekly' / 'record.db'}"
     engine = connect(url)
@@ -35,3 +35,14 @@ def test_weekly_loop_short(tmp_path):
     assert n_gen == 2 * 7 * weeks       # two units, every day
     assert main(["review", "--db", url, "--out", str(tmp_path / "review")]) == 0
     assert (tmp_path / "review" / "plan_vs_actual.csv").exists()
+    # the plant's real Ca/S (0.05 above the workbook's) shows through the record
+    assert main(["calibrate", "--db", url, "--scenario", str(wb), "--out", str(tmp_path / "cal")]) == 0
+    import pandas as pd
+
+    from reagentplan.demo.record_demo import TRUE_CA_S_STEP
+    from reagentplan.scenario import load_scenario
+
+    cal = pd.read_csv(tmp_path / "cal" / "calibration.csv").set_index("key")
+    wb_ca_s = load_scenario(wb).scrubber.ca_s_ratio
+    assert cal.at["ca_s_ratio", "low"] > wb_ca_s  # the workbook's value is refuted
+    assert abs(cal.at["ca_s_ratio", "fitted_value"] - (wb_ca_s + TRUE_CA_S_STEP)) < 0.03

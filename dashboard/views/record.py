@@ -15,10 +15,11 @@ STORES = "record-stores"
 WEEKLY = "record-weekly"
 CHANGES = "record-changes"
 DRIFT = "record-drift"
+CALIBRATION = "record-calibration"
 UPLOAD = "record-upload"
 REPLACE = "record-replace"
 UPLOAD_MESSAGE = "record-upload-message"
-OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT)
+OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT, CALIBRATION)
 FIGURE_OUTPUTS = (WEEKLY,)
 
 
@@ -44,6 +45,8 @@ def layout():
             card(dcc.Graph(id=WEEKLY, config=GRAPH_CONFIG, className="rp-graph"), wide=True),
             card(html.Div(id=CHANGES), title="Changed since the last plan", wide=True),
             card(html.Div(id=DRIFT), title="Book against survey (the balance's drift)", wide=True),
+            card(html.Div(id=CALIBRATION), title="What the record teaches the balance (fitted factors, "
+                                                  "90 % intervals)", wide=True),
         ]),
     ])
 
@@ -88,4 +91,40 @@ def content(ov) -> dict:
         ("drift_pct_of_flow", "% of tonnes used or made", lambda x: f"{x:+.1f} %", True)],
         empty="No store has two surveys yet.", table_id="record-drift-table")
     return {IN_FORCE: [head], STORES: stores, WEEKLY: record_figures.weekly_figure(ov.weekly),
-            CHANGES: changes, DRIFT: drift}
+            CHANGES: changes, DRIFT: drift, CALIBRATION: calibration(ov)}
+
+
+def _factor(key: str):
+    return (lambda x: "–" if pd.isna(x) else f"{x:.3f}") if key == "ca_s_ratio" else \
+        (lambda x: "–" if pd.isna(x) else f"{x:.1f}")
+
+
+def calibration(ov):
+    """The factors fitted to the surveys against the workbook's, and the drift they
+    explain per store (computed by `reagentplan.record.calibrate`)."""
+    cal = getattr(ov, "calibration", None)
+    if cal is None:
+        return html.Div(f"No calibration: {ov.calibration_message or 'no surveys'}", className="rp-empty",
+                        id="record-calibration-table")
+    view = cal.view()
+    view["interval"] = [f"{_factor(k)(lo)} to {_factor(k)(hi)}" if pd.notna(lo) else "–"
+                        for k, lo, hi in zip(view["key"], view["low"], view["high"])]
+    for c in ("workbook_value", "fitted_value"):
+        view[c] = [_factor(k)(v) for k, v in zip(view["key"], view[c])]
+    factors = table(view, [
+        ("key", "Factor", str, False), ("workbook_value", "Workbook", str, True),
+        ("fitted_value", "Fitted", str, True), ("interval", "90 % interval", str, True),
+        ("status", "", str, False)],
+        empty="No factor.", table_id="record-calibration-table",
+        row_class=lambda r: "soon" if r["status"] == "contradicts the workbook" else "")
+    drift = table(cal.drift, [
+        ("store", "Store", str, False), ("intervals", "Survey intervals", str, True),
+        ("drift_before_pct_of_flow", "Drift, workbook's factors", lambda x: f"{x:+.1f} %", True),
+        ("drift_after_pct_of_flow", "Drift, fitted factors", lambda x: f"{x:+.1f} %", True),
+        ("drift_before_t_per_day", "Before [t/day]", lambda x: f"{x:+,.1f}", True),
+        ("drift_after_t_per_day", "After [t/day]", lambda x: f"{x:+,.1f}", True)],
+        empty="No store has two surveys.", table_id="record-calibration-drift")
+    return html.Div([
+        html.Div(f"Surveys from {cal.first:%Y-%m-%d} to {cal.last:%Y-%m-%d}; plan with the fitted values: "
+                 "`reagentplan plan WORKBOOK --db URL --as-of DATE --calibrated`.", className="rp-empty"),
+        factors, html.H5("Book against survey, % of the tonnes used or made"), drift])

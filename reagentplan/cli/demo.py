@@ -58,5 +58,7 @@ def run(args) -> int:
         print(describe_weeks(reports, run.plan.scenario.plant.currency))
         print(f"\nThe record is {out / 'weekly' / 'record.db'}; try: reagentplan review --db "
               f"sqlite:///{out / 'weekly' / 'record.db'} --out {out / 'weekly' / 'review'}")
+        print(f"and: reagentplan calibrate --db sqlite:///{out / 'weekly' / 'record.db'} --scenario "
+              f"{out / 'weekly' / 'demo_weekly.xlsx'} --out {out / 'weekly' / 'calibration'}")
     print(f"\nCaution: {CAUTION}")
     return EXIT_OK

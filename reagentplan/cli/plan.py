@@ -30,6 +30,10 @@ def register(sub) -> None:
     p.add_argument("--horizon-days", type=int, default=None, metavar="N",
                    help="with --db: days planned from the day after --as-of (default: the workbook's "
                         "horizon_days)")
+    p.add_argument("--calibrated", action="store_true",
+                   help="with --db: plan with the factors fitted to the record's surveys up to --as-of "
+                        "(as `reagentplan calibrate` finds them) instead of the workbook's; the plan "
+                        "version records them")
     p.set_defaults(func=run)
 
 
@@ -41,6 +45,12 @@ def run(args) -> int:
 
     settings = plan_settings(args, PLAN)
     from_record = bool(args.db or args.as_of or os.environ.get("REAGENTPLAN_DB"))
+    if args.calibrated and not from_record:
+        from ..errors import Problem
+        from ..record.db import RecordError
+
+        raise RecordError(Problem(None, None, "--calibrated", "no record to calibrate from",
+                                  "--db URL (or REAGENTPLAN_DB) with --calibrated"), "The command")
     if from_record:
         from ..pipeline import run_plan_from_record
         from ..record.db import connect
@@ -50,12 +60,17 @@ def run(args) -> int:
         try:
             with staged_output(args.out) as tmp:
                 run = run_plan_from_record(args.workbook, engine, args.as_of, settings,
-                                           horizon_days=args.horizon_days, progress=True)
+                                           horizon_days=args.horizon_days, progress=True,
+                                           calibrated=args.calibrated)
                 written = write_run(run, tmp)
         finally:
             engine.dispose()
         warn(run.plan.scenario)
         print(describe_asof(run.summary_extra))
+        if args.calibrated:
+            from ..record.calibrate import describe_applied
+
+            print(f"  {describe_applied(run.summary_extra.get('calibration'))}")
     else:
         scenario = load_scenario(args.workbook)
         warn(scenario)

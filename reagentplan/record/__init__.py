@@ -9,6 +9,8 @@ arrivals, shipments, orders, generation and lab results) and the plans made from
   its application to a `Scenario`.
 - `versions`: plan versions and the diff of two; `review`: plan against book against
   survey.
+- `calibrate`: the balance's factors fitted to the surveys (``reagentplan calibrate``,
+  ``plan --calibrated``).
 """
 
 from .db import RecordError, connect, upgrade

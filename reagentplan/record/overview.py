@@ -26,6 +26,10 @@ class Overview:
     act_first: pd.DataFrame
     compared: tuple[int, int] | None
     record: RecordFrames
+    #: the factors fitted to the record's surveys (`reagentplan.record.calibrate`), or
+    #: None with ``calibration_message`` saying why there is none
+    calibration: object | None = None
+    calibration_message: str = ""
 
 
 def weekly_against_plan(engine, record: RecordFrames, ids: list[int]) -> pd.DataFrame:
@@ -75,4 +79,18 @@ def overview(engine, scenario: Scenario, until: dt.date | None = None) -> Overvi
             first = act_first(changes, p.as_of)
             compared = (before.id, p.id)
     rv = review(engine, scenario, record, until)
-    return Overview(in_force, rv, weekly_against_plan(engine, record, ids), changes, first, compared, record)
+    cal, message = record_calibration(scenario, record, until)
+    return Overview(in_force, rv, weekly_against_plan(engine, record, ids), changes, first, compared, record,
+                    cal, message)
+
+
+def record_calibration(scenario: Scenario, record: RecordFrames, until: dt.date | None = None):
+    """The calibration of the record's surveys up to ``until`` and "", or None and the
+    reason there is none (too few surveys, missing generation...)."""
+    from .calibrate import calibrate
+    from .db import RecordError
+
+    try:
+        return calibrate(scenario, record, last=until), ""
+    except RecordError as exc:
+        return None, "; ".join(f"{p.found}: {p.expected}" if p.expected else str(p.found) for p in exc.problems)

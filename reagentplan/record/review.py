@@ -10,6 +10,7 @@ used or made in between measures the balance's accuracy.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from dataclasses import dataclass
 
@@ -18,7 +19,7 @@ import pandas as pd
 
 from ..scenario import Scenario
 from .asof import RecordFrames, book_levels
-from .versions import load_plan, plans_in_force
+from .versions import load_plan, plan_calibrations, plans_in_force
 
 PLAN_VS_ACTUAL_COLUMNS = ["date", "store", "planned_level_t", "book_level_t", "surveyed_level_t",
                           "plan_id"]
@@ -31,6 +32,8 @@ class Review:
     plan_vs_actual: pd.DataFrame
     drift: pd.DataFrame
     by_store: pd.DataFrame   # store, surveys, mean_drift_t, mean_abs_drift_t, drift_t_per_day, drift_pct_of_flow
+    #: plan versions in force in the review made with ``plan --calibrated``: id -> calibration
+    calibrated: dict = dataclasses.field(default_factory=dict)
 
 
 def last_fact_day(record: RecordFrames) -> dt.date | None:
@@ -71,7 +74,9 @@ def review(engine, scenario: Scenario, record: RecordFrames, until: dt.date | No
     pva = pva.sort_values(["date", "store"]).reset_index(drop=True)
     pva["plan_id"] = pva["plan_id"].astype("Int64")
     drift = drift_table(book)
-    return Review(pva, drift, drift_by_store(drift))
+    in_force = set(pva["plan_id"].dropna().astype(int))
+    calibrated = {i: c for i, c in plan_calibrations(engine).items() if i in in_force}
+    return Review(pva, drift, drift_by_store(drift), calibrated)
 
 
 def drift_table(book: pd.DataFrame) -> pd.DataFrame:
@@ -121,4 +126,12 @@ def describe_review(r: Review) -> str:
             lines.append(f"  {s.store:<10} {s.surveys} survey(s): mean {s.mean_drift_t:+,.0f} t, mean abs "
                          f"{s.mean_abs_drift_t:,.0f} t, {s.drift_t_per_day:+,.1f} t/day, "
                          f"{s.drift_pct_of_flow:+.1f} % of the tonnes used or made")
+    if r.calibrated:
+        from .calibrate import describe_applied
+
+        lines.append("Plans in force made with calibrated factors (the others use the workbook's):")
+        for pid, cal in r.calibrated.items():
+            lines.append(f"  plan {pid}: {describe_applied(cal)}")
+    elif r.plan_vs_actual["plan_id"].notna().any():
+        lines.append("Every plan in force uses the workbook's factors (none was made with --calibrated).")
     return "\n".join(lines)

@@ -140,6 +140,19 @@ def load_workbook_bytes(engine, sha256: str) -> bytes:
         return conn.execute(sa.select(WB.c.content).where(WB.c.sha256 == sha256)).scalar_one()
 
 
+def plan_calibrations(engine) -> dict[int, dict]:
+    """The plan versions made with ``--calibrated``: id -> the calibration stored with
+    it (the ``calibration`` key of its summary)."""
+    with engine.connect() as conn:
+        rows = conn.execute(sa.select(PV.c.id, PV.c.summary_json).order_by(PV.c.id)).all()
+    out = {}
+    for pid, text in rows:
+        cal = json.loads(text).get("calibration") if text else None
+        if cal:
+            out[int(pid)] = cal
+    return out
+
+
 def plans_in_force(engine) -> pd.DataFrame:
     """Every plan version: id, as_of, start_date, end_date (for ``review``)."""
     with engine.connect() as conn:
@@ -237,6 +250,14 @@ def act_first(diff: pd.DataFrame, as_of: dt.date | None, within: int = ACT_WITHI
 def describe_diff(before: StoredPlan, after: StoredPlan, diff: pd.DataFrame, first: pd.DataFrame) -> str:
     lines = [f"Plan {before.id} (as of {before.as_of}) -> plan {after.id} (as of {after.as_of}): "
              f"{len(diff)} order line(s) changed"]
+    from .calibrate import describe_applied
+
+    for p in (before, after):
+        if p.summary.get("calibration"):
+            lines.append(f"  plan {p.id} {describe_applied(p.summary['calibration'])}")
+    if bool(before.summary.get("calibration")) != bool(after.summary.get("calibration")):
+        lines.append("  (one plan uses the calibrated factors and the other the workbook's: part of the "
+                     "change comes from the balance itself)")
     for direction, label in (("in", "limestone orders"), ("out", "haul-outs")):
         counts = diff.loc[diff["direction"] == direction, "change"].value_counts()
         if len(counts):
