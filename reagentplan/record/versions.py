@@ -56,8 +56,9 @@ def _py(v):
 def store_plan(engine, *, summary: dict, movements: pd.DataFrame, inventory: pd.DataFrame,
                workbook_bytes: bytes, workbook_name: str, as_of: dt.date | None,
                start_date: dt.date, horizon_days: int, finger: str,
-               last_import_id: int | None) -> int:
-    """Store one plan version (one transaction); returns its id."""
+               last_import_id: int | None, who: str | None = None) -> int:
+    """Store one plan version (one transaction); returns its id.  ``who`` made it
+    (default: the operating-system user)."""
     require_current(engine)
     sha = hashlib.sha256(workbook_bytes).hexdigest()
     with write_transaction(engine) as conn:
@@ -65,7 +66,7 @@ def store_plan(engine, *, summary: dict, movements: pd.DataFrame, inventory: pd.
             conn.execute(sa.insert(WB).values(sha256=sha, file_name=workbook_name[:500],
                                               content=workbook_bytes))
         plan_id = conn.execute(sa.insert(PV).values(
-            created_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None), created_by=_user(),
+            created_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None), created_by=who or _user(),
             as_of=as_of, start_date=start_date, horizon_days=horizon_days, workbook_sha256=sha,
             fingerprint=finger, last_import_id=last_import_id, status=str(summary.get("status"))[:200],
             total_cost=float(summary.get("total_cost") or 0.0),
