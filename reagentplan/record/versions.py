@@ -105,6 +105,7 @@ class StoredPlan:
     summary: dict
     movements: pd.DataFrame
     inventory: pd.DataFrame | None = None
+    created_by: str | None = None
 
     @property
     def end_date(self) -> dt.date:
@@ -133,7 +134,24 @@ def load_plan(engine, plan_id: int, inventory: bool = False) -> StoredPlan:
     for c in ("date", "order_by"):
         mv[c] = pd.to_datetime(mv[c])
     return StoredPlan(v["id"], v["as_of"], v["start_date"], v["horizon_days"], v["created_at"],
-                      v["workbook_sha256"], json.loads(v["summary_json"]), mv, inv)
+                      v["workbook_sha256"], json.loads(v["summary_json"]), mv, inv, v["created_by"])
+
+
+def latest_summary(engine) -> dict | None:
+    """The plan in force (the newest stored version) as its ``summary.json`` says it,
+    with ``plan_id``, ``created_at`` and ``created_by``; None when the record holds no
+    plan."""
+    require_current(engine)
+    with engine.connect() as conn:
+        v = conn.execute(sa.select(PV.c.id, PV.c.created_at, PV.c.created_by, PV.c.summary_json)
+                         .order_by(PV.c.id.desc()).limit(1)).first()
+    if v is None:
+        return None
+    summary = json.loads(v.summary_json)
+    summary["plan_id"] = int(v.id)
+    summary["created_at"] = v.created_at.isoformat(timespec="seconds") + "Z"
+    summary["created_by"] = v.created_by
+    return summary
 
 
 def load_workbook_bytes(engine, sha256: str) -> bytes:
