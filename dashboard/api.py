@@ -7,7 +7,8 @@ asking and their role before these run):
   the record tab record it (`reagentplan.record.importer.record_files`: the same
   validation, conflicts and all-or-nothing write).  200 with the counts per sheet; 409
   with each conflict; 422 with each problem (sheet, row, column, found, expected); 413
-  over `MAX_UPLOAD_BYTES`; 403 for a viewer; 401 without credentials.  Field
+  over `MAX_UPLOAD_BYTES`; 403 for a viewer; 401 without credentials; 503 while the
+  dashboard's first plan is still being made (the station's names are not known yet).  Field
   ``replace=1`` replaces recorded values (kept in the audit trail), as ``--replace``.
 - ``GET /api/v1/plans/latest``: the plan in force (its ``summary.json``), 404 without one.
 - ``GET /api/v1/users``: names and roles (an admin only).
@@ -94,6 +95,9 @@ def register_api(app, source, people) -> None:
         if len(data) > MAX_UPLOAD_BYTES:
             return _json({"error": "too_large", "message": f"{name} is over {MAX_UPLOAD_BYTES // 2**20} MB; "
                           "record it with `reagentplan record`. Nothing was recorded."}, 413)
+        if source.scenario is None:  # the first plan is still being made: names cannot be checked yet
+            return _json({"error": "not_ready", "message": "The dashboard is still making its first plan; "
+                          "try again in a minute. Nothing was recorded."}, 503, {"Retry-After": "30"})
         replace = (request.form.get("replace") or "").strip().lower() in ("1", "true", "yes")
         status, payload = record_upload(source, name, data, replace=replace, who=current_name())
         return _json(payload, status)
@@ -200,6 +204,7 @@ def openapi_document() -> dict:
                     "409": _err("Keys already recorded with other values; nothing written",
                                 {"conflicts": {"type": "array", "items": {"$ref": "#/components/schemas/Problem"}}}),
                     "413": _err("The file is over 10 MB"),
+                    "503": _err("The dashboard is still making its first plan; try again later"),
                     "422": _err("The file is not valid; nothing written",
                                 {"problems": {"type": "array", "items": {"$ref": "#/components/schemas/Problem"}}}),
                     **auth}}},

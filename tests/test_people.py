@@ -360,6 +360,20 @@ def test_people_sign_in_and_roles_hold_on_the_server(served):
     assert status == 200 and "1 added" in answer["response"][R.UPLOAD_MESSAGE]["children"]
     assert "ana" in json.dumps(answer["response"]["record-imports"])
     assert _count(url, "stock_surveys") == surveys + 1
+    # re-plans: a viewer's is refused before anything starts, a coordinator's runs
+    from reagentplan.dashboard.testing import DashSession
+
+    base = f"http://127.0.0.1:{port}/"
+    viewer = DashSession(base)
+    assert viewer.sign_in("vic", PASSWORDS["vic"])
+    viewer.load_page()
+    plan_id, message = viewer.replan(removal=96.0)
+    assert plan_id is None and "only a coordinator or above may re-plan" in message
+    coordinator = DashSession(base)
+    assert coordinator.sign_in("ana", PASSWORDS["ana"])
+    coordinator.load_page()
+    plan_id, _ = coordinator.replan(removal=96.0, limit=300)
+    assert plan_id and not coordinator.errors, coordinator.errors
     # a session cookie never passes for a script: no Origin, no Basic -> refused
     data, head = multipart("arrivals.csv", b"date\n")
     assert ana.request("POST", "/api/v1/record", data, head)[0] == 403
