@@ -202,11 +202,12 @@ def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = N
     loaded = None
     if workbook_bytes_or_path is not None and run is None:
         loaded = _load(workbook_bytes_or_path, work, demo_days)  # a bad workbook is refused now
-    record_source = None
+    record_source = people = None
     if db is not None:
         from .record_callbacks import RecordSource
 
         record_source = RecordSource(db, None)  # filled by the startup plan
+        people = _people(db)
     progress = PlanProgress()
     start = _Startup(workbook_bytes_or_path, loaded, work, demo_days, options, run, db, as_of,
                      record_source, progress,
@@ -216,11 +217,13 @@ def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = N
     server = flask.Flask("reagentplan.dashboard")
     if origins is None:
         origins = tuple(o.strip() for o in os.environ.get(ORIGINS_ENV, "").split(",") if o.strip())
-    # each is put in front of the others: they run body limit, password, origin
-    install_origin_check(server, loopback_only=not password, origins=origins)
-    guard = install_basic_auth(server, password, throttle) if password else None
-    install_body_limit(server, MAX_REQUEST_BYTES)
-    install_headers(server)
+    # each is put in front of the others: they run body limit, password (or the
+    # record's people), origin
+    install_origin_check(server, loopback_only=not (password or people), origins=origins,
+                         scripts=people is not None)
+    guard = None
+    if people is None and password:
+        guard = install_basic_auth(server, password, throttle)
 
     manager = DiskcacheManager(diskcache.Cache(str(work / "jobs"), size_limit=JOBS_BYTES))
     # with the startup page first, the views' components appear only after a reload
@@ -230,11 +233,19 @@ def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = N
     prefix = app.config.requests_pathname_prefix or "/"
     app.index_string = INDEX_STRING.replace(
         "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
+    if people is not None:  # the record has users: each person signs in as themselves
+        from .api import register_api
+        from .people import install_people_auth
+
+        guard = install_people_auth(app, people, throttle)
+        register_api(app, record_source, people)
+    install_body_limit(server, MAX_REQUEST_BYTES)
+    install_headers(server)
     app.reagentplan = SimpleNamespace(store=store, options=options, scenario_id=None,
                                       plan_id=None, work_dir=work, startup_seconds=None,
                                       warnings=(), throttle=guard, origins=origins,
                                       record=record_source, progress=progress, ready=False,
-                                      from_cache=False, plan_meta=None)
+                                      from_cache=False, plan_meta=None, people=people)
     page: list = []
 
     def finish() -> None:
@@ -288,6 +299,23 @@ def create_app(workbook_bytes_or_path=None, *, settings: PlanSettings | None = N
 
     threading.Thread(target=work_thread, daemon=True, name="reagentplan-startup-plan").start()
     return app
+
+
+def _people(db: str):
+    """The record's users as the dashboard checks them, or None when it has none (the
+    dashboard then asks for no sign-in, or for the shared password)."""
+    from reagentplan.record.db import connect
+    from reagentplan.record.users import has_users
+
+    engine = connect(db)
+    try:
+        if not has_users(engine):
+            return None
+    finally:
+        engine.dispose()
+    from .people import People
+
+    return People(db)
 
 
 class _Startup:

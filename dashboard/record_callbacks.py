@@ -43,8 +43,11 @@ class RecordSource:
             engine.dispose()
 
 
-def record_upload(source: RecordSource, data: dict | None, replace: bool) -> tuple[str, bool]:
-    """Record an uploaded file: ``(message, ok)``; nothing is written when not ok."""
+def record_upload(source: RecordSource, data: dict | None, replace: bool,
+                  who: str | None = None) -> tuple[str, bool]:
+    """Record an uploaded file: ``(message, ok)``; nothing is written when not ok.
+    ``who`` is recorded as its maker (the signed-in person; default: the user the
+    dashboard runs as)."""
     from reagentplan.record.importer import describe_import, record_files
 
     if not data or not data.get("contents"):
@@ -61,7 +64,7 @@ def record_upload(source: RecordSource, data: dict | None, replace: bool) -> tup
     engine = source.engine()
     try:
         result = record_files(engine, [(name, raw)], scenario=source.scenario, replace=replace,
-                              today=source.today)
+                              today=source.today, who=who)
     except ScenarioError as exc:
         return f"{name}: {exc.report()}\nNothing was recorded.", False
     finally:
@@ -76,8 +79,10 @@ def register_record(app, source: RecordSource) -> None:
                   *outputs, Input(R.UPLOAD, "contents"), State(R.UPLOAD, "filename"),
                   State(R.REPLACE, "value"), prevent_initial_call=True)
     def _record(contents, filename, replace):
+        from .people import current_name
+
         message, ok = record_upload(source, {"contents": contents, "filename": filename},
-                                    "replace" in (replace or []))
+                                    "replace" in (replace or []), who=current_name())
         if not ok:
             return (message, "rp-msg bad", *([no_update] * len(R.OUTPUTS)))
         content = R.content(source.overview())

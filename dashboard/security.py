@@ -199,7 +199,18 @@ def _netloc(url_or_host: str, scheme: str = "http") -> tuple[str, int] | None:
     return parts.hostname.lower(), port
 
 
-def install_origin_check(server, *, loopback_only: bool, origins: Iterable[str] = ()) -> None:
+def _from_script(request) -> bool:
+    """A request of the HTTP interface made by a script, not a browser: to ``/api/``,
+    with its own credentials (an ``Authorization`` header, never the session cookie),
+    and no ``Origin``, ``Referer`` or cross-site ``Sec-Fetch-Site`` (every browser sends
+    an ``Origin`` with a cross-site POST)."""
+    return (request.path.startswith("/api/") and "Authorization" in request.headers
+            and not request.headers.get("Origin") and not request.headers.get("Referer")
+            and request.headers.get("Sec-Fetch-Site", "none") in ("none", "same-origin"))
+
+
+def install_origin_check(server, *, loopback_only: bool, origins: Iterable[str] = (),
+                         scripts: bool = False) -> None:
     """Refuse (403) any request that may change state unless it comes from the
     dashboard's own page, and, with ``loopback_only``, any request whose ``Host`` is
     not a loopback name.
@@ -207,7 +218,8 @@ def install_origin_check(server, *, loopback_only: bool, origins: Iterable[str] 
     A request whose method is not GET/HEAD/OPTIONS must carry an ``Origin`` (or, when
     the browser sends none, a ``Referer``) naming the request's own host and port, or
     one of ``origins`` (e.g. ``https://plant.example`` for a proxy that rewrites the
-    host).
+    host).  With ``scripts``, a request of the HTTP interface from a script (`_from_script`)
+    may carry neither.
     """
     from flask import Response, request
 
@@ -219,6 +231,8 @@ def install_origin_check(server, *, loopback_only: bool, origins: Iterable[str] 
         if loopback_only and (own is None or not is_loopback(own[0])):
             return Response("This dashboard answers only on this machine's loopback address.\n", 403)
         if request.method in SAFE_METHODS:
+            return None
+        if scripts and _from_script(request):
             return None
         source = request.headers.get("Origin") or request.headers.get("Referer") or ""
         claimed = _netloc(source, request.scheme)

@@ -89,6 +89,31 @@ class DashSession:
         self.events: list[tuple[str, float, float]] = []
         self.errors: list[str] = []
 
+    def sign_in(self, name: str, password: str) -> bool:
+        """Sign in on the dashboard's own page (a record with users) and keep the
+        session cookie for the requests that follow; False (and an error) if refused."""
+        import http.client
+        import time
+        from urllib.parse import urlencode, urlsplit
+
+        parts = urlsplit(self.url)
+        conn = http.client.HTTPConnection(parts.hostname, parts.port, timeout=self.timeout)
+        t0 = time.perf_counter()
+        try:
+            conn.request("POST", "/signin", urlencode({"name": name, "password": password}),
+                         {"Content-Type": "application/x-www-form-urlencoded", "Origin": self.origin})
+            r = conn.getresponse()
+            r.read()
+            cookie = r.getheader("Set-Cookie")
+        finally:
+            conn.close()
+        self.timings.append(("sign-in", time.perf_counter() - t0))
+        if r.status != 303 or not cookie:
+            self.errors.append(f"sign-in as {name}: HTTP {r.status}")
+            return False
+        self.headers["Cookie"] = cookie.split(";", 1)[0]
+        return True
+
     # ------------------------------------------------------------------ http
 
     def _request(self, method: str, path: str, body: dict | None = None):
@@ -210,6 +235,10 @@ class DashSession:
             self.errors.append(f"replan start: HTTP {status} {raw[:200]!r}")
             return None, ""
         handles = json.loads(raw)
+        if "response" in handles:  # answered at once: refused (a viewer), nothing started
+            message = handles["response"].get(C.REPLAN_MESSAGE, {}).get("children", "")
+            self.errors.append(f"replan refused: {message}")
+            return None, message
         query.update({"cacheKey": handles["cacheKey"], "job": handles["job"]})
         while time.perf_counter() - t0 < limit:
             time.sleep(poll)

@@ -113,7 +113,8 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
                          settings: PlanSettings | None = None, *, scenario: Scenario | None = None,
                          horizon_days: int | None = None, store: bool = True,
                          progress: bool = False, previous: pd.DataFrame | None = None,
-                         sampler=None, calibrated: bool = False, **changes) -> PlanRun:
+                         sampler=None, calibrated: bool = False, who: str | None = None,
+                         **changes) -> PlanRun:
     """Plan a workbook from the operations record's state at the end of ``as_of``
     (default: the day before the workbook's start) and store the plan as a new version.
 
@@ -127,7 +128,8 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     (`reagentplan.record.asof`).  ``scenario`` is the workbook already loaded (else it
     is read); ``horizon_days`` overrides the workbook's; ``store`` = False plans without
     storing a version (the dashboard's view).  ``settings``, ``changes``, ``progress``,
-    ``previous`` and ``sampler`` are those of `run_plan`.
+    ``previous`` and ``sampler`` are those of `run_plan`.  ``who`` is recorded as the
+    version's maker (default: the operating-system user).
     """
     from .output import run_summary
     from .record.asof import apply_asof, asof_state, load_record
@@ -171,7 +173,7 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
                          workbook_name=Path(workbook).name, as_of=as_of,
                          start_date=planned.plant.start_date, horizon_days=planned.plant.horizon_days,
                          finger=fingerprint(data, as_of, state.last_import_id, opts),
-                         last_import_id=state.last_import_id)
+                         last_import_id=state.last_import_id, who=who)
     run.summary_extra["plan_id"] = plan_id
     return run
 

@@ -19,7 +19,8 @@ CALIBRATION = "record-calibration"
 UPLOAD = "record-upload"
 REPLACE = "record-replace"
 UPLOAD_MESSAGE = "record-upload-message"
-OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT, CALIBRATION)
+IMPORTS = "record-imports"
+OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT, CALIBRATION, IMPORTS)
 FIGURE_OUTPUTS = (WEEKLY,)
 
 
@@ -47,6 +48,7 @@ def layout():
             card(html.Div(id=DRIFT), title="Book against survey (the balance's drift)", wide=True),
             card(html.Div(id=CALIBRATION), title="What the record teaches the balance (fitted factors, "
                                                   "90 % intervals)", wide=True),
+            card(html.Div(id=IMPORTS), title="Who recorded what (newest first)", wide=True),
         ]),
     ])
 
@@ -61,8 +63,8 @@ def content(ov) -> dict:
             html.Div(f"Plan version {f['id']} in force", className="store"),
             html.Div(f"as of {fmt_date(f['as_of'])}, {f['horizon_days']} days from {fmt_date(f['start_date'])}",
                      className="when"),
-            html.Div(f"made {f['created_at']:%Y-%m-%d %H:%M} UTC; total cost {fmt_t(f['total_cost'])}",
-                     className="detail")])
+            html.Div(f"made {f['created_at']:%Y-%m-%d %H:%M} UTC by {f.get('created_by') or 'unknown'}; "
+                     f"total cost {fmt_t(f['total_cost'])}", className="detail")])
     pva = ov.review.plan_vs_actual
     stores = [card(dcc.Graph(id=f"record-store-{s}", config=GRAPH_CONFIG, className="rp-graph",
                              figure=record_figures.record_store_figure(pva, s)))
@@ -90,8 +92,13 @@ def content(ov) -> dict:
         ("drift_t_per_day", "Drift [t/day]", lambda x: f"{x:+,.1f}", True),
         ("drift_pct_of_flow", "% of tonnes used or made", lambda x: f"{x:+.1f} %", True)],
         empty="No store has two surveys yet.", table_id="record-drift-table")
+    imports = table(ov.imports, [
+        ("id", "Import", str, True), ("recorded_at", "When (UTC)", lambda x: f"{x:%Y-%m-%d %H:%M}", False),
+        ("recorded_by", "Recorded by", str, False), ("file_name", "File", str, False),
+        ("added", "Rows added", str, True), ("replaced", "Replaced", str, True)],
+        empty="Nothing recorded yet.", table_id="record-imports-table", limit=20)
     return {IN_FORCE: [head], STORES: stores, WEEKLY: record_figures.weekly_figure(ov.weekly),
-            CHANGES: changes, DRIFT: drift, CALIBRATION: calibration(ov)}
+            CHANGES: changes, DRIFT: drift, CALIBRATION: calibration(ov), IMPORTS: imports}
 
 
 def _factor(key: str):

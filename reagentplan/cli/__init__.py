@@ -20,12 +20,12 @@ import sys
 from .. import CAUTION, __version__
 from ..errors import ScenarioError
 from . import (balance, calibrate, check, dashboard, db, demo, diff, forecast, plan, record, rehearse,
-               review, study, template)
+               review, study, template, users)
 from .common import EXIT_BAD_INPUT, EXIT_BREACH, EXIT_OK
 
 #: The commands in the order ``reagentplan --help`` lists them.
 COMMANDS = (demo, template, check, balance, forecast, plan, db, record, diff, review, calibrate, study,
-            rehearse, dashboard)
+            rehearse, dashboard, users)
 
 #: The exit code when standard output was closed early: Python's own for a broken pipe
 #: (the Python documentation, "Note on SIGPIPE", in the signal module).

@@ -41,8 +41,10 @@ def register(sub) -> None:
 def run(args) -> int:
     from ..dashboard.security import DashboardRefused, is_loopback, password_for
 
+    db = args.db or os.environ.get("REAGENTPLAN_DB")
+    people = db is not None and _has_users(db)
     try:
-        password = password_for(args.host, os.environ)
+        password = None if people else password_for(args.host, os.environ)
     except DashboardRefused as exc:
         print(exc, file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -57,7 +59,6 @@ def run(args) -> int:
     what = args.workbook or "the demo station"
     print(f"Serving at once; the page shows the first plan of {what} ({settings.futures} futures) "
           f"as it is made. Plans are kept in {cache_dir()} (set REAGENTPLAN_CACHE to move it).")
-    db = args.db or os.environ.get("REAGENTPLAN_DB")
     if db is None and args.as_of is not None:
         from ..record.db import resolve_url
 
@@ -70,13 +71,29 @@ def run(args) -> int:
         print(f"--study: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     print(f"Dashboard on http://{args.host}:{args.port}/"
-          + (" (password required)" if password else "") + "; Ctrl+C stops it.")
+          + (" (everyone signs in as a user of the record)" if people else
+             " (password required)" if password else "") + "; Ctrl+C stops it.")
+    if people and os.environ.get("REAGENTPLAN_DASHBOARD_PASSWORD"):
+        print("The record has users: REAGENTPLAN_DASHBOARD_PASSWORD is not used.")
     if not is_loopback(args.host):
         print("Other machines can reach it: serve it behind a TLS-terminating proxy "
-              "(basic auth sends the password with every request).")
+              "(passwords travel with the sign-in and with every script's request).")
     print(f"Caution: {CAUTION}")
     serve(app, args.host, args.port, trusted_proxy=args.trusted_proxy)
     return EXIT_OK
+
+
+def _has_users(db: str) -> bool:
+    """True when the record at ``db`` has users (the dashboard then asks everyone to
+    sign in as themselves)."""
+    from ..record.db import connect
+    from ..record.users import has_users
+
+    engine = connect(db)
+    try:
+        return has_users(engine)
+    finally:
+        engine.dispose()
 
 
 def _ready(info) -> None:

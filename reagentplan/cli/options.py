@@ -84,6 +84,13 @@ def add_db(p) -> None:
                         "(default: the environment variable REAGENTPLAN_DB)")
 
 
+def add_user(p) -> None:
+    """``--user NAME``: who the record names as having made this write."""
+    p.add_argument("--user", default=None, metavar="NAME",
+                   help="who the record names as having made this (a user of the record once it "
+                        "has users; default: the operating-system user)")
+
+
 def add_as_of(p, what: str) -> None:
     """``--as-of DATE``; ``what`` is the help."""
     p.add_argument("--as-of", type=date_arg, default=None, metavar="DATE", help=what)

@@ -9,7 +9,7 @@ from .. import CAUTION
 from ..settings import PLAN
 from .common import EXIT_BREACH, EXIT_OK, warn
 from .options import (add_as_of, add_db, add_firm_days, add_futures, add_out, add_risk_level, add_seed,
-                      add_solver, add_time_limit, plan_settings)
+                      add_solver, add_time_limit, add_user, plan_settings)
 
 
 def register(sub) -> None:
@@ -27,6 +27,7 @@ def register(sub) -> None:
                  "month-to-date contract tonnes, booked orders, history); the plan starts the "
                  "next day and is stored as a new version (default: the day before the "
                  "workbook's start_date)")
+    add_user(p)
     p.add_argument("--horizon-days", type=int, default=None, metavar="N",
                    help="with --db: days planned from the day after --as-of (default: the workbook's "
                         "horizon_days)")
@@ -54,14 +55,16 @@ def run(args) -> int:
     if from_record:
         from ..pipeline import run_plan_from_record
         from ..record.db import connect
+        from ..record.users import writer
         from ..summary import describe_asof
 
         engine = connect(args.db)
         try:
+            who = writer(engine, args.user)
             with staged_output(args.out) as tmp:
                 run = run_plan_from_record(args.workbook, engine, args.as_of, settings,
                                            horizon_days=args.horizon_days, progress=True,
-                                           calibrated=args.calibrated)
+                                           calibrated=args.calibrated, who=who)
                 written = write_run(run, tmp)
         finally:
             engine.dispose()

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from .common import EXIT_OK
-from .options import add_as_of, add_db
+from .options import add_as_of, add_db, add_user
 
 
 def register(sub) -> None:
@@ -19,19 +19,21 @@ def register(sub) -> None:
     p.add_argument("--replace", action="store_true",
                    help="accept new values for facts already recorded (the old ones go to the audit trail)")
     add_as_of(p, "refuse facts after this day (default: today)")
+    add_user(p)
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
     from ..record.db import connect
     from ..record.importer import describe_import, record_files
+    from ..record.users import writer
     from ..scenario import load_scenario
 
     scenario = load_scenario(args.scenario) if args.scenario else None
     engine = connect(args.db)
     try:
         result = record_files(engine, args.files, scenario=scenario, replace=args.replace,
-                              today=args.as_of)
+                              today=args.as_of, who=writer(engine, args.user))
     finally:
         engine.dispose()
     print(describe_import(result))

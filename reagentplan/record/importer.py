@@ -42,6 +42,11 @@ ORDER = ("stock_surveys", "arrivals", "shipments", "orders", "generation_history
          "coal_quality_history")
 
 
+class RecordConflict(RecordError):
+    """Keys already recorded with other values (nothing written); the HTTP interface
+    answers 409 for it, 422 for any other `RecordError`."""
+
+
 @dataclass
 class SheetCount:
     added: int = 0
@@ -166,9 +171,32 @@ def parse_record(raws: list[tuple[str, dict[str, RawSheet]]], scenario: Scenario
     return frames, warnings
 
 
+#: First characters that make a spreadsheet read a cell as a formula (``=cmd|...``,
+#: ``+``, ``-``, ``@``, and a tab or carriage return before one): text starting so is
+#: refused, so that nothing recorded becomes a formula when a later file shows it (OWASP,
+#: "CSV Injection").
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def _check_text(name: str, frame: pd.DataFrame, out: Collector) -> None:
+    spec = RECORD_SHEETS[name]
+    cols = [f.name for f in spec.fields if f.kind == "text"] + list(TEXT_COLUMNS.get(name, ()))
+    for col in cols:
+        if col not in frame:
+            continue
+        values = frame[col]
+        bad = values.map(lambda v: isinstance(v, str) and v.startswith(FORMULA_START))
+        for _, r in frame[bad].iterrows():
+            out.add(r["_sheet"], int(r["_row"]), col, f"'{str(r[col])[:40]}' starts with '{r[col][0]}'"
+                    .replace("\t", "\\t").replace("\r", "\\r"),
+                    "text that does not start with =, +, -, @, a tab or a return (a spreadsheet "
+                    "would run it as a formula)")
+
+
 def _check_frame(name: str, frame: pd.DataFrame, scenario: Scenario | None, today: dt.date,
                  out: Collector, warnings: list[str]) -> None:
     spec = RECORD_SHEETS[name]
+    _check_text(name, frame, out)
     # the same key twice across files (within one sheet the reader already refused it)
     if len(frame) and frame["_sheet"].nunique() > 1:
         dup = frame[frame.duplicated(list(spec.key), keep=False)]
@@ -472,7 +500,7 @@ def record_files(engine, paths: list[str | Path | tuple[str, bytes]], *, scenari
                             "the recorded value, or `record --replace` to replace it (the old value "
                             "is kept in the audit trail)"))
         if conflicts:
-            raise RecordError(conflicts, "The record file conflicts with what is recorded: it")
+            raise RecordConflict(conflicts, "The record file conflicts with what is recorded: it")
         if not result.changed:
             return result
         n_added = sum(c.added for c in result.counts.values())

@@ -189,3 +189,29 @@ FACT_TABLES = {
     "generation_history": GenerationRecord.__table__,
     "coal_quality_history": LabResult.__table__,
 }
+
+
+# --------------------------------------------------------------------------- people (rev 0003)
+
+
+class User(Base):
+    """A person (or a station system) who may use the dashboard and its HTTP interface.
+    Only a slow salted hash of the password is kept (`reagentplan.record.users`)."""
+
+    __tablename__ = "users"
+    __table_args__ = (UniqueConstraint("name", name="uq_users_name"),)
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(NAME)
+    role: Mapped[str] = mapped_column(String(20))
+    password_hash: Mapped[str] = mapped_column(String(300))
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime)
+    password_changed_at: Mapped[dt.datetime] = mapped_column(DateTime)
+
+
+class AppSecret(Base):
+    """Random keys the dashboard needs to share across restarts and processes (the key
+    that signs its session cookies), made on first use."""
+
+    __tablename__ = "app_secrets"
+    name: Mapped[str] = mapped_column(String(40), primary_key=True)
+    value: Mapped[str] = mapped_column(String(200))

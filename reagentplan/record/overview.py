@@ -5,6 +5,7 @@ the record's library functions; the dashboard draws them."""
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from dataclasses import dataclass
 
@@ -13,6 +14,7 @@ import sqlalchemy as sa
 
 from ..scenario import Scenario
 from .asof import RecordFrames, load_record
+from .models import Import
 from .review import Review, review
 from .versions import PM, act_first, diff_plans, load_plan, plan_ids
 
@@ -30,6 +32,8 @@ class Overview:
     #: None with ``calibration_message`` saying why there is none
     calibration: object | None = None
     calibration_message: str = ""
+    #: the newest imports: id, file_name, recorded_at, recorded_by, added, replaced
+    imports: pd.DataFrame = dataclasses.field(default_factory=pd.DataFrame)
 
 
 def weekly_against_plan(engine, record: RecordFrames, ids: list[int]) -> pd.DataFrame:
@@ -70,7 +74,7 @@ def overview(engine, scenario: Scenario, until: dt.date | None = None) -> Overvi
     compared = None
     if ids:
         p = load_plan(engine, ids[-1])
-        in_force = {"id": p.id, "as_of": p.as_of, "created_at": p.created_at,
+        in_force = {"id": p.id, "as_of": p.as_of, "created_at": p.created_at, "created_by": p.created_by,
                     "total_cost": p.summary.get("total_cost"), "start_date": p.start_date,
                     "horizon_days": p.horizon_days}
         if len(ids) >= 2:
@@ -81,7 +85,7 @@ def overview(engine, scenario: Scenario, until: dt.date | None = None) -> Overvi
     rv = review(engine, scenario, record, until)
     cal, message = record_calibration(scenario, record, until)
     return Overview(in_force, rv, weekly_against_plan(engine, record, ids), changes, first, compared, record,
-                    cal, message)
+                    cal, message, recent_imports(engine))
 
 
 def record_calibration(scenario: Scenario, record: RecordFrames, until: dt.date | None = None):
@@ -94,3 +98,14 @@ def record_calibration(scenario: Scenario, record: RecordFrames, until: dt.date 
         return calibrate(scenario, record, last=until), ""
     except RecordError as exc:
         return None, "; ".join(f"{p.found}: {p.expected}" if p.expected else str(p.found) for p in exc.problems)
+
+
+def recent_imports(engine, limit: int = 20) -> pd.DataFrame:
+    """The newest imports, newest first: who recorded which file, when, and how many
+    rows it added or replaced."""
+    t = Import.__table__
+    with engine.connect() as conn:
+        rows = conn.execute(sa.select(t.c.id, t.c.file_name, t.c.recorded_at, t.c.recorded_by, t.c.added,
+                                      t.c.replaced).order_by(t.c.id.desc()).limit(limit)).all()
+    return pd.DataFrame([tuple(r) for r in rows],
+                        columns=["id", "file_name", "recorded_at", "recorded_by", "added", "replaced"])

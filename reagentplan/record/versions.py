@@ -56,8 +56,9 @@ def _py(v):
 def store_plan(engine, *, summary: dict, movements: pd.DataFrame, inventory: pd.DataFrame,
                workbook_bytes: bytes, workbook_name: str, as_of: dt.date | None,
                start_date: dt.date, horizon_days: int, finger: str,
-               last_import_id: int | None) -> int:
-    """Store one plan version (one transaction); returns its id."""
+               last_import_id: int | None, who: str | None = None) -> int:
+    """Store one plan version (one transaction); returns its id.  ``who`` made it
+    (default: the operating-system user)."""
     require_current(engine)
     sha = hashlib.sha256(workbook_bytes).hexdigest()
     with write_transaction(engine) as conn:
@@ -65,7 +66,7 @@ def store_plan(engine, *, summary: dict, movements: pd.DataFrame, inventory: pd.
             conn.execute(sa.insert(WB).values(sha256=sha, file_name=workbook_name[:500],
                                               content=workbook_bytes))
         plan_id = conn.execute(sa.insert(PV).values(
-            created_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None), created_by=_user(),
+            created_at=dt.datetime.now(dt.timezone.utc).replace(tzinfo=None), created_by=who or _user(),
             as_of=as_of, start_date=start_date, horizon_days=horizon_days, workbook_sha256=sha,
             fingerprint=finger, last_import_id=last_import_id, status=str(summary.get("status"))[:200],
             total_cost=float(summary.get("total_cost") or 0.0),
@@ -104,6 +105,7 @@ class StoredPlan:
     summary: dict
     movements: pd.DataFrame
     inventory: pd.DataFrame | None = None
+    created_by: str | None = None
 
     @property
     def end_date(self) -> dt.date:
@@ -132,7 +134,24 @@ def load_plan(engine, plan_id: int, inventory: bool = False) -> StoredPlan:
     for c in ("date", "order_by"):
         mv[c] = pd.to_datetime(mv[c])
     return StoredPlan(v["id"], v["as_of"], v["start_date"], v["horizon_days"], v["created_at"],
-                      v["workbook_sha256"], json.loads(v["summary_json"]), mv, inv)
+                      v["workbook_sha256"], json.loads(v["summary_json"]), mv, inv, v["created_by"])
+
+
+def latest_summary(engine) -> dict | None:
+    """The plan in force (the newest stored version) as its ``summary.json`` says it,
+    with ``plan_id``, ``created_at`` and ``created_by``; None when the record holds no
+    plan."""
+    require_current(engine)
+    with engine.connect() as conn:
+        v = conn.execute(sa.select(PV.c.id, PV.c.created_at, PV.c.created_by, PV.c.summary_json)
+                         .order_by(PV.c.id.desc()).limit(1)).first()
+    if v is None:
+        return None
+    summary = json.loads(v.summary_json)
+    summary["plan_id"] = int(v.id)
+    summary["created_at"] = v.created_at.isoformat(timespec="seconds") + "Z"
+    summary["created_by"] = v.created_by
+    return summary
 
 
 def load_workbook_bytes(engine, sha256: str) -> bytes:
