@@ -238,9 +238,11 @@ def store_figure(bands: pd.DataFrame, store: str, headline: dict | None = None,
     return fig
 
 
-def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days: int) -> go.Figure:
-    """The permit's rolling SO2 average against its limit, the daily value behind it,
-    and the replay's chance of being over the limit."""
+def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days: int,
+               margin_pct: float = 0.0) -> go.Figure:
+    """The permit's rolling SO2 average against its limit (and the limit less the
+    compliance margin ``margin_pct`` [%]), the daily value behind it, and the replay's
+    chance of being over the limit."""
     fig = make_subplots(specs=[[{"secondary_y": True}]])
     fig.add_trace(go.Scatter(x=balance["date"], y=balance["so2_kg_per_gj"], mode="lines",
                              line=dict(color="#9fb3bf", width=1), name="daily",
@@ -253,6 +255,11 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
         fig.add_trace(go.Scatter(x=balance["date"], y=limit, mode="lines",
                                  line=dict(color=CAPACITY, width=1.8, dash="dash"), name="permit limit",
                                  hovertemplate="limit %{y:.4f} kg/GJ<extra></extra>"), secondary_y=False)
+        if margin_pct > 0:
+            fig.add_trace(go.Scatter(x=balance["date"], y=limit * (1 - margin_pct / 100), mode="lines",
+                                     line=dict(color=CAPACITY, width=1.2, dash="dot"),
+                                     name="limit less the compliance margin",
+                                     hovertemplate="margin line %{y:.4f} kg/GJ<extra></extra>"), secondary_y=False)
     if risk_frame is not None and "p_so2_over_limit" in risk_frame:
         lime = risk_frame[risk_frame["store"] == "limestone"]
         fig.add_trace(go.Scatter(x=lime["date"], y=100 * lime["p_so2_over_limit"], mode="lines",
@@ -309,6 +316,11 @@ def removal_figure(days: pd.DataFrame, dips: list[dict] | None = None, avg_days:
         fig.add_trace(go.Scatter(x=x, y=limit, mode="lines", name="permit limit",
                                  line=dict(color=CAPACITY, width=1.8, dash="dash"),
                                  hovertemplate="permit limit %{y:.4f} kg/GJ<extra></extra>"), row=2, col=1)
+        line = days.get("so2_margin_line_kg_per_gj")
+        if line is not None and (line < limit - 1e-12).any():
+            fig.add_trace(go.Scatter(x=x, y=line, mode="lines", name="limit less the compliance margin",
+                                     line=dict(color=CAPACITY, width=1.2, dash="dot"),
+                                     hovertemplate="margin line %{y:.4f} kg/GJ<extra></extra>"), row=2, col=1)
     for d in dips or []:
         a = pd.Timestamp(d["first_date"]) - pd.Timedelta(hours=12)
         b = pd.Timestamp(d["last_date"]) + pd.Timedelta(hours=12)

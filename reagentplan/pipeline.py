@@ -95,8 +95,9 @@ def plan_with_futures(scenario: Scenario, fut, settings: PlanSettings | None = N
     if fut is not None:
         flows = {store: fut.flows[q] for store, q in STORE_FLOWS.items()
                  if store in scenario.storage and q in fut.flows}
-    plan = make_plan(scenario, balance, flows=flows, progress=progress, previous=previous,
-                     **settings.solve_options())
+    permit_flows = None if fut is None else fut.flows.get("so2_emitted_t")
+    plan = make_plan(scenario, balance, flows=flows, permit_flows=permit_flows, progress=progress,
+                     previous=previous, **settings.solve_options())
     risk = None
     if fut is not None:
         from .schedule.plan import flows_at_plan_stone

@@ -84,6 +84,9 @@ PLAUSIBLE: dict[str, Range] = {
                              "pulverised-coal ash runs 1-10 % (common practice)", what="LOI of the fly ash"),
     "so2_limit_kg_per_gj": Range((0, 50), (0.02, 1.3), "40 CFR 60 Subpart Da 1.2 lb/MMBtu = 0.52 kg/GJ, "
                                  "MATS 0.2 lb/MMBtu = 0.086 kg/GJ (from memory)", what="permit SO2 limit"),
+    "so2_limit_margin_pct": Range((0, 50), (0, 20), "operators keep a few percent of the limit in hand "
+                                  "against the monitor's and the estimate's error (common practice, no "
+                                  "source)", what="compliance margin under the permit limit"),
     # scrubber (for cfb: the bed)
     "removal_pct": Range((0, 100), (90, 99.5), "wet limestone forced-oxidation scrubbers remove 95-99 % "
                          "(common practice, no source); a fluidised bed captures 70-98 % in the bed "
@@ -281,6 +284,10 @@ PLANT = Sheet(
               note="permit SO2 limit on heat input; empty = none"),
         Field("so2_limit_avg_days", "integer", False, 30, 1, 366, unit="d",
               note="rolling averaging period of the limit"),
+        Field("so2_limit_margin_pct", "number", False, 5.0, 0, 50, unit="%",
+              note="compliance margin: where the plan chooses the removal it keeps the rolling average this "
+                   "share under the limit, also in its worse futures (the balance estimates emissions; the "
+                   "stack monitor measures them)"),
         Field("shortage_penalty_per_t", "number", False, 1000.0, 0, None, unit="money/t",
               note="cost of a tonne below safety stock"),
         Field("overflow_penalty_per_t", "number", False, 1000.0, 0, None, unit="money/t",

@@ -148,12 +148,15 @@ def describe_lever(summary: dict) -> list[str]:
         lines.append(f"  SO2 removal chosen: mean {r['mean_pct']:.2f} %, lowest {r['lowest_pct']:.2f} % "
                      f"(setpoint {r['setpoint_pct']:g} %, range {r['min_pct']:g}-{r['max_pct']:g} %); "
                      f"{r['days_below_setpoint']} day(s) below the setpoint, "
-                     f"{r['days_above_setpoint']} above")
+                     f"{r['days_above_setpoint']} above"
+                     + (f" (saving {r['above_setpoint_saves']:,.0f} against the setpoint on those days)"
+                        if r.get("above_setpoint_saves") else ""))
         dips = r.get("dips") or []
         for d in dips[:DIPS_SHOWN]:
             when = (d["first_date"] if d["first_date"] == d["last_date"]
                     else f"{d['first_date']} to {d['last_date']}")
-            lines.append(f"    - below the setpoint {when}, down to {d['lowest_pct']:.2f} %; "
+            saves = f"; saves {d['saves']:,.0f}" if d.get("saves") is not None else ""
+            lines.append(f"    - below the setpoint {when}, down to {d['lowest_pct']:.2f} %{saves}; "
                          f"cause: {d['cause']}")
         if len(dips) > DIPS_SHOWN:
             lines.append(f"    ... and {len(dips) - DIPS_SHOWN} more in summary.json")

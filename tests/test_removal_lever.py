@@ -34,7 +34,8 @@ def one_day_station(days=7, so2_t=100.0, allowed_t=3.0, price_per_t=28.0, allowa
     """A station whose scrubber sees ``so2_t`` of SO2 a day (2 % S coal, 95 % of it to SO2,
     IUPAC molar masses), a permit of ``allowed_t`` a day (averaged over one day), stone of
     94 % CaCO3 whose delivered cost is ``price_per_t`` + 2 (freight 2,000 per 1,000 t
-    train), gypsum landfilled at no cost, plenty of stone in the silo."""
+    train), gypsum landfilled at no cost, plenty of stone in the silo; no compliance margin
+    unless a test sets one."""
     s = minimal_sheets(days=days)
     so2_per_t_coal = 0.02 * 0.95 * M("SO2") / M("S")
     coal = so2_t / so2_per_t_coal
@@ -44,6 +45,7 @@ def one_day_station(days=7, so2_t=100.0, allowed_t=3.0, price_per_t=28.0, allowa
     s["generation"] = [s["generation"][0]] + [[START + dt.timedelta(days=i), "U1", mwh] for i in range(days)]
     set_kv(s, "plant", "so2_limit_kg_per_gj", allowed_t * 1000 / heat)
     set_kv(s, "plant", "so2_limit_avg_days", 1)
+    set_kv(s, "plant", "so2_limit_margin_pct", 0)
     set_kv(s, "scrubber", "removal_pct", setpoint)
     if removal is not None:
         set_kv(s, "scrubber", "removal_min_pct", removal[0])
@@ -68,17 +70,29 @@ def test_worked_example_cheapest_removal():
     - each point of removal takes 1 t more SO2 out, which needs 1.03 × 100.086 / 64.064
       = 1.6092 t CaCO3 (IUPAC molar masses, via molmass), i.e. 1.6092 / 0.94 = 1.7119 t of
       94 % stone at 30 per t delivered: 51.36 per point;
-    - each point saves one allowance (1 t SO2).  At 40 per allowance a point costs more
-      than it saves: the plan runs at the permit's 97 %.  At 80 it saves more: 99 %.
-    - Without a permit limit or allowances, the stone alone decides: 95 %.
+    - each point saves one allowance (1 t SO2);
+    - moving the removal a point from the 98 % setpoint for a day costs the model a quarter
+      of the stone of that point (`penalties.SETPOINT_MOVE_SHARE`): 12.84 per point-day;
+    - with no compliance margin: at 30 per allowance a point down saves 51.36 − 30 = 21.36,
+      more than 12.84: the plan runs at the permit's 97 %.  At 40 it saves 11.36, less than
+      12.84: a saving not worth naming, the plan stays at the 98 % setpoint.  At 80 a point
+      up saves 80 − 51.36 = 28.64: 99 %;
+    - with a 5 % compliance margin the permit line is 0.95 × 3 = 2.85 t: at 30 the plan
+      runs at 97.15 %;
+    - without a permit limit or allowances, the stone alone decides: 95 %.
     (The gypsum is landfilled at no cost, so it weighs nothing either way.)"""
+    from reagentplan.schedule.penalties import SETPOINT_MOVE_SHARE
+
     per_point = 1.03 * M("CaCO3") / M("SO2") / 0.94 * 30.0
     assert per_point == pytest.approx(51.36, abs=0.01)
-    for price, expected in ((40.0, 97.0), (80.0, 99.0)):
-        scn = load_scenario(workbook_bytes(one_day_station(allowance=price)))
+    assert SETPOINT_MOVE_SHARE * per_point == pytest.approx(12.84, abs=0.01)
+    for margin, price, expected in ((0, 30.0, 97.0), (0, 40.0, 98.0), (0, 80.0, 99.0), (5, 30.0, 97.15)):
+        s = one_day_station(allowance=price)
+        set_kv(s, "plant", "so2_limit_margin_pct", margin)
+        scn = load_scenario(workbook_bytes(s))
         r = make_plan(scn, firm_days=7)
         assert r.balance["so2_formed_t"].to_numpy() == pytest.approx(100.0, rel=1e-4)  # periodictable and molmass differ in the 5th digit of S
-        assert r.plan.removal == pytest.approx(np.full(7, expected), abs=1e-3), price
+        assert r.plan.removal == pytest.approx(np.full(7, expected), abs=1e-3), (margin, price)
         assert r.balance["removal_pct"].to_numpy() == pytest.approx(np.full(7, expected), abs=1e-3)
     s = one_day_station()
     set_kv(s, "plant", "so2_limit_kg_per_gj", None)

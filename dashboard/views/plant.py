@@ -130,7 +130,8 @@ def content(run) -> dict:
         STORES: stores,
         LEVER: lever_panel(run),
         SO2: figures.so2_figure(plan.balance, risk.frame if risk is not None else None,
-                                scn.plant.so2_limit_avg_days),
+                                scn.plant.so2_limit_avg_days,
+                                scn.plant.so2_limit_margin_pct if plan.plan.removal is not None else 0.0),
         BREACHES: table(breaches, [
             ("store", "Store or contract", str, False),
             ("kind", "What", str, False),

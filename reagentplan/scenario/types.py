@@ -33,6 +33,8 @@ class Plant:
     so2_limit_avg_days: int
     shortage_penalty_per_t: float
     overflow_penalty_per_t: float
+    #: share of the permit limit the plan keeps the rolling average under [%]
+    so2_limit_margin_pct: float = 5.0
 
     @property
     def dates(self) -> pd.DatetimeIndex:

@@ -179,7 +179,8 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
     """Each run of days the plan runs the scrubber below its setpoint, with the lowest
     removal [%] and the cause in words: where the plan's own deliveries, at the setpoint,
     would take the limestone below safety stock within the run or the three days after
-    it, the dip rides out low limestone (a late or missing train); where only a train of
+    it or before the next delivery (and three days after), the dip rides out low limestone
+    (a late or missing train); where only a train of
     the last ``late_days`` days coming late would take it there, the dip holds stock
     against a late train; otherwise running lower is simply cheaper than the stone (and
     allowances) it saves, inside the permit.
@@ -209,8 +210,12 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
         without_late = lime
     dates = scenario.dates
     out = []
+    arrivals = np.flatnonzero(sum((at_setpoint.tonnes(l) for l in lanes if l.kind == "supply"),
+                                  np.zeros(len(lime))) > 0)
     for a, b in runs(low):
-        end = min(b + 3, len(lime) - 1)
+        # the stone saved counts until the next delivery comes (and three days after)
+        nxt = arrivals[arrivals > b]
+        end = min(max(b, int(nxt[0]) if len(nxt) else b) + 3, len(lime) - 1)
         worst = int(a + np.argmin(lime[a:end + 1]))
         short = lime[worst] < safety - 1e-6 or unmet[a:end + 1].sum() > 1e-6
         if short:
@@ -229,9 +234,34 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
         out.append({"first_date": f"{dates[a]:%Y-%m-%d}", "last_date": f"{dates[b]:%Y-%m-%d}",
                     "lowest_pct": round(float(plan.removal[a:b + 1].min()), 3),
                     "setpoint_pct": round(float(setpoint[a]), 3), "cause": cause,
+                    "saves": round(setpoint_saving(scenario, lanes, plan, balance_of, setpoint, slice(a, b + 1)), 2),
                     "kind": "low limestone" if short else ("late train" if "late train" in cause
                                                             else "cheaper")})
     return out
+
+
+def setpoint_saving(scenario: Scenario, lanes, plan, balance_of, setpoint: np.ndarray, days) -> float:
+    """What running away from the setpoint on ``days`` (a slice or a mask) saves [money]: the plan priced by
+    `evaluate` with the removal at the setpoint on those days, less the plan as it is (the
+    same deliveries and shipments, the SO2 emitted more or less covered by allowances
+    bought or sold that day; a shortfall or permit excess that the move avoids counts at
+    its penalty)."""
+    from dataclasses import replace as dc_replace
+
+    from .evaluate import evaluate
+
+    removal = plan.removal.copy()
+    removal[days] = setpoint[days]
+    other = dc_replace(plan, removal=removal)
+    bal, bal_other = balance_of(plan), balance_of(other)
+    if plan.bought_t is not None:
+        # the SO2 the setpoint emits more (or less) is covered by allowances bought (or
+        # sold) that day, at the sheet's prices
+        extra = bal_other["so2_emitted_t"].to_numpy(float) - bal["so2_emitted_t"].to_numpy(float)
+        other = dc_replace(other, bought_t=plan.bought_t + np.clip(extra, 0, None),
+                           sold_t=plan.sold_t + np.clip(-extra, 0, None))
+    return float(evaluate(scenario, bal_other, lanes, other).total_cost
+                 - evaluate(scenario, bal, lanes, plan).total_cost)
 
 
 def lever_days(result) -> pd.DataFrame | None:
@@ -244,7 +274,8 @@ def lever_days(result) -> pd.DataFrame | None:
     ``removal_max_pct`` (the range, only where the plan chooses the removal); ``setpoint_pct``
     (the fixed removal with its period settings [%]); ``so2_emitted_t`` [t];
     ``so2_rolling_kg_per_gj`` (the permit's rolling average [kg/GJ]);
-    ``so2_limit_kg_per_gj`` (NaN without a limit).  Straight from the plan's balance."""
+    ``so2_limit_kg_per_gj`` (NaN without a limit); ``so2_margin_line_kg_per_gj`` (the limit
+    less the compliance margin, ``so2_limit_margin_pct``).  Straight from the plan's balance."""
     scn = result.scenario
     chosen = result.plan.removal is not None
     if not chosen and scn.allowance_days() is None:
@@ -259,6 +290,7 @@ def lever_days(result) -> pd.DataFrame | None:
     out["setpoint_pct"] = removal_setpoint(scn)
     for col in ("so2_emitted_t", "so2_rolling_kg_per_gj", "so2_limit_kg_per_gj"):
         out[col] = bal[col].to_numpy(float)
+    out["so2_margin_line_kg_per_gj"] = out["so2_limit_kg_per_gj"] * (1 - scn.plant.so2_limit_margin_pct / 100)
     return out
 
 

@@ -49,7 +49,8 @@ from ..scenario import Scenario
 from .evaluate import PRODUCTION, DailyPlan, shortfall_rate
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, cheapest_delivered_cost, cheapest_disposal_cost, horizon_months
 from .penalties import (ALLOWANCE_SHORT_PENALTY_FACTOR, CHANGE_COST_PER_LOAD, EMPTY_PENALTY_FACTOR, GUARD_WEIGHT,
-                        LATE_TRAIN_DAYS, PERMIT_PENALTY_FACTOR, SILO_SAFETY_MARGIN)
+                        LATE_TRAIN_DAYS, PERMIT_MARGIN_FACTOR, PERMIT_PENALTY_FACTOR, SETPOINT_MOVE_SHARE,
+                        SILO_SAFETY_MARGIN)
 from .quality import SiloLots
 from .terms import AllowanceTerms, end_caco3_value
 
@@ -196,7 +197,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                to_days: bool = True, lever=None, allow=None, keep: dict | None = None,
                change_cost: float = CHANGE_COST_PER_LOAD, late_days: int = LATE_TRAIN_DAYS,
                work: "WorkLimits | None" = None, silo_lots: bool = False,
-               limestone_end_per_t: float | None = None) -> SolveOutcome:
+               limestone_end_per_t: float | None = None, permit_guard: np.ndarray | None = None) -> SolveOutcome:
     """Solve the firm-window + weekly-outlook model, then place each outlook week's loads
     on its days with a daily model whose weekly totals are those of the first solve
     (arrivals exactly, sales at most, landfill free within its limits), so the daily
@@ -205,7 +206,8 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     ``work`` bounds each solve by deterministic work (`WorkLimits`); ``time_limit`` [s] is
     then only a safety net, and `SolveOutcome.clock_cut` says when it cut in.
     ``silo_lots`` solves the silo's relaxation (`quality.SiloLots`) instead of the
-    linearised silo; ``limestone_end_per_t`` [money/t of stone] values the limestone left."""
+    linearised silo; ``limestone_end_per_t`` [money/t of stone] values the limestone left;
+    ``permit_guard`` per day, the futures' worse rolling SO2 over the plan's (`_permit`)."""
     work = work or WorkLimits()
     n = len(scenario.dates)
     t0 = time.perf_counter()
@@ -220,7 +222,7 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
     problem = Problem(scenario, balance, lanes, firm, guard, periods, solver, chem=chem, lin=lin,
                       lever=lever, allow=allow, fixed=fixed, keep=keep, change_cost=change_cost,
                       late_days=late_days, margin_days=firm_days, silo_lots=silo_lots,
-                      limestone_end_per_t=limestone_end_per_t)
+                      limestone_end_per_t=limestone_end_per_t, permit_guard=permit_guard)
     first = solve_problem(problem, time_limit=time_limit, gap=gap, hint=hint, scale=scale,
                           progress=progress, label=f"plan ({solver})", node_limit=work.nodes)
     clock_cut = first.clock_cut
@@ -458,6 +460,7 @@ class Problem:
     margin_days: int | None = None
     silo_lots: bool = False
     limestone_end_per_t: float | None = None
+    permit_guard: np.ndarray | None = None
     # ---- built by formulate
     model: mathopt.Model = field(init=False)
     pid: np.ndarray = field(init=False)
@@ -549,6 +552,7 @@ def formulate(p: Problem) -> Problem:
               + end-stock value + firm orders' cost
     """
     _removal_variables(p)
+    _setpoint_move(p)
     for lane in p.lanes:
         _lane_variables(p, lane)
         _change_cost(p, lane)
@@ -579,6 +583,28 @@ def _removal_variables(p: Problem) -> None:
     it (`lever.RemovalLever`): every balance column is then intercept + slope × r[k]."""
     if p.lever is not None:
         p.r = [p.model.add_variable(lb=p.lever.lo, ub=p.lever.hi, name=f"r[{k}]") for k in range(p.P)]
+
+
+def _setpoint_move(p: Problem) -> None:
+    """Setpoint: moving the removal away from the setpoint R_k [%] (the period's mean)
+    costs c_k per %-point, up[k] ≥ r[k] − R_k, dn[k] ≥ R_k − r[k] (rows ``setpoint_up[k]``,
+    ``setpoint_dn[k]``), c_k = `penalties.SETPOINT_MOVE_SHARE` × Σ_{d∈k} |∂stone_d/∂r| × the
+    cheapest delivered stone [money/t]: the plan leaves the operators' setpoint only for a
+    saving worth naming.  Only in the model (`evaluate` leaves it out)."""
+    if p.r is None:
+        return
+    lever = p.lever
+    setpoint = p.per_period(np.asarray(lever.setpoint, float)) / p.days_in
+    per_point = p.per_period(np.abs(lever.slope["limestone_t"])) * cheapest_delivered_cost(p.scenario)
+    for k in range(p.P):
+        c = SETPOINT_MOVE_SHARE * float(per_point[k])
+        if c <= 0:
+            continue
+        up = p.model.add_variable(lb=0, ub=lever.hi - lever.lo, name=f"up[{k}]")
+        dn = p.model.add_variable(lb=0, ub=lever.hi - lever.lo, name=f"dn[{k}]")
+        p.row(up >= p.r[k] - float(setpoint[k]), f"setpoint_up[{k}]")
+        p.row(dn >= float(setpoint[k]) - p.r[k], f"setpoint_dn[{k}]")
+        p.cost.append(c * (up + dn))
 
 
 def _lane_variables(p: Problem, lane: Lane) -> None:
@@ -984,11 +1010,18 @@ def _silo_quality(p: Problem) -> None:
 
 def _permit(p: Problem) -> None:
     """Permit: where the plan chooses the removal, for each day d the SO2 emitted over the
-    averaging period D ending on d (affine in the removals r[k] of the periods it spans)
-    is at most the limit E [kg/GJ] × their heat input H [GJ] / 1000, plus a priced excess:
-    Σ_{t=d−D+1..d} (a_t + b_t r[k(t)]) − permit[d] ≤ E H_{d−D+1..d} / 1000 (``permit[d]``),
-    permit [t] at `penalties.PERMIT_PENALTY_FACTOR` × p_short; days that keep the limit
-    even at the worst removal get no row."""
+    averaging period D ending on d (affine in the removals r[k] of the periods it spans),
+    E_d(r) = Σ_{t=d−D+1..d} (a_t + b_t r[k(t)]) [t], is held
+
+    - under the limit E [kg/GJ] × their heat input H [GJ] / 1000, plus a priced excess:
+      E_d(r) − permit[d] ≤ E H / 1000 (``permit[d]``), permit [t] at
+      `penalties.PERMIT_PENALTY_FACTOR` × p_short;
+    - under the compliance margin m (``so2_limit_margin_pct``), also in the guarded worse
+      future (g_d ≥ 1: the futures' (1 − risk level) quantile of the rolling emissions over
+      the plan's own, ``permit_guard``): g_d E_d(r) − margin[d] ≤ (1 − m) E H / 1000
+      (``permit_margin[d]``), margin [t] at `penalties.PERMIT_MARGIN_FACTOR` × p_short.
+
+    Days that keep a row even at the worst removal get no row."""
     lever = p.lever
     if p.r is None or lever.limit_kg_per_gj is None:
         return
@@ -999,6 +1032,8 @@ def _permit(p: Problem) -> None:
     c_ic, c_sl = np.r_[0.0, np.cumsum(ic)], np.r_[0.0, np.cumsum(sl)]
     c_heat = np.r_[0.0, np.cumsum(lever.heat_gj)]
     penalty = p.scenario.plant.shortage_penalty_per_t
+    margin = float(getattr(p.scenario.plant, "so2_limit_margin_pct", 0.0) or 0.0) / 100
+    guard = np.ones(n) if p.permit_guard is None else np.maximum(np.asarray(p.permit_guard, float), 1.0)
     for d in range(n):
         lo_d = max(0, d - D + 1)
         allowed = lever.limit_kg_per_gj * (c_heat[d + 1] - c_heat[lo_d]) / 1000.0
@@ -1008,12 +1043,17 @@ def _permit(p: Problem) -> None:
             a, b = max(periods[k][0], lo_d), min(periods[k][1], d)
             coefs[k] = c_sl[b + 1] - c_sl[a]
         worst = const + sum(c * (lever.lo if c < 0 else lever.hi) for c in coefs.values())
-        if worst <= allowed + 1e-9:
-            continue
-        over = p.model.add_variable(lb=0, ub=max(worst - allowed, 0.0) + 1.0, name=f"permit[{d}]")
-        p.row(const + sum((float(c) * p.r[k] for k, c in coefs.items()), 0.0) - over <= allowed,
-              f"permit[{d}]")
-        p.cost.append(PERMIT_PENALTY_FACTOR * penalty * over)
+        emitted = const + sum((float(c) * p.r[k] for k, c in coefs.items()), 0.0)
+        if worst > allowed + 1e-9:
+            over = p.model.add_variable(lb=0, ub=max(worst - allowed, 0.0) + 1.0, name=f"permit[{d}]")
+            p.row(emitted - over <= allowed, f"permit[{d}]")
+            p.cost.append(PERMIT_PENALTY_FACTOR * penalty * over)
+        if margin > 0 or guard[d] > 1.0:
+            g, line = float(guard[d]), (1.0 - margin) * allowed
+            if g * worst > line + 1e-9:
+                inside = p.model.add_variable(lb=0, ub=max(g * worst - line, 0.0) + 1.0, name=f"margin[{d}]")
+                p.row(g * emitted - inside <= line, f"permit_margin[{d}]")
+                p.cost.append(PERMIT_MARGIN_FACTOR * penalty * inside)
 
 
 def _allowances(p: Problem) -> None:

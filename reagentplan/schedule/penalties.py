@@ -31,6 +31,19 @@ CONTRACT_PENALTY_PER_T = 25.0
 #: empty one.
 PERMIT_PENALTY_FACTOR = 5.0
 
+#: A tonne-day of SO2 inside the permit's compliance margin (over limit × (1 − margin), not
+#: over the limit), in the plan's own case or its guarded worse futures, costs this many
+#: times the shortage penalty per tonne [-]: far above what a point of removal costs in
+#: stone, so the plan leaves the margin only where no removal the scrubber can run keeps it.
+PERMIT_MARGIN_FACTOR = 1.0
+
+#: Share of the stone a point of removal costs that moving the removal a point away from
+#: its setpoint for a day costs in the model [-] (not a cost of the plan: `evaluate` leaves
+#: it out): the operators' setpoint is the default, and the plan leaves it only where that
+#: saves more than a quarter of the stone of every point moved, a saving worth naming; a
+#: near tie between stone and allowances keeps the setpoint.
+SETPOINT_MOVE_SHARE = 0.25
+
 #: A tonne of SO2 emitted without an allowance (a tonne-day of negative holding) costs
 #: this many times the shortage penalty per tonne [-].
 ALLOWANCE_SHORT_PENALTY_FACTOR = 5.0
@@ -78,6 +91,10 @@ TABLE: tuple[Penalty, ...] = (
             "below a contract's monthly minimum, when it names no shortfall_per_t"),
     Penalty("PERMIT_PENALTY_FACTOR", PERMIT_PENALTY_FACTOR, "x shortage penalty per t-day",
             "SO2 over the permit's rolling limit"),
+    Penalty("PERMIT_MARGIN_FACTOR", PERMIT_MARGIN_FACTOR, "x shortage penalty per t-day",
+            "SO2 inside the compliance margin (plan or guarded futures)"),
+    Penalty("SETPOINT_MOVE_SHARE", SETPOINT_MOVE_SHARE, "x stone cost of a point",
+            "moving the removal a point away from its setpoint for a day"),
     Penalty("ALLOWANCE_SHORT_PENALTY_FACTOR", ALLOWANCE_SHORT_PENALTY_FACTOR, "x shortage penalty per t-day",
             "SO2 emitted without an allowance"),
     Penalty("GUARD_WEIGHT", GUARD_WEIGHT, "x shortage/overflow penalty",

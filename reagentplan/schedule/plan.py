@@ -22,7 +22,7 @@ from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLim
                     end_caco3_value, solve_plan)
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
-                    removal_setpoint)
+                    removal_setpoint, setpoint_saving)
 from .quality import SiloChemistry
 from .settle import earliest_departures
 
@@ -59,6 +59,24 @@ def guard_margins(balance: pd.DataFrame, flows: dict[str, np.ndarray] | None,
         q = np.quantile(cum, 1 - risk_level, axis=0)
         out[store] = np.clip(q - np.cumsum(balance[column].to_numpy(float)), 0, None)
     return out
+
+
+def permit_guard(balance: pd.DataFrame, emitted_futures: np.ndarray | None, risk_level: float,
+                 avg_days: int) -> np.ndarray | None:
+    """Per day, how much worse the permit's rolling SO2 is in the guarded future [-]: the
+    (1 − ``risk_level``) quantile over the futures (futures × days [t/d] at the setpoint)
+    of the SO2 emitted over the ``avg_days`` ending that day, over the deterministic
+    balance's, never below 1.  The model holds the plan's rolling emissions times this
+    under the compliance margin (`model._permit`), so the chance of the rolling average
+    crossing the margin line on a day is at most about ``risk_level``."""
+    if emitted_futures is None:
+        return None
+    from ..balance import trailing_sum
+
+    e = np.asarray(emitted_futures, dtype=float)
+    det = trailing_sum(balance["so2_emitted_t"].to_numpy(float), avg_days)
+    q = np.quantile(trailing_sum(e, avg_days), 1 - risk_level, axis=0)
+    return np.maximum(np.divide(q, det, out=np.ones_like(det), where=det > 1e-9), 1.0)
 
 
 @dataclass
@@ -101,6 +119,8 @@ class PlanResult:
     baseline_balance: pd.DataFrame | None = None
     iterations: list[dict] | None = None
     removal_dips: list[dict] | None = None
+    #: what running above the setpoint saves [money] (`lever.setpoint_saving`)
+    above_setpoint_saves: float | None = None
     stability: dict | None = None
     silo: SiloReport | None = None
 
@@ -153,6 +173,7 @@ class PlanResult:
                               "highest_pct": round(float(r.max()), 3),
                               "days_below_setpoint": int((r < setpoint - 0.01).sum()),
                               "days_above_setpoint": int((r > setpoint + 0.01).sum()),
+                              "above_setpoint_saves": self.above_setpoint_saves,
                               "dips": self.removal_dips or []}
         terms = AllowanceTerms.from_scenario(scn)
         if terms is not None:
@@ -303,7 +324,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
               firm_days: int = PLAN.firm_days, solver: str = PLAN.solver, time_limit: float = PLAN.time_limit,
               gap: float = PLAN.gap, progress: bool = False, previous: pd.DataFrame | None = None,
               change_cost_per_load: float = CHANGE_COST_PER_LOAD,
-              late_days: int = LATE_TRAIN_DAYS, work: WorkLimits | None = None) -> PlanResult:
+              late_days: int = LATE_TRAIN_DAYS, work: WorkLimits | None = None,
+              permit_flows: np.ndarray | None = None) -> PlanResult:
     """Plan a scenario.
 
     Parameters
@@ -318,6 +340,9 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         costs ``change_cost_per_load`` [money] in the model (not in the plan's cost).
     late_days : days a train may come late that the firm window holds stock against
         (`model.LATE_TRAIN_DAYS`; 0: none) [d].
+    permit_flows : sampled futures' SO2 emitted (futures × days) [t/d] at the setpoint;
+        with a removal range and a permit they guard the permit's rolling average
+        (`permit_guard`) as ``flows`` guard the stores.
     time_limit : the wall-clock safety net of the whole plan [s]; the solves are bounded by
         ``work`` (`model.WorkLimits`: nodes, one thread, a fixed seed), so the same inputs
         give the same plan on any machine unless the net cuts in (then the status and
@@ -360,8 +385,12 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     gross = sum(abs(v) for v in base_ev.costs.values())
     t0 = time.perf_counter()
     work = work or WorkLimits()
+    pguard = None
+    if lever is not None and lever.limit_kg_per_gj is not None:
+        pguard = permit_guard(balance, permit_flows, risk_level, lever.avg_days)
     common = dict(firm_days=firm_days, solver=solver, gap=gap, progress=progress, scale=gross, allow=allow,
-                  keep=keep, change_cost=change_cost_per_load, late_days=late_days, work=work)
+                  keep=keep, change_cost=change_cost_per_load, late_days=late_days, work=work,
+                  permit_guard=pguard)
 
     def net() -> float:
         """What is left of the wall-clock safety net [s]."""
@@ -425,6 +454,11 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
         plan_bal, removal if chosen.removal is None else None)
     dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever, late_days)
+    above = None
+    if chosen.removal is not None:
+        sp = removal_setpoint(scenario)
+        up = chosen.removal > sp + 0.01
+        above = round(setpoint_saving(scenario, lanes, chosen, bal_of, sp, up), 2) if up.any() else 0.0
     stability = None
     if keep:
         held = sum(float(v.sum()) for v in keep.values())
@@ -433,7 +467,7 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
         stability = {"change_cost_per_load": change_cost_per_load, "loads_held_in_firm_window": int(held),
                      "of_them_kept_on_their_day": int(kept)}
     return PlanResult(scenario, plan_bal, lanes, chosen, ev, base, base_ev, outcome, breaches,
-                      firm_days, base_bal, iterations, dips, stability, silo)
+                      firm_days, base_bal, iterations, dips, above, stability, silo)
 
 
 #: The causes a saving is split by, and the cost lines of `evaluate` in each; the stock
