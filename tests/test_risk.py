@@ -131,6 +131,31 @@ def test_compliance_limit_is_the_limit_less_the_margin():
     assert compliance_limit(SimpleNamespace(so2_limit_kg_per_gj=None, so2_limit_margin_pct=5.0)) is None
 
 
+def test_outlook_risk_is_kept_apart_from_the_firm_window():
+    """A gypsum store that overflows in every future, but only from day 10 of 20 with a
+    7-day firm window: risk.csv marks each day's window, the ranked "stores at risk"
+    (`top`) hold the firm window only, and the overflow is listed apart as the outlook's
+    indication, from its first day."""
+    s = minimal_sheets(days=20)
+    scn = load_scenario(workbook_bytes(s))
+    plan = make_plan(scn, firm_days=7)
+    flows = deterministic_flows(plan.balance)
+    gyp = np.repeat(flows["gypsum"], 50, axis=0)
+    gyp[:, 10:] *= 20.0  # far more cake than any haul-out takes
+    rr = replay(plan, {"limestone": np.repeat(flows["limestone"], 50, axis=0), "gypsum": gyp})
+    f = rr.frame
+    days = (f["date"] - f["date"].min()).dt.days
+    assert (f.loc[days < 7, "window"] == "firm").all() and (f.loc[days >= 7, "window"] == "outlook").all()
+    g = f[f["store"] == "gypsum"].reset_index(drop=True)
+    assert g["p_over_capacity"].iloc[:7].max() <= 0.05 and g["p_over_capacity"].iloc[-1] == 1.0
+    assert "gypsum" not in {t["store"] for t in rr.top}
+    assert all(t["window"] == "firm" for t in rr.top)
+    out = [t for t in rr.outlook if t["store"] == "gypsum"]
+    first_over = g.loc[g["p_over_capacity"] > 0.05, "date"].min()
+    assert out and out[0]["window"] == "outlook" and out[0]["first_date"] == f"{first_over:%Y-%m-%d}"
+    assert pd.Timestamp(out[0]["first_date"]) >= scn.dates[7]
+
+
 def test_top_risks_name_a_remedy_that_helps(small_run):
     for item in small_run.risk.top:
         assert item["remedy"]
