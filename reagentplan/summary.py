@@ -210,8 +210,9 @@ def describe_risk(run) -> str:
                      f"{t['first_date']}; remedy: {t['remedy']}{after}")
     outlook = getattr(run.risk, "outlook", None) or []
     if outlook:
-        lines.append("  beyond it, in the outlook (an indication only: with a year of movements held "
-                     "fixed every shortfall and surplus adds up, and the outlook is re-planned every week):")
+        lines.append("  beyond it, in the outlook (an indication only: with the movements held fixed over "
+                     "the whole horizon every shortfall and surplus adds up, and the outlook is re-planned "
+                     "every week before it comes):")
         for t in outlook:
             lines.append(f"  - {t['store']}: {100 * t['chance']:.1f} % chance {t['what']} from "
                          f"{t['first_date']} (up to {100 * t['highest_chance']:.0f} %)")
