@@ -111,8 +111,10 @@ def header_content(run, meta: dict) -> list:
     sub = (f"{p.horizon_days} days from {p.start_date:%d %b %Y} to {p.end_date:%d %b %Y} · "
            f"{len(scn.units)} unit{'s' if len(scn.units) != 1 else ''} · plan of "
            f"{meta.get('source', scn.source_name or 'the workbook')}")
-    store_breaches = [b for b in s["breaches"] if b["store"] in scn.storage]
-    contract_breaches = len(s["breaches"]) - len(store_breaches)
+    # the firm window's: the outlook's are re-planned before they come (listed on the plant view)
+    firm = [b for b in s["breaches"] if b.get("window") != "outlook"]
+    store_breaches = [b for b in firm if b["store"] in scn.storage]
+    contract_breaches = len(firm) - len(store_breaches)
     saving = s["baseline_total_cost"] - s["total_cost"]
     at_risk = len(run.risk.top) if run.risk is not None else None
     kpis = [

@@ -26,6 +26,32 @@ def lane_label(name: str) -> str:
     return name.replace("bottom_ash", "bottom ash").replace("fly_ash", "fly ash")
 
 
+#: Height of one row of a horizontal legend [px].
+LEGEND_ROW_PX = 24
+#: Entries of a horizontal legend counted to one row (names up to about 30 characters).
+LEGEND_PER_ROW = 4
+
+
+def legend_rows(fig: go.Figure, per_row: int = LEGEND_PER_ROW) -> int:
+    """Rows a horizontal legend of ``fig`` takes, ``per_row`` entries a row [-]."""
+    n = sum(1 for t in fig.data if t.showlegend is not False and t.name)
+    return max(1, -(-n // per_row))
+
+
+def legend_at_foot(fig: go.Figure, bottom_px: int = 60, per_row: int = LEGEND_PER_ROW) -> None:
+    """Put the legend at the foot of the figure (anchored to the figure, not the plot),
+    with the bottom margin grown by its rows and the figure's height with it: a legend
+    of several rows at the template's place above the plot grows up over the title.
+    ``bottom_px`` is the room the x-axis labels need below the plot [px]."""
+    rows = legend_rows(fig, per_row)
+    extra = LEGEND_ROW_PX * rows
+    margin = fig.layout.margin.to_plotly_json() if fig.layout.margin else {}
+    fig.update_layout(height=int(fig.layout.height or 450) + extra,
+                      margin={**margin, "b": bottom_px + extra},
+                      legend=dict(orientation="h", yref="container", y=0.01, yanchor="bottom",
+                                  x=0, xanchor="left"))
+
+
 def _t(x) -> str:
     return "–" if x is None or (isinstance(x, float) and not np.isfinite(x)) else f"{x:,.0f} t"
 
@@ -113,6 +139,10 @@ def inbound_calendar_figure(cal: pd.DataFrame, lane_names: list[str], start, end
     return fig
 
 
+#: The contract min-max band of every panel of `contract_figure` (one colour, one legend entry).
+CONTRACT_BAND = "rgba(125,139,147,0.18)"
+
+
 def contract_figure(progress: pd.DataFrame, title: str, empty_text: str,
                     colours: dict[str, str] | None = None) -> go.Figure:
     """Planned tonnes per month (bars) inside each lane's contract band (shaded from the
@@ -122,43 +152,56 @@ def contract_figure(progress: pd.DataFrame, title: str, empty_text: str,
     lanes = list(dict.fromkeys(progress["lane"]))
     fig = make_subplots(rows=len(lanes), cols=1, shared_xaxes=True, vertical_spacing=0.06 if len(lanes) < 5 else 0.035,
                         subplot_titles=[lane_label(x) for x in lanes])
+    # every colour a bar is drawn in has its own legend entry: each party's colour (once a
+    # party), the months below the contract minimum or above its maximum, and one neutral
+    # band colour for every panel's contract min-max
     status_colour = {"below minimum": SAFETY, "above maximum": BAD}
+    status_name = {"below minimum": "planned, below the monthly minimum",
+                   "above maximum": "planned, above the monthly maximum"}
+    named: set[str] = set()
     for i, lane in enumerate(lanes, start=1):
         p = progress[progress["lane"] == lane]
-        colour = (colours or {}).get(p["party"].iloc[0], party_colour(i - 1))
+        party = p["party"].iloc[0]
+        colour = (colours or {}).get(party, party_colour(i - 1))
         lo = p["min_t"].fillna(0.0)
         hi = p["max_t"]
         has_band = hi.notna() | p["min_t"].notna()
         band_top = hi.where(hi.notna(), np.nan)
         fig.add_trace(go.Bar(
             x=p["month"], y=(band_top - lo).where(has_band), base=lo.where(has_band), width=25 * 86400e3,
-            marker=dict(color=_rgba(colour, 0.16), line=dict(width=0)), name="contract min–max",
-            legendgroup="band", showlegend=i == 1,
+            marker=dict(color=CONTRACT_BAND, line=dict(width=0)), name="contract min–max",
+            legendgroup="band", showlegend="band" not in named,
             hovertext=[f"contract {_t(a)} to {_t(b)}" for a, b in zip(p["min_t"], p["max_t"])],
             hoverinfo="text"), row=i, col=1)
-        bar_colour = [status_colour.get(s, colour) for s in p["status"]]
-        fig.add_trace(go.Bar(
-            x=p["month"], y=p["planned_t"], width=13 * 86400e3, marker=dict(color=bar_colour),
-            name="planned", legendgroup="planned", showlegend=i == 1,
-            hovertext=[f"<b>{lane_label(lane)}</b><br>{m}: {_t(v)} planned<br>contract min {_t(a)}, max {_t(b)}"
-                       f"<br>{s}" for m, v, a, b, s in zip(p["month_label"], p["planned_t"],
-                                                          p["min_t"], p["max_t"], p["status"])],
-            hoverinfo="text"), row=i, col=1)
+        named.add("band")
+        hover = [f"<b>{lane_label(lane)}</b><br>{m}: {_t(v)} planned<br>contract min {_t(a)}, max {_t(b)}"
+                 f"<br>{s}" for m, v, a, b, s in zip(p["month_label"], p["planned_t"],
+                                                    p["min_t"], p["max_t"], p["status"])]
+        for key, name, col in ((None, f"planned: {party}", colour),
+                               *((k, status_name[k], c) for k, c in status_colour.items())):
+            this = ~p["status"].isin(list(status_colour)) if key is None else p["status"] == key
+            if key is not None and not this.any():
+                continue
+            fig.add_trace(go.Bar(
+                x=p["month"], y=p["planned_t"].where(this.to_numpy()), width=13 * 86400e3,
+                marker=dict(color=col), name=name, legendgroup=name, showlegend=name not in named,
+                hovertext=hover, hoverinfo="text"), row=i, col=1)
+            named.add(name)
         if p["min_t"].notna().any():
             fig.add_trace(go.Scatter(
                 x=p["month"], y=p["min_t"], mode="markers", name="monthly minimum",
-                legendgroup="min", showlegend=i == 1,
+                legendgroup="min", showlegend="min" not in named,
                 marker=dict(symbol="line-ew", size=30, line=dict(width=3, color="#1e2a30")),
                 hoverinfo="skip"), row=i, col=1)
+            named.add("min")
         top = np.nanmax(np.r_[p["planned_t"].to_numpy(float), p["max_t"].to_numpy(float),
                               p["min_t"].to_numpy(float), 1.0])
         # the unit on each tick ("20k t"): a rotated one-letter axis title reads as an odd glyph
         fig.update_yaxes(title_text=None, ticksuffix=" t", row=i, col=1, range=[0, 1.15 * top])
     fig.update_layout(template=TEMPLATE, title=title, barmode="overlay",
-                      height=150 + 150 * len(lanes), bargap=0.2, margin=dict(t=60, b=90),
-                      # below the two-line month labels (month, then year), not over them
-                      legend=dict(orientation="h", y=-0.06 - 0.3 / len(lanes), yanchor="top",
-                                  x=0, xanchor="left"))
+                      height=150 + 150 * len(lanes), bargap=0.2)
+    # at the foot of the figure, below the two-line month labels (month, then year)
+    legend_at_foot(fig, bottom_px=60)
     fig.update_annotations(font=dict(size=12, color=MUTED))
     fig.update_xaxes(dtick="M1", tickformat="%b\n%Y")
     return fig
@@ -194,6 +237,20 @@ def lane_use_figure(use: pd.DataFrame) -> go.Figure:
 
 
 # --------------------------------------------------------------------------- plant
+
+
+def shade_outlook(fig: go.Figure, frame: pd.DataFrame | None, text: str = "outlook: indication only, re-planned weekly"
+                  ) -> None:
+    """Shade the days of ``frame`` whose ``window`` is ``outlook`` (risk.csv's column):
+    beyond the firm window the replay's chances are an indication, not what the
+    coordinator acts on.  Nothing where the frame has no outlook."""
+    if frame is None or "window" not in frame or not (frame["window"] == "outlook").any():
+        return
+    days = pd.to_datetime(frame.loc[frame["window"] == "outlook", "date"])
+    fig.add_vrect(x0=days.min() - pd.Timedelta(hours=12), x1=days.max() + pd.Timedelta(hours=12),
+                  fillcolor="rgba(150,160,165,0.13)", line_width=0, layer="below",
+                  annotation_text=text, annotation_position="top left",
+                  annotation_font=dict(size=11, color=MUTED))
 
 
 def store_figure(bands: pd.DataFrame, store: str, headline: dict | None = None,
@@ -232,6 +289,7 @@ def store_figure(bands: pd.DataFrame, store: str, headline: dict | None = None,
         fig.add_annotation(x=x, y=0.5, yref="paper", text="first day at risk", showarrow=False,
                            xanchor="right", yanchor="middle", textangle=-90, xshift=-3,
                            font=dict(color=BAD, size=11), bgcolor="rgba(255,255,255,0.75)")
+    shade_outlook(fig, b)
     top = max(cap, float(np.nanmax(b[["level_t", "level_p90_t"]].to_numpy(dtype=float)))) * 1.08
     fig.update_layout(template=TEMPLATE, title=f"{label} [t]", height=330, hovermode="x unified",
                       yaxis=dict(range=[0, top], title=None), margin=dict(t=58, r=30))
@@ -266,6 +324,8 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
                                  line=dict(color=_rgba(BAD, 0.6), width=1), fill="tozeroy",
                                  fillcolor=_rgba(BAD, 0.10), name="chance over the limit",
                                  hovertemplate="chance over %{y:.1f} %<extra></extra>"), secondary_y=True)
+    if risk_frame is not None:
+        shade_outlook(fig, risk_frame[risk_frame["store"] == "limestone"])
     fig.update_layout(template=TEMPLATE, title="SO2 emitted against the permit [kg/GJ heat input]",
                       height=340, hovermode="x unified", margin=dict(t=58))
     fig.update_yaxes(title_text="kg/GJ", rangemode="tozero", secondary_y=False)

@@ -165,16 +165,19 @@ def store_bands(inventory: pd.DataFrame, risk_frame: pd.DataFrame | None) -> pd.
         for c in cols:
             out[c] = np.nan
         return out
+    cols += ["window"] if "window" in risk_frame else []
     return inventory.merge(risk_frame[["date", "store", *cols]], on=["date", "store"], how="left")
 
 
 def store_headlines(scenario, risk, breaches: list[dict]) -> list[dict]:
     """One headline per store: the first date at risk from the risk replay's ranked list
-    (`RiskResult.top`), else the plan's own first breach, else clear."""
+    (`RiskResult.top`, the firm window's), else the plan's own first breach in the firm
+    window, else clear.  The outlook beyond the firm window (its risks and breaches) is
+    re-planned before it comes and makes no headline."""
     top = {r["store"]: r for r in (risk.top if risk is not None else [])}
     out = []
     for store in scenario.storage:
-        own = [b for b in breaches if b.get("store") == store]
+        own = [b for b in breaches if b.get("store") == store and b.get("window") != "outlook"]
         item = {"store": store, "label": STORE_LABELS.get(store, store), "status": "clear",
                 "first_date": None, "chance": None, "what": None, "remedy": None,
                 "chance_after": None, "breach": own[0] if own else None,

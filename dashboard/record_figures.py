@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import plotly.graph_objects as go
 
-from .figures import TEMPLATE, empty_figure
+from .figures import TEMPLATE, empty_figure, legend_at_foot
 from .style import MUTED, STORE_COLOURS, STORE_LABELS
 
 SURVEY = "#222222"
@@ -49,6 +49,9 @@ def weekly_figure(weekly: pd.DataFrame) -> go.Figure:
         fig.add_trace(go.Scatter(x=g["week"], y=g["planned_t"], name=f"{name}: planned", mode="markers+lines",
                                  line=dict(color=colour, dash="dot"), marker=dict(symbol="line-ew-open", size=14),
                                  hovertemplate="planned %{y:,.0f} t<extra></extra>"))
-    fig.update_layout(template=TEMPLATE, title="Recorded against the plan in force, per week [t]", height=340,
+    fig.update_layout(template=TEMPLATE, title="Recorded against the plan in force, per week [t]", height=300,
                       barmode="group", hovermode="x unified", margin=dict(t=58, r=30))
+    # up to eight entries wrap to two rows: at the template's place above the plot they
+    # grew up over the title; at the foot of the figure, below the dates, they have room
+    legend_at_foot(fig, bottom_px=60)
     return fig

@@ -10,6 +10,17 @@ means the scrubber cannot remove its full share of SO2: the removal lost in prop
 to the limestone missing is added to the emissions, and the rolling permit average is
 recomputed per future; the MWh generated while short are the energy at risk.
 
+The firm window and the outlook: the replay holds every movement fixed, but only the
+firm window's (``PlanResult.firm_days``, planned day by day) will be carried out as
+planned; the weekly outlook beyond it is re-planned every week before it comes, with
+the stock that is really there.  Over a long horizon a replay with movements held fixed
+lets every shortfall and surplus accumulate (a buyer's trucks that find less than
+planned lose it for good), so its chances beyond the firm window overstate what will
+happen.  Each row of the frame says its ``window`` (``firm`` or ``outlook``); the ranked
+list of risks with remedies (`RiskResult.top`, the "stores at risk") holds the firm
+window only, and the outlook's stores passing the alert level are listed apart
+(`RiskResult.outlook`) as an indication.
+
 References
 ----------
 Silver, E. A., Pyke, D. F. and Thomas, D. J. (2016), *Inventory and Production
@@ -21,7 +32,7 @@ from __future__ import annotations
 
 import os
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -90,12 +101,26 @@ def _forward_mean(x: np.ndarray, window: int) -> np.ndarray:
     return (c[..., end] - c[..., idx]) / (end - idx)
 
 
+#: The ``window`` of a day in the firm window (planned day by day, carried out as planned).
+FIRM = "firm"
+#: The ``window`` of a day beyond it (weekly buckets, re-planned before they come).
+OUTLOOK = "outlook"
+
+
+def day_windows(n: int, firm_days: int) -> np.ndarray:
+    """``FIRM`` for the first ``firm_days`` of ``n`` days, ``OUTLOOK`` after [-]."""
+    return np.where(np.arange(n) < firm_days, FIRM, OUTLOOK)
+
+
 @dataclass
 class RiskResult:
     frame: pd.DataFrame            # risk.csv
-    top: list[dict]                # ranked risks with what would remove them
+    top: list[dict]                # ranked risks of the firm window, with what would remove them
     levels: dict[str, np.ndarray]  # store -> (futures × days) end-of-day levels [t]
     n_futures: int
+    #: stores whose chance passes `ALERT_LEVEL` only beyond the firm window: an indication
+    #: (first date, chance, what), no remedy; the outlook is re-planned before it comes
+    outlook: list[dict] = field(default_factory=list)
 
 
 def replay(result: PlanResult, flows: dict[str, np.ndarray], *, plan: DailyPlan | None = None,
@@ -143,9 +168,12 @@ def replay(result: PlanResult, flows: dict[str, np.ndarray], *, plan: DailyPlan 
             "expected_over_t": np.maximum(lv - st.capacity_t, 0).mean(axis=1, dtype=np.float64),
             "level_p10_t": q[0], "level_p50_t": q[1], "level_p90_t": q[2],
             "days_p10": dq[0], "days_p50": dq[1],
+            "window": day_windows(n, result.firm_days),
         })
         if store == "limestone" and so2 is not None:
-            frame["p_so2_over_limit"], frame["mwh_at_risk"] = _permit_consequence(scn, f, unmet, so2)
+            at_plan = so2_at_plan_removal(result, so2)
+            (frame["p_so2_over_limit"], frame["p_so2_over_margin"],
+             frame["mwh_at_risk"]) = _permit_consequence(scn, f, unmet, at_plan)
         return store, level, frame
 
     stores = [s for s in scn.storage if s in flows]
@@ -156,13 +184,60 @@ def replay(result: PlanResult, flows: dict[str, np.ndarray], *, plan: DailyPlan 
     rows = [frame for _, _, frame in done]
     frame = pd.concat(rows, ignore_index=True)
     top = top_risks(result, frame, flows, plan) if suggest else []
+    outlook = outlook_risks(result, frame) if suggest else []
     first = next(iter(flows.values()))
-    return RiskResult(frame, top, levels, int(np.shape(first)[0]))
+    return RiskResult(frame, top, levels, int(np.shape(first)[0]), outlook)
 
 
-def _permit_consequence(scn, use: np.ndarray, unmet: np.ndarray, so2: dict) -> tuple[np.ndarray, np.ndarray]:
-    """Chance per day that the rolling SO2 average breaks the permit, and the expected
-    MWh generated while the scrubber is short of limestone [MWh/d]."""
+def so2_at_plan_removal(result: PlanResult, so2: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The futures' SO2 moved to the removal the plan chose.
+
+    The futures are sampled at the fixed removal (the setpoint).  Where the plan chose the
+    removal (``result.plan.removal``, per day [%]), each future's SO2 emitted [t/d] is
+    scaled by the lever's emitted SO2 at the chosen removal over that at the setpoint
+    (`schedule.lever.RemovalLever.at`): the SO2 emitted is the SO2 reaching the scrubber
+    × (1 − removal), so the ratio is the same in every future whatever its coal.  The SO2
+    removed takes up the difference (what is formed does not move with the removal).
+    Heat input and generation stay the futures' own.  Unchanged where the removal is
+    fixed.
+    """
+    removal = result.plan.removal
+    if removal is None:
+        return so2
+    from .schedule.lever import RemovalLever
+
+    lever = RemovalLever.from_scenario(result.scenario)
+    if lever is None:
+        return so2
+    at_plan = lever.at("so2_emitted_t", removal)
+    at_set = lever.at("so2_emitted_t", lever.setpoint)
+    ratio = np.divide(at_plan, at_set, out=np.ones_like(at_plan), where=at_set > 0)
+    emitted = np.asarray(so2["so2_emitted_t"], dtype=np.float64)
+    moved = emitted * ratio[None, :]
+    out = dict(so2)
+    out["so2_emitted_t"] = moved
+    out["so2_removed_t"] = np.asarray(so2["so2_removed_t"], dtype=np.float64) + (emitted - moved)
+    return out
+
+
+def compliance_limit(plant) -> float | None:
+    """The permit limit less the compliance margin [kg/GJ]: limit × (1 − margin / 100),
+    the margin ``so2_limit_margin_pct`` of the plant sheet [%] (0 where the sheet has
+    none); ``None`` without a limit."""
+    limit = plant.so2_limit_kg_per_gj
+    if limit is None:
+        return None
+    margin = getattr(plant, "so2_limit_margin_pct", None) or 0.0
+    return float(limit) * (1 - float(margin) / 100)
+
+
+def _permit_consequence(scn, use: np.ndarray, unmet: np.ndarray, so2: dict
+                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Chance per day that the rolling SO2 average breaks the permit limit, chance that
+    it passes the limit less the compliance margin (`compliance_limit`), and the
+    expected MWh generated while the scrubber is short of limestone [MWh/d].
+
+    ``so2`` holds the futures' SO2 at the plan's removal (`so2_at_plan_removal`)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         lost = np.where(use > 0, np.clip(unmet / use, 0, 1), 0.0)
     emitted = so2["so2_emitted_t"] + so2["so2_removed_t"] * lost
@@ -171,27 +246,65 @@ def _permit_consequence(scn, use: np.ndarray, unmet: np.ndarray, so2: dict) -> t
     with np.errstate(divide="ignore", invalid="ignore"):
         rolling = 1000 * trailing_sum(emitted, days) / trailing_sum(heat, days)
     limit = scn.plant.so2_limit_kg_per_gj
-    p_over = np.zeros(use.shape[1]) if limit is None else (rolling > limit).mean(axis=0)
+    margin = compliance_limit(scn.plant)
+    n = use.shape[1]
+    # the plan's own average may sit on the limit: a rounding hair over it is not a breach
+    # (as the balance's ``so2_over_limit``)
+    p_over = np.zeros(n) if limit is None else (rolling > limit * (1 + 1e-6)).mean(axis=0)
+    p_margin = np.zeros(n) if margin is None else (rolling > margin * (1 + 1e-6)).mean(axis=0)
     mwh = (so2["generation_mwh"] * lost).mean(axis=0)
-    return p_over, mwh
+    return p_over, p_margin, mwh
+
+
+def _store_chance(store: str, g: pd.DataFrame) -> pd.Series:
+    """The chance per day that a store breaks its limit [-]: limestone below safety stock
+    (or empty), a byproduct over capacity."""
+    return g["p_over_capacity"] if store != "limestone" else np.maximum(g["p_below_safety"], g["p_empty"])
+
+
+def outlook_risks(result: PlanResult, frame: pd.DataFrame) -> list[dict]:
+    """Stores whose chance of breaking a limit passes `ALERT_LEVEL` beyond the firm window
+    but not in it, earliest first: ``store``, ``first_date``, ``chance``, ``what``,
+    ``window`` = ``outlook``.  An indication only, no remedy: the outlook is re-planned
+    week by week before it comes."""
+    scn = result.scenario
+    firm = min(result.firm_days, len(scn.dates))
+    out = []
+    for store, g in frame.groupby("store", sort=False):
+        p = _store_chance(store, g.reset_index(drop=True)).to_numpy()
+        if (p[:firm] > ALERT_LEVEL).any():
+            continue  # in the ranked list of the firm window
+        hit = np.flatnonzero(p[firm:] > ALERT_LEVEL)
+        if not len(hit):
+            continue
+        day = firm + int(hit[0])
+        out.append({"store": store, "first_date": f"{scn.dates[day]:%Y-%m-%d}",
+                    "chance": round(float(p[day]), 3), "highest_chance": round(float(p[firm:].max()), 3),
+                    "what": "below safety stock" if store == "limestone" else "over capacity",
+                    "window": OUTLOOK})
+    out.sort(key=lambda r: r["first_date"])
+    return out
 
 
 def top_risks(result: PlanResult, frame: pd.DataFrame, flows: dict[str, np.ndarray],
               plan: DailyPlan, limit: int = 5) -> list[dict]:
-    """Stores whose chance of breaking a limit passes `ALERT_LEVEL`, earliest first, each
-    with what would remove it and the chance once that is done."""
+    """Stores whose chance of breaking a limit passes `ALERT_LEVEL` in the firm window
+    (the days the coordinator acts on; the outlook is `outlook_risks`), earliest first,
+    each with what would remove it and the chance once that is done."""
     scn = result.scenario
+    firm = min(result.firm_days, len(scn.dates))
     out = []
     for store, g in frame.groupby("store", sort=False):
         g = g.reset_index(drop=True)
-        p = g["p_over_capacity"] if store != "limestone" else np.maximum(g["p_below_safety"], g["p_empty"])
-        hit = np.flatnonzero(p.to_numpy() > ALERT_LEVEL)
+        p = _store_chance(store, g)
+        hit = np.flatnonzero(p.to_numpy()[:firm] > ALERT_LEVEL)
         if not len(hit):
             continue
         day = int(hit[0])
         item = {"store": store, "first_date": f"{scn.dates[day]:%Y-%m-%d}",
                 "chance": round(float(p.iloc[day]), 3),
-                "what": "below safety stock" if store == "limestone" else "over capacity"}
+                "what": "below safety stock" if store == "limestone" else "over capacity",
+                "window": FIRM}
         need = 0.0
         if store != "limestone":
             g_day = g.iloc[day]
@@ -200,8 +313,7 @@ def top_risks(result: PlanResult, frame: pd.DataFrame, flows: dict[str, np.ndarr
         if fix is not None:
             lane, when, qty, new_plan = fix
             after = replay(result, {store: flows[store]}, plan=new_plan, suggest=False).frame
-            pa = (after["p_over_capacity"] if store != "limestone"
-                  else np.maximum(after["p_below_safety"], after["p_empty"])).to_numpy()
+            pa = _store_chance(store, after).to_numpy()
             item["remedy"] = _remedy_text(lane, when, qty, scn)
             item["chance_after"] = round(float(pa[day]), 3)
         else:
@@ -251,4 +363,4 @@ def deterministic_flows(balance: pd.DataFrame) -> dict[str, np.ndarray]:
     return {s: balance[c].to_numpy(float)[None, :] for s, c in STORE_FLOW_COLUMN.items()}
 
 
-__all__ = ["replay", "RiskResult", "deterministic_flows", "replay_limestone", "replay_byproduct"]
+__all__ = ["replay", "RiskResult", "FIRM", "OUTLOOK", "day_windows", "outlook_risks", "compliance_limit", "deterministic_flows", "replay_limestone", "replay_byproduct"]

@@ -124,13 +124,37 @@ def describe_plan(result) -> str:
         word = "sold" if kind == "sale" else "landfilled"
         lines.append(f"  {material:12} {word:11} {g['tonnes'].sum():>14,.0f} t")
     lines += describe_lever(s)
-    if s["breaches"]:
-        lines.append(f"  {len(s['breaches'])} limit(s) broken:")
-        for b in s["breaches"][:8]:
+    firm, outlook = split_windows(s["breaches"])
+    if firm:
+        lines.append(f"  {len(firm)} limit(s) broken in the firm window (the first {s['firm_days']} days):")
+        for b in firm[:8]:
             lines.append(f"    - {describe_breach(b)}")
     else:
-        lines.append("  no limit broken in the planned (median) case")
+        lines.append(f"  no limit broken in the firm window (the first {s['firm_days']} days) "
+                     "in the planned (median) case")
+    lines += describe_outlook_breaches(outlook)
     return "\n".join(lines)
+
+
+def split_windows(breaches: list[dict]) -> tuple[list[dict], list[dict]]:
+    """The breaches of the firm window and those of the outlook beyond it (a breach
+    without a ``window`` counts as firm)."""
+    outlook = [b for b in breaches if b.get("window") == "outlook"]
+    return [b for b in breaches if b.get("window") != "outlook"], outlook
+
+
+def describe_outlook_breaches(outlook: list[dict], shown: int = 3) -> list[str]:
+    """The outlook's breaches, set apart: an indication that will be re-planned, not a
+    limit the plan breaks now (and not a reason for exit code 1)."""
+    if not outlook:
+        return []
+    lines = [f"  {len(outlook)} in the outlook beyond the firm window (an indication: the weekly "
+             "outlook will be re-planned before these days come; no action now, not an exit code 1):"]
+    for b in outlook[:shown]:
+        lines.append(f"    - {describe_breach(b)}")
+    if len(outlook) > shown:
+        lines.append(f"    ... and {len(outlook) - shown} more in summary.json (window: outlook)")
+    return lines
 
 
 #: Removal dips named one by one on the console; the rest are counted.
@@ -178,13 +202,23 @@ def describe_risk(run) -> str:
     """The top risks of a planned run, for the terminal."""
     if run.risk is None:
         return "  risk: no futures sampled (--futures 0), so no risk figures"
-    lines = [f"Risk across {run.risk.n_futures} sampled futures (plan held fixed):"]
+    firm_days = run.plan.firm_days
+    lines = [f"Risk across {run.risk.n_futures} sampled futures (plan held fixed), "
+             f"in the firm window (the first {firm_days} days):"]
     if not run.risk.top:
-        lines.append("  no store passes a 5 % chance of breaking a limit on any day")
+        lines.append("  no store passes a 5 % chance of breaking a limit on any day of the firm window")
     for t in run.risk.top:
         after = f" -> {100 * t['chance_after']:.1f} %" if "chance_after" in t else ""
         lines.append(f"  - {t['store']}: {100 * t['chance']:.1f} % chance {t['what']} from "
                      f"{t['first_date']}; remedy: {t['remedy']}{after}")
+    outlook = getattr(run.risk, "outlook", None) or []
+    if outlook:
+        lines.append("  beyond it, in the outlook (an indication only: with the movements held fixed over "
+                     "the whole horizon every shortfall and surplus adds up, and the outlook is re-planned "
+                     "every week before it comes):")
+        for t in outlook:
+            lines.append(f"  - {t['store']}: {100 * t['chance']:.1f} % chance {t['what']} from "
+                         f"{t['first_date']} (up to {100 * t['highest_chance']:.0f} %)")
     return "\n".join(lines)
 
 
@@ -226,11 +260,13 @@ def describe_demo(run, out, files: list[str]) -> str:
         land = g.loc[g["kind"] == "landfill", "tonnes"].sum()
         lines.append(f"  {material:12} {sold:>12,.0f} {land:>15,.0f}")
     lines.append("")
-    lines.append(f"  limits broken in the planned case: {len(s['breaches'])}")
-    for b in s["breaches"][:5]:
+    firm, outlook = split_windows(s["breaches"])
+    lines.append(f"  limits broken in the planned case, firm window: {len(firm)}")
+    for b in firm[:5]:
         lines.append(f"    - {describe_breach(b)}")
-    if len(s["breaches"]) > 5:
-        lines.append(f"    ... and {len(s['breaches']) - 5} more in summary.json")
+    if len(firm) > 5:
+        lines.append(f"    ... and {len(firm) - 5} more in summary.json")
+    lines += describe_outlook_breaches(outlook)
     lines.append(describe_risk(run))
     lines.append("")
     lines.append(f"Files in {out}: {', '.join(files)}")

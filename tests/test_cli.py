@@ -134,6 +134,63 @@ def test_a_plan_over_the_permit_exits_1_and_names_it(tmp_path, capsys):
     assert "so2_permit: over the SO2 permit limit" in capsys.readouterr().out
 
 
+def _late_sulfur_station(tmp_path):
+    """30 days at the fixed 97 % removal against a 0.03 kg/GJ permit (3-day average):
+    0.5 % S coal (about 0.014 kg/GJ emitted) for 20 days, then 2 % S coal (about 0.046
+    kg/GJ): the permit is broken from about day 20 on."""
+    import datetime as dt
+
+    from helpers import START
+
+    s = minimal_sheets(days=30)
+    set_value(s, "plant", "so2_limit_kg_per_gj", None, 0.03)
+    s["coal_blend"] = [["date", "source", "share_pct"], [START, "Coal B", 100],
+                       [START + dt.timedelta(days=20), "Coal A", 100]]
+    return write_workbook(s, tmp_path / "w.xlsx"), START + dt.timedelta(days=20)
+
+
+def test_a_breach_in_the_outlook_is_listed_but_does_not_exit_1(tmp_path, capsys):
+    """With a 14-day firm window the permit breach from day 20 is in the outlook: listed
+    in summary.json as ``window: outlook``, said on the console to be re-planned, exit 0.
+    With a 28-day firm window the same breach is firm: exit 1."""
+    import datetime as dt
+    import json
+
+    path, start_high = _late_sulfur_station(tmp_path)
+    out = tmp_path / "out"
+    assert main(["plan", str(path), "--out", str(out), "--futures", "0", "--firm-days", "14"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    permit = [b for b in summary["breaches"] if b["store"] == "so2_permit"]
+    assert permit and all(b["window"] == "outlook" for b in permit), permit
+    assert permit[0]["first_date"] >= f"{start_high:%Y-%m-%d}"
+    assert all(b["window"] in ("firm", "outlook") for b in summary["breaches"])
+    text = capsys.readouterr().out
+    assert "in the outlook beyond the firm window" in text and "re-planned" in text
+    assert "no limit broken in the firm window" in text
+    out2 = tmp_path / "out2"
+    assert main(["plan", str(path), "--out", str(out2), "--futures", "0", "--firm-days", "28"]) == 1
+    summary = json.loads((out2 / "summary.json").read_text())
+    permit = [b for b in summary["breaches"] if b["store"] == "so2_permit"]
+    assert permit and all(b["window"] == "firm" for b in permit), permit
+    assert "limit(s) broken in the firm window" in capsys.readouterr().out
+
+
+def test_breach_windows_split_at_the_end_of_the_firm_window():
+    """A breach starting before day ``firm_days`` is firm (even if it runs on), one starting
+    on or after it is outlook; only firm ones count for the exit code."""
+    import pandas as pd
+
+    from reagentplan.schedule.causes import firm_breaches, mark_windows
+
+    dates = pd.date_range("2030-01-01", periods=30)
+    b = mark_windows([{"first_date": "2030-01-14", "last_date": "2030-01-20"},
+                      {"first_date": "2030-01-15", "last_date": "2030-01-16"},
+                      {"first_date": None}], dates, 14)
+    assert [x["window"] for x in b] == ["firm", "outlook", "firm"]
+    assert firm_breaches(b) == [b[0], b[2]]
+    assert firm_breaches([{"store": "gypsum"}]) == [{"store": "gypsum"}]
+
+
 def test_a_reader_that_closes_the_pipe_ends_the_command_quietly(minimal_path):
     """``reagentplan check WORKBOOK | head -1``: the reader is gone before the command
     writes (closed here at once, while the child is still starting); the command ends

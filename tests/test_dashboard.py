@@ -169,6 +169,66 @@ def test_contract_figure_draws_one_panel_per_lane(small_run):
     assert isinstance(figures.contract_figure(prog.iloc[0:0], "t", "nothing here"), go.Figure)
 
 
+def legend_colours_missing(fig: go.Figure) -> set[str]:
+    """Colours a bar of ``fig`` is drawn in (where it has a value) that no legend entry
+    shows: an entry's swatch is its marker's colour, the first one where the marker
+    has a colour per bar (as plotly draws it)."""
+    named = set()
+    for t in fig.data:
+        if t.showlegend is not False and t.name and t.type == "bar":
+            c = t.marker.color
+            named.add(c if isinstance(c, str) else list(c)[0])
+    used = set()
+    for t in fig.data:
+        if t.type != "bar":
+            continue
+        y = np.asarray(t.y, dtype=float)
+        colour = t.marker.color
+        colours = [colour] * len(y) if isinstance(colour, str) else list(colour)
+        used |= {c for c, v in zip(colours, y) if np.isfinite(v)}
+    return used - named
+
+
+def test_contract_figure_names_every_colour_it_draws(small_run):
+    """Each bar's colour is in the legend: every party's colour, the months below the
+    contract minimum (one is forced here) and the contract band."""
+    plan = small_run.plan
+    prog = frames.contract_progress(plan.scenario, plan.lanes, plan.evaluation.month_totals)
+    prog = prog.copy()
+    prog.loc[prog.index[0], "status"] = "below minimum"
+    prog.loc[prog.index[-1], "status"] = "above maximum"
+    from reagentplan.dashboard.style import party_colours
+
+    fig = figures.contract_figure(prog, "title", "none", party_colours(plan.scenario))
+    assert prog["lane"].nunique() >= 2
+    assert legend_colours_missing(fig) == set()
+    names = {t.name for t in fig.data if t.showlegend is not False}
+    assert {"planned, below the monthly minimum", "planned, above the monthly maximum"} <= names
+    # the same figure as it was drawn before (the status colour under a "planned" entry of
+    # one party's colour) fails the property: the test can tell
+    bad = go.Figure([go.Bar(x=[1, 2], y=[1, 1], marker=dict(color=["#111111", "#ee7700"]), name="planned")])
+    assert legend_colours_missing(bad) == {"#ee7700"}
+
+
+def test_store_figure_and_headlines_keep_the_outlook_apart(small_run):
+    """The store chart shades the outlook beyond the firm window; an outlook breach makes
+    no headline, a firm one does."""
+    plan = small_run.plan
+    frame = small_run.risk.frame.copy()
+    frame["window"] = np.where((frame["date"] - frame["date"].min()).dt.days < 14, "firm", "outlook")
+    bands = frames.store_bands(plan.inventory, frame)
+    fig = figures.store_figure(bands, "gypsum", None, small_run.risk.n_futures)
+    rects = [s for s in fig.layout.shapes if s.type == "rect"]
+    assert len(rects) == 1 and pd.Timestamp(rects[0].x0) > frame["date"].min() + pd.Timedelta(days=13)
+    assert any("outlook" in (a.text or "") for a in fig.layout.annotations)
+    no_risk = types.SimpleNamespace(top=[])
+    late = {"store": "gypsum", "kind": "above capacity", "first_date": "2030-04-01", "window": "outlook"}
+    heads = {h["store"]: h for h in frames.store_headlines(plan.scenario, no_risk, [late])}
+    assert heads["gypsum"]["status"] == "clear"
+    heads = {h["store"]: h for h in frames.store_headlines(plan.scenario, no_risk, [{**late, "window": "firm"}])}
+    assert heads["gypsum"]["status"] == "plan breach"
+
+
 def test_calendar_tells_firm_outlook_and_order_by_apart(small_run):
     plan = small_run.plan
     cal = frames.inbound_calendar(plan.movements, plan.lanes)

@@ -94,3 +94,25 @@ def test_record_tab_and_uploads(tmp_path):
                                             "arrivals.csv"), False)
     assert not ok and "sheet 'arrivals.csv', row 2, column 'supplier'" in msg and "did you mean 'Quarry Q'" in msg
     assert _count(url, "arrivals") == 2
+
+
+def test_weekly_chart_legend_sits_below_the_plot_not_over_its_title():
+    """Four materials in and out, recorded and planned: eight legend entries, two rows.
+    The legend is anchored to the foot of the figure (below the dates), and the bottom
+    margin holds its rows, so it cannot grow up over the title as it did above the plot."""
+    import pandas as pd
+
+    from reagentplan.dashboard.figures import LEGEND_ROW_PX, legend_rows
+    from reagentplan.dashboard.record_figures import weekly_figure
+
+    weeks = pd.date_range("2027-01-04", periods=6, freq="W-MON")
+    rows = [{"week": w, "direction": d, "material": m, "planned_t": 100.0, "recorded_t": 90.0}
+            for w in weeks for d, m in (("in", "limestone"), ("out", "gypsum"), ("out", "fly_ash"),
+                                         ("out", "bottom_ash"))]
+    fig = weekly_figure(pd.DataFrame(rows))
+    legend, margin = fig.layout.legend, fig.layout.margin
+    assert sum(t.showlegend is not False for t in fig.data) == 8 and legend_rows(fig) == 2
+    assert legend.orientation == "h" and legend.yref == "container"
+    assert legend.yanchor == "bottom" and legend.y < 0.05
+    assert margin.b >= 2 * LEGEND_ROW_PX + 50  # the dates' two lines and the legend's two rows
+    assert fig.layout.height - margin.b - margin.t >= 150  # still room to plot

@@ -73,6 +73,89 @@ def test_more_sulfur_spread_raises_limestone_risk_and_an_extra_train_lowers_it()
             < _lime_risk(scn, plan, wide))
 
 
+def _station_at_the_limit(days=14, margin=None):
+    """The removal lever's one-day station (`test_removal_lever.one_day_station`): 100 t of
+    SO2 a day reach the scrubber, the permit allows 3 t a day on a one-day average, the
+    setpoint is 98 %, and at 40 per allowance the plan runs at the permit's 97 %: its
+    rolling average sits exactly on the limit."""
+    from test_removal_lever import one_day_station, set_kv
+    from reagentplan.schema import SHEETS
+
+    s = one_day_station(days=days, allowance=40.0)
+    plant_keys = {f.name for sheet in SHEETS if sheet.name == "plant" for f in sheet.fields}
+    if margin is not None and "so2_limit_margin_pct" in plant_keys:
+        set_kv(s, "plant", "so2_limit_margin_pct", margin)
+    return load_scenario(workbook_bytes(s))
+
+
+@pytest.fixture(scope="module")
+def at_the_limit():
+    scn = _station_at_the_limit(margin=5)
+    return run_plan(scn, futures=100, seed=1, time_limit=30, firm_days=14)
+
+
+def test_permit_risk_is_computed_at_the_chosen_removal(at_the_limit):
+    """A plan that holds the rolling average on the limit is over it in about half the
+    futures (those whose coal brings more SO2 than the median), not in none: the chance
+    is computed at the removal the plan chose, not at the setpoint.  Recomputed here
+    independently: SO2 emitted = SO2 to the scrubber × (1 − removal) (the balance's
+    scrubber, no sorbent injection), so a future's emitted SO2 at the setpoint s moves to
+    × (100 − r) / (100 − s) at the chosen r; over a one-day average the rolling average
+    is the day's emitted SO2 over its heat input."""
+    run = at_the_limit
+    scn, removal = run.plan.scenario, run.plan.plan.removal
+    assert removal is not None and removal == pytest.approx(np.full(14, 97.0), abs=1e-3)
+    setpoint = 98.0
+    emitted = run.futures.flows["so2_emitted_t"] * ((100 - removal) / (100 - setpoint))[None, :]
+    rate = 1000 * emitted / run.futures.flows["heat_input_gj"]
+    limit = scn.plant.so2_limit_kg_per_gj
+    lime = run.risk.frame[run.risk.frame["store"] == "limestone"]
+    p = lime["p_so2_over_limit"].to_numpy()
+    assert (p > 0.2).all() and (p < 0.8).all(), p
+    np.testing.assert_allclose(p, (rate > limit * (1 + 1e-6)).mean(axis=0))
+    margin = getattr(scn.plant, "so2_limit_margin_pct", 0.0) or 0.0
+    q = lime["p_so2_over_margin"].to_numpy()
+    np.testing.assert_allclose(q, (rate > limit * (1 - margin / 100) * (1 + 1e-6)).mean(axis=0))
+    assert (q >= p).all()
+
+
+def test_compliance_limit_is_the_limit_less_the_margin():
+    """limit × (1 − margin / 100); no margin key: the limit; no limit: None (common
+    practice, no source)."""
+    from types import SimpleNamespace
+
+    from reagentplan.risk import compliance_limit
+
+    assert compliance_limit(SimpleNamespace(so2_limit_kg_per_gj=0.06, so2_limit_margin_pct=5.0)) == pytest.approx(0.057)
+    assert compliance_limit(SimpleNamespace(so2_limit_kg_per_gj=0.06)) == pytest.approx(0.06)
+    assert compliance_limit(SimpleNamespace(so2_limit_kg_per_gj=None, so2_limit_margin_pct=5.0)) is None
+
+
+def test_outlook_risk_is_kept_apart_from_the_firm_window():
+    """A gypsum store that overflows in every future, but only from day 10 of 20 with a
+    7-day firm window: risk.csv marks each day's window, the ranked "stores at risk"
+    (`top`) hold the firm window only, and the overflow is listed apart as the outlook's
+    indication, from its first day."""
+    s = minimal_sheets(days=20)
+    scn = load_scenario(workbook_bytes(s))
+    plan = make_plan(scn, firm_days=7)
+    flows = deterministic_flows(plan.balance)
+    gyp = np.repeat(flows["gypsum"], 50, axis=0)
+    gyp[:, 10:] *= 20.0  # far more cake than any haul-out takes
+    rr = replay(plan, {"limestone": np.repeat(flows["limestone"], 50, axis=0), "gypsum": gyp})
+    f = rr.frame
+    days = (f["date"] - f["date"].min()).dt.days
+    assert (f.loc[days < 7, "window"] == "firm").all() and (f.loc[days >= 7, "window"] == "outlook").all()
+    g = f[f["store"] == "gypsum"].reset_index(drop=True)
+    assert g["p_over_capacity"].iloc[:7].max() <= 0.05 and g["p_over_capacity"].iloc[-1] == 1.0
+    assert "gypsum" not in {t["store"] for t in rr.top}
+    assert all(t["window"] == "firm" for t in rr.top)
+    out = [t for t in rr.outlook if t["store"] == "gypsum"]
+    first_over = g.loc[g["p_over_capacity"] > 0.05, "date"].min()
+    assert out and out[0]["window"] == "outlook" and out[0]["first_date"] == f"{first_over:%Y-%m-%d}"
+    assert pd.Timestamp(out[0]["first_date"]) >= scn.dates[7]
+
+
 def test_top_risks_name_a_remedy_that_helps(small_run):
     for item in small_run.risk.top:
         assert item["remedy"]

@@ -139,6 +139,8 @@ def content(run) -> dict:
             ("last_date", "To", fmt_date, False),
             ("tonnes", "Tonnes", lambda x: f"{x:,.0f}", True),
             ("cause", "Why", str, False),
+            *([("window", "Window", lambda w: "outlook: re-planned before it comes" if w == "outlook"
+                else "firm", False)] if "window" in breaches else []),
         ], empty="None: on the expected balance the plan keeps every store between safety stock "
                  "and capacity and meets every contract minimum."),
     }

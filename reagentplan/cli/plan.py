@@ -42,6 +42,7 @@ def run(args) -> int:
     from ..output import staged_output, write_run
     from ..pipeline import run_plan
     from ..scenario import load_scenario
+    from ..schedule.causes import firm_breaches
     from ..summary import describe_plan, describe_risk
 
     settings = plan_settings(args, PLAN)
@@ -88,4 +89,5 @@ def run(args) -> int:
         print(f"Warning: {line}")
     print(f"\nWrote {', '.join(p.name for p in written)} to {args.out}")
     print(f"\nCaution: {CAUTION}")
-    return EXIT_BREACH if run.plan.breaches else EXIT_OK
+    # only the firm window's breaches: the outlook is re-planned week by week before it comes
+    return EXIT_BREACH if firm_breaches(run.plan.breaches) else EXIT_OK

@@ -59,6 +59,7 @@ def run_summary(run) -> dict:
     summary["warnings"] = run_warnings(run)
     if run.risk is not None:
         summary["top_risks"] = run.risk.top
+        summary["outlook_risks"] = getattr(run.risk, "outlook", [])
         summary["futures"] = run.risk.n_futures
     summary.update(getattr(run, "summary_extra", None) or {})
     return summary

@@ -3,11 +3,17 @@
 For each breach the lanes that could have prevented it are examined in the days before
 it, and the first binding rule is named: lead time, loads per day, weekday calendar or
 closure, contract maximum, quality limits shutting out buyers, landfill limit.
+
+Each breach also says its ``window``: ``firm`` when it starts inside the firm window
+(the days planned one by one and carried out as planned: the coordinator acts on it and
+it makes ``reagentplan plan`` exit 1), ``outlook`` when it starts beyond it (the weekly
+outlook is re-planned every week before it comes: listed, not acted on, no exit 1).
 """
 
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from ..scenario import Scenario
 from .evaluate import DailyPlan, Evaluation
@@ -129,3 +135,26 @@ def _contract_min_cause(lane: Lane, a: int, z: int, month_index) -> str:
     if any("limit" in w for w in shut):
         return f"quality limits shutting out {lane.party} on {sum('limit' in w for w in shut)} day(s)"
     return "not enough material, or the minimum cost more than its penalty"
+
+
+#: A breach's ``window``: starting inside the firm window, or in the outlook beyond it.
+FIRM_WINDOW, OUTLOOK_WINDOW = "firm", "outlook"
+
+
+def mark_windows(breaches: list[dict], dates, firm_days: int) -> list[dict]:
+    """The breaches with ``window`` set: ``firm`` where the breach starts within the first
+    ``firm_days`` days of ``dates`` (its ``first_date``), else ``outlook``.  A breach with
+    no first date counts as firm."""
+    dates = pd.DatetimeIndex(dates)
+    end = dates[0] + pd.Timedelta(days=int(firm_days)) if len(dates) else None
+    for b in breaches:
+        first = b.get("first_date")
+        outlook = end is not None and first is not None and pd.Timestamp(first) >= end
+        b["window"] = OUTLOOK_WINDOW if outlook else FIRM_WINDOW
+    return breaches
+
+
+def firm_breaches(breaches: list[dict]) -> list[dict]:
+    """The breaches of the firm window (those without a ``window`` count as firm): what
+    the coordinator acts on and what makes ``reagentplan plan`` exit 1."""
+    return [b for b in breaches if b.get("window", FIRM_WINDOW) != OUTLOOK_WINDOW]

@@ -15,7 +15,7 @@ from ..balance import balance_frame
 from ..scenario import Scenario
 from ..schema import STORE_FLOW_COLUMN
 from .baseline import baseline_plan
-from .causes import explain
+from .causes import explain, mark_windows
 from .evaluate import DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLimits, build_periods,
@@ -450,9 +450,10 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
             chosen, ev = settled, ev_s
             outcome.status += f" ({n_moved} sale loads moved to the earliest equal day)"
     removal = scenario.scrubber.removal_pct
-    base_ev.breaches = explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal)
-    breaches = explain(scenario, lanes, chosen, ev) + permit_breaches(
-        plan_bal, removal if chosen.removal is None else None)
+    base_ev.breaches = mark_windows(explain(scenario, lanes, base, base_ev) + permit_breaches(base_bal, removal),
+                                    scenario.dates, firm_days)
+    breaches = mark_windows(explain(scenario, lanes, chosen, ev) + permit_breaches(
+        plan_bal, removal if chosen.removal is None else None), scenario.dates, firm_days)
     dips = [] if chosen.removal is None else removal_dips(scenario, lanes, chosen, bal_of, lever, late_days)
     above = None
     if chosen.removal is not None:
