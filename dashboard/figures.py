@@ -300,7 +300,7 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
                margin_pct: float = 0.0) -> go.Figure:
     """The permit's rolling SO2 average against its limit (and the limit less the
     compliance margin ``margin_pct`` [%]), the daily value behind it, and the replay's
-    chance of being over the limit."""
+    chance of being over the limit (and over the margin line)."""
     fig = make_subplots(specs=[[{"secondary_y": True}]])
     fig.add_trace(go.Scatter(x=balance["date"], y=balance["so2_kg_per_gj"], mode="lines",
                              line=dict(color="#9fb3bf", width=1), name="daily",
@@ -324,6 +324,12 @@ def so2_figure(balance: pd.DataFrame, risk_frame: pd.DataFrame | None, avg_days:
                                  line=dict(color=_rgba(BAD, 0.6), width=1), fill="tozeroy",
                                  fillcolor=_rgba(BAD, 0.10), name="chance over the limit",
                                  hovertemplate="chance over %{y:.1f} %<extra></extra>"), secondary_y=True)
+        if margin_pct > 0 and "p_so2_over_margin" in lime:
+            fig.add_trace(go.Scatter(x=lime["date"], y=100 * lime["p_so2_over_margin"], mode="lines",
+                                     line=dict(color=_rgba(BAD, 0.45), width=1, dash="dot"),
+                                     name="chance over the margin line",
+                                     hovertemplate="chance over the margin line %{y:.1f} %<extra></extra>"),
+                          secondary_y=True)
     if risk_frame is not None:
         shade_outlook(fig, risk_frame[risk_frame["store"] == "limestone"])
     fig.update_layout(template=TEMPLATE, title="SO2 emitted against the permit [kg/GJ heat input]",
