@@ -126,3 +126,31 @@ def test_plant_manager_figures_draw_the_margin_line():
     fig = figures.so2_figure(r.balance, None, scn.plant.so2_limit_avg_days, scn.plant.so2_limit_margin_pct)
     line = [t for t in fig.data if t.name == "limit less the compliance margin"]
     assert line and np.allclose(line[0].y, 0.9 * r.balance["so2_limit_kg_per_gj"].to_numpy())
+
+
+@pytest.mark.parametrize("price,margin", [(30.0, 5.0), (80.0, 0.0), (40.0, 10.0)])
+def test_lever_terms_at_a_fixed_removal_match_the_model(price, margin):
+    """`model.lever_cost_at` is what the removal's families add to the objective: the
+    lever's model's optimum equals the same plan solved at its chosen removal without the
+    lever, plus `lever_cost_at` of that removal (so the silo's whole-plan gap compares the
+    two with one bound)."""
+    from reagentplan.schedule.lanes import build_lanes, firm_loads
+    from reagentplan.schedule.lever import RemovalLever
+    from reagentplan.schedule.model import build_periods, lever_cost_at, solve_plan
+    from reagentplan.schedule.terms import AllowanceTerms
+
+    s = one_day_station(allowance=price)
+    set_kv(s, "plant", "so2_limit_margin_pct", margin)
+    scn = load_scenario(workbook_bytes(s))
+    bal = balance_frame(scn)
+    lanes = build_lanes(scn, bal)
+    firm = firm_loads(scn, lanes)
+    lever = RemovalLever.from_scenario(scn)
+    allow = AllowanceTerms.from_scenario(scn)
+    with_lever = solve_plan(scn, bal, lanes, firm, {}, firm_days=7, lever=lever, allow=allow, gap=1e-9)
+    r = with_lever.plan.removal
+    at_r = balance_frame(scn, removal_pct=r)
+    fixed = solve_plan(scn, at_r, build_lanes(scn, at_r), firm, {}, firm_days=7, allow=allow, gap=1e-9)
+    periods = build_periods(scn.dates, 7)
+    extra = lever_cost_at(scn, lever, periods, np.array([r[a] for a, _ in periods]))
+    assert with_lever.objective == pytest.approx(fixed.objective + extra, rel=1e-6, abs=1e-3)

@@ -585,19 +585,27 @@ def _removal_variables(p: Problem) -> None:
         p.r = [p.model.add_variable(lb=p.lever.lo, ub=p.lever.hi, name=f"r[{k}]") for k in range(p.P)]
 
 
+def setpoint_move_rates(scenario: Scenario, lever, per_period, days_in) -> tuple[np.ndarray, np.ndarray]:
+    """Per period, the setpoint R_k [%] (the mean of its days) and the cost c_k of a point
+    away from it [money/%-point] (`_setpoint_move`); ``per_period`` sums day values."""
+    setpoint = per_period(np.asarray(lever.setpoint, float)) / days_in
+    per_point = per_period(np.abs(lever.slope["limestone_t"])) * cheapest_delivered_cost(scenario)
+    return setpoint, SETPOINT_MOVE_SHARE * per_point
+
+
 def _setpoint_move(p: Problem) -> None:
     """Setpoint: moving the removal away from the setpoint R_k [%] (the period's mean)
     costs c_k per %-point, up[k] ≥ r[k] − R_k, dn[k] ≥ R_k − r[k] (rows ``setpoint_up[k]``,
     ``setpoint_dn[k]``), c_k = `penalties.SETPOINT_MOVE_SHARE` × Σ_{d∈k} |∂stone_d/∂r| × the
-    cheapest delivered stone [money/t]: the plan leaves the operators' setpoint only for a
-    saving worth naming.  Only in the model (`evaluate` leaves it out)."""
+    cheapest delivered stone [money/t] (`setpoint_move_rates`): the plan leaves the
+    operators' setpoint only for a saving worth naming.  Only in the model (`evaluate`
+    leaves it out)."""
     if p.r is None:
         return
     lever = p.lever
-    setpoint = p.per_period(np.asarray(lever.setpoint, float)) / p.days_in
-    per_point = p.per_period(np.abs(lever.slope["limestone_t"])) * cheapest_delivered_cost(p.scenario)
+    setpoint, rate = setpoint_move_rates(p.scenario, lever, p.per_period, p.days_in)
     for k in range(p.P):
-        c = SETPOINT_MOVE_SHARE * float(per_point[k])
+        c = float(rate[k])
         if c <= 0:
             continue
         up = p.model.add_variable(lb=0, ub=lever.hi - lever.lo, name=f"up[{k}]")
@@ -1008,6 +1016,28 @@ def _silo_quality(p: Problem) -> None:
             p.row(i_before - um * j_before <= (chem.u_hi - um) * most_t * (1 - z), f"purity_before[{i}]")
 
 
+def permit_days(lever, periods, pid, margin: float, guard: np.ndarray | None):
+    """The permit's rows, day by day (`_permit`): (d, allowed [t], constant [t], {period:
+    coefficient [t/%-point]}, worst [t] at the removal that emits most, margin line [t],
+    guard g_d [-])."""
+    n = len(pid)
+    D = lever.avg_days
+    ic, sl = lever.intercept["so2_emitted_t"], lever.slope["so2_emitted_t"]
+    c_ic, c_sl = np.r_[0.0, np.cumsum(ic)], np.r_[0.0, np.cumsum(sl)]
+    c_heat = np.r_[0.0, np.cumsum(lever.heat_gj)]
+    g_all = np.ones(n) if guard is None else np.maximum(np.asarray(guard, float), 1.0)
+    for d in range(n):
+        lo_d = max(0, d - D + 1)
+        allowed = lever.limit_kg_per_gj * (c_heat[d + 1] - c_heat[lo_d]) / 1000.0
+        const = c_ic[d + 1] - c_ic[lo_d]
+        coefs = {}
+        for k in range(pid[lo_d], pid[d] + 1):
+            a, b = max(periods[k][0], lo_d), min(periods[k][1], d)
+            coefs[k] = c_sl[b + 1] - c_sl[a]
+        worst = const + sum(c * (lever.lo if c < 0 else lever.hi) for c in coefs.values())
+        yield d, allowed, const, coefs, worst, (1.0 - margin) * allowed, float(g_all[d])
+
+
 def _permit(p: Problem) -> None:
     """Permit: where the plan chooses the removal, for each day d the SO2 emitted over the
     averaging period D ending on d (affine in the removals r[k] of the periods it spans),
@@ -1021,39 +1051,57 @@ def _permit(p: Problem) -> None:
       the plan's own, ``permit_guard``): g_d E_d(r) − margin[d] ≤ (1 − m) E H / 1000
       (``permit_margin[d]``), margin [t] at `penalties.PERMIT_MARGIN_FACTOR` × p_short.
 
-    Days that keep a row even at the worst removal get no row."""
+    Days that keep a row even at the worst removal get no row (`permit_days`)."""
     lever = p.lever
     if p.r is None or lever.limit_kg_per_gj is None:
         return
-    pid, periods = p.pid, p.periods
-    n = len(pid)
-    D = lever.avg_days
-    ic, sl = lever.intercept["so2_emitted_t"], lever.slope["so2_emitted_t"]
-    c_ic, c_sl = np.r_[0.0, np.cumsum(ic)], np.r_[0.0, np.cumsum(sl)]
-    c_heat = np.r_[0.0, np.cumsum(lever.heat_gj)]
     penalty = p.scenario.plant.shortage_penalty_per_t
-    margin = float(getattr(p.scenario.plant, "so2_limit_margin_pct", 0.0) or 0.0) / 100
-    guard = np.ones(n) if p.permit_guard is None else np.maximum(np.asarray(p.permit_guard, float), 1.0)
-    for d in range(n):
-        lo_d = max(0, d - D + 1)
-        allowed = lever.limit_kg_per_gj * (c_heat[d + 1] - c_heat[lo_d]) / 1000.0
-        const = c_ic[d + 1] - c_ic[lo_d]
-        coefs = {}
-        for k in range(pid[lo_d], pid[d] + 1):
-            a, b = max(periods[k][0], lo_d), min(periods[k][1], d)
-            coefs[k] = c_sl[b + 1] - c_sl[a]
-        worst = const + sum(c * (lever.lo if c < 0 else lever.hi) for c in coefs.values())
+    margin = permit_margin(p.scenario)
+    for d, allowed, const, coefs, worst, line, g in permit_days(lever, p.periods, p.pid, margin, p.permit_guard):
         emitted = const + sum((float(c) * p.r[k] for k, c in coefs.items()), 0.0)
         if worst > allowed + 1e-9:
             over = p.model.add_variable(lb=0, ub=max(worst - allowed, 0.0) + 1.0, name=f"permit[{d}]")
             p.row(emitted - over <= allowed, f"permit[{d}]")
             p.cost.append(PERMIT_PENALTY_FACTOR * penalty * over)
-        if margin > 0 or guard[d] > 1.0:
-            g, line = float(guard[d]), (1.0 - margin) * allowed
-            if g * worst > line + 1e-9:
-                inside = p.model.add_variable(lb=0, ub=max(g * worst - line, 0.0) + 1.0, name=f"margin[{d}]")
-                p.row(g * emitted - inside <= line, f"permit_margin[{d}]")
-                p.cost.append(PERMIT_MARGIN_FACTOR * penalty * inside)
+        if (margin > 0 or g > 1.0) and g * worst > line + 1e-9:
+            inside = p.model.add_variable(lb=0, ub=max(g * worst - line, 0.0) + 1.0, name=f"margin[{d}]")
+            p.row(g * emitted - inside <= line, f"permit_margin[{d}]")
+            p.cost.append(PERMIT_MARGIN_FACTOR * penalty * inside)
+
+
+def permit_margin(scenario: Scenario) -> float:
+    """The plant's compliance margin as a fraction [-]."""
+    return float(getattr(scenario.plant, "so2_limit_margin_pct", 0.0) or 0.0) / 100
+
+
+def lever_cost_at(scenario: Scenario, lever, periods, removal_per_period: np.ndarray,
+                  permit_guard: np.ndarray | None = None) -> float:
+    """What the removal's families (`_setpoint_move`, `_permit`) add to the objective at a
+    removal fixed per period [%] [money]: the objective of a plan solved at that removal
+    without the lever (the byproducts at the chosen stone) plus this is the objective the
+    lever's model gives the same plan, so the two compare with one bound."""
+    if lever is None:
+        return 0.0
+    n = len(scenario.dates)
+    pid = np.empty(n, dtype=int)
+    for k, (a, b) in enumerate(periods):
+        pid[a:b + 1] = k
+    days_in = np.array([b - a + 1 for a, b in periods], dtype=float)
+    r = np.asarray(removal_per_period, dtype=float)
+    setpoint, rate = setpoint_move_rates(scenario, lever, lambda v: np.bincount(pid, weights=v, minlength=len(periods)),
+                                         days_in)
+    total = float(np.sum(rate * np.abs(r - setpoint)))
+    if lever.limit_kg_per_gj is None:
+        return total
+    penalty = scenario.plant.shortage_penalty_per_t
+    margin = permit_margin(scenario)
+    for d, allowed, const, coefs, worst, line, g in permit_days(lever, periods, pid, margin, permit_guard):
+        emitted = const + sum(c * r[k] for k, c in coefs.items())
+        if worst > allowed + 1e-9:
+            total += PERMIT_PENALTY_FACTOR * penalty * max(emitted - allowed, 0.0)
+        if (margin > 0 or g > 1.0) and g * worst > line + 1e-9:
+            total += PERMIT_MARGIN_FACTOR * penalty * max(g * emitted - line, 0.0)
+    return total
 
 
 def _allowances(p: Problem) -> None:

@@ -19,7 +19,7 @@ from .causes import explain, mark_windows
 from .evaluate import DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
 from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLimits, build_periods,
-                    end_caco3_value, solve_plan)
+                    end_caco3_value, lever_cost_at, solve_plan)
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint, setpoint_saving)
@@ -296,8 +296,13 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
     final.plan.removal = stone.removal
     clock = clock or final.clock_cut
     ev = evaluate(scenario, bal, lanes, final.plan)
-    # the chosen removal's permit excess is a constant of that solve: add it back
-    obj = final.objective + ev.costs.get("permit_penalty", 0.0)
+    # the chosen removal's setpoint move and permit terms are constants of that solve: add
+    # them back, so the objective is the one the lever's model gives this plan
+    periods = build_periods(scenario.dates, common["firm_days"])
+    obj = final.objective
+    if stone.removal is not None:
+        obj += lever_cost_at(scenario, lever, periods, np.array([stone.removal[a] for a, _ in periods]),
+                             common.get("permit_guard"))
     gap = max((obj - bound) / max(abs(obj), 1.0), 0.0) if np.isfinite(bound) else float("nan")
     final.objective, final.bound, final.gap, final.clock_cut = obj, bound, gap, clock
     final.status = "optimal" if gap <= common["gap"] * 1.0001 else "feasible"
