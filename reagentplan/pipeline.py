@@ -157,7 +157,9 @@ def run_plan_from_record(workbook: str | Path, engine, as_of: dt.date | None = N
     state = asof_state(scenario, record, as_of)
     planned = apply_asof(scenario, state, horizon_days)
     settings = settings_of(settings, **changes)
-    if previous is None and store:
+    if previous is None:
+        # the plan in force holds its firm loads (the change cost) whether or not this plan
+        # is stored: the dashboard's view of the record and `plan --db` then agree
         previous = plan_in_force(engine)
     run = run_plan(planned, settings, progress=progress, previous=previous, sampler=sampler)
     run.summary_extra.update(state.summary())
