@@ -161,6 +161,16 @@ def describe_outlook_breaches(outlook: list[dict], shown: int = 3) -> list[str]:
 DIPS_SHOWN = 3
 
 
+def _above_setpoint(saving: dict | None) -> str:
+    """What the days above the setpoint save, in words (`PlanResult.above_setpoint_saves`)."""
+    if not saving:
+        return ""
+    text = f" (saving {saving['saves']:,.0f} in cash against the setpoint on those days"
+    if saving.get("setpoint_penalty_weights", 0) > 0:
+        text += "; at the setpoint the permit or the allowance holding would break"
+    return text + ")"
+
+
 def describe_lever(summary: dict) -> list[str]:
     """The lines on the scrubber's removal (where the plan chose it: its mean and lowest
     against the setpoint and the range, then each dip below the setpoint with its cause,
@@ -173,13 +183,13 @@ def describe_lever(summary: dict) -> list[str]:
                      f"(setpoint {r['setpoint_pct']:g} %, range {r['min_pct']:g}-{r['max_pct']:g} %); "
                      f"{r['days_below_setpoint']} day(s) below the setpoint, "
                      f"{r['days_above_setpoint']} above"
-                     + (f" (saving {r['above_setpoint_saves']:,.0f} against the setpoint on those days)"
-                        if r.get("above_setpoint_saves") else ""))
+                     + _above_setpoint(r.get("above_setpoint_saves")))
         dips = r.get("dips") or []
         for d in dips[:DIPS_SHOWN]:
             when = (d["first_date"] if d["first_date"] == d["last_date"]
                     else f"{d['first_date']} to {d['last_date']}")
-            saves = f"; saves {d['saves']:,.0f}" if d.get("saves") is not None else ""
+            saves = (f"; saves {d['saves']:,.0f} in cash" if d.get("saves") is not None else "") + (
+                "; at the setpoint a limit would break" if d.get("setpoint_penalty_weights", 0) > 0 else "")
             lines.append(f"    - below the setpoint {when}, down to {d['lowest_pct']:.2f} %{saves}; "
                          f"cause: {d['cause']}")
         if len(dips) > DIPS_SHOWN:

@@ -234,21 +234,23 @@ def removal_dips(scenario: Scenario, lanes, plan, balance_of, lever: RemovalLeve
         out.append({"first_date": f"{dates[a]:%Y-%m-%d}", "last_date": f"{dates[b]:%Y-%m-%d}",
                     "lowest_pct": round(float(plan.removal[a:b + 1].min()), 3),
                     "setpoint_pct": round(float(setpoint[a]), 3), "cause": cause,
-                    "saves": round(setpoint_saving(scenario, lanes, plan, balance_of, setpoint, slice(a, b + 1)), 2),
+                    **_saving_keys(setpoint_saving(scenario, lanes, plan, balance_of, setpoint, slice(a, b + 1))),
                     "kind": "low limestone" if short else ("late train" if "late train" in cause
                                                             else "cheaper")})
     return out
 
 
-def setpoint_saving(scenario: Scenario, lanes, plan, balance_of, setpoint: np.ndarray, days) -> float:
-    """What running away from the setpoint on ``days`` (a slice or a mask) saves [money]: the plan priced by
-    `evaluate` with the removal at the setpoint on those days, less the plan as it is (the
-    same deliveries and shipments, the SO2 emitted more or less covered by allowances
-    bought or sold that day; a shortfall or permit excess that the move avoids counts at
-    its penalty)."""
+def setpoint_saving(scenario: Scenario, lanes, plan, balance_of, setpoint: np.ndarray, days) -> tuple[float, float]:
+    """What running away from the setpoint on ``days`` (a slice or a mask) saves [money], as
+    (cash, penalty weights): the plan priced by `evaluate` with the removal at the setpoint
+    on those days, less the plan as it is (the same deliveries and shipments, the SO2
+    emitted more or less covered by allowances bought or sold that day).  The penalty
+    weights are the limits the setpoint would break (the permit, the allowance holding,
+    the silo) at the workbook's prices on them."""
     from dataclasses import replace as dc_replace
 
     from .evaluate import evaluate
+    from .penalties import PENALTY_LINES
 
     removal = plan.removal.copy()
     removal[days] = setpoint[days]
@@ -260,8 +262,17 @@ def setpoint_saving(scenario: Scenario, lanes, plan, balance_of, setpoint: np.nd
         extra = bal_other["so2_emitted_t"].to_numpy(float) - bal["so2_emitted_t"].to_numpy(float)
         other = dc_replace(other, bought_t=plan.bought_t + np.clip(extra, 0, None),
                            sold_t=plan.sold_t + np.clip(-extra, 0, None))
-    return float(evaluate(scenario, bal_other, lanes, other).total_cost
-                 - evaluate(scenario, bal, lanes, plan).total_cost)
+    a = evaluate(scenario, bal_other, lanes, other).costs
+    b = evaluate(scenario, bal, lanes, plan).costs
+    diff = {k: a.get(k, 0.0) - b.get(k, 0.0) for k in set(a) | set(b)}
+    penalties = sum(v for k, v in diff.items() if k in PENALTY_LINES)
+    return float(sum(diff.values()) - penalties), float(penalties)
+
+
+def _saving_keys(saving: tuple[float, float]) -> dict:
+    """``saves`` (cash [money]) and ``setpoint_penalty_weights`` (the penalty weights the
+    setpoint would have cost: the limits it would break) of `setpoint_saving`."""
+    return {"saves": round(saving[0], 2), "setpoint_penalty_weights": round(saving[1], 2)}
 
 
 def lever_days(result) -> pd.DataFrame | None:

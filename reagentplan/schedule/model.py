@@ -133,7 +133,7 @@ class WorkLimits:
     time limit, the same work gives the same plan on a quiet or a loaded machine (one
     thread, a fixed seed)."""
 
-    nodes: int = 1000
+    nodes: int = 200
     bound_nodes: int = 0
     placement_nodes: int = 200
     placement_gap: float = 1e-4

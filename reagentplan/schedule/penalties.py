@@ -73,6 +73,12 @@ CHANGE_COST_PER_LOAD = 250.0
 LATE_TRAIN_DAYS = 2
 
 
+#: The cost lines of `evaluate` that are penalty weights (the workbook's or these factors'
+#: price on a broken limit), not cash.
+PENALTY_LINES = ("shortage_penalty", "overflow_penalty", "empty_penalty", "quality_penalty", "permit_penalty",
+                 "allowance_penalty")
+
+
 @dataclass(frozen=True)
 class Penalty:
     """One row of the table: the constant's name, its value, its unit and what it means."""

@@ -23,6 +23,7 @@ from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLim
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
                     removal_setpoint, setpoint_saving)
+from .penalties import PENALTY_LINES
 from .quality import SiloChemistry
 from .settle import earliest_departures
 
@@ -119,8 +120,10 @@ class PlanResult:
     baseline_balance: pd.DataFrame | None = None
     iterations: list[dict] | None = None
     removal_dips: list[dict] | None = None
-    #: what running above the setpoint saves [money] (`lever.setpoint_saving`)
-    above_setpoint_saves: float | None = None
+    #: what running above the setpoint saves: ``saves`` (cash) and
+    #: ``setpoint_penalty_weights`` (the limits the setpoint would break) [money]
+    #: (`lever.setpoint_saving`)
+    above_setpoint_saves: dict | None = None
     stability: dict | None = None
     silo: SiloReport | None = None
 
@@ -187,9 +190,8 @@ class PlanResult:
 
 def _penalties(ev: Evaluation) -> float:
     """The penalty weights of an evaluation [money]: below safety, over capacity, empty,
-    off-spec shipments, over the permit, without allowances."""
-    return sum(ev.costs.get(k, 0.0) for k in ("shortage_penalty", "overflow_penalty", "empty_penalty",
-                                               "quality_penalty", "permit_penalty", "allowance_penalty"))
+    off-spec shipments, over the permit, without allowances (`penalties.PENALTY_LINES`)."""
+    return sum(ev.costs.get(k, 0.0) for k in PENALTY_LINES)
 
 
 def held_loads(scenario: Scenario, lanes: list[Lane], firm: dict, previous: pd.DataFrame | None,
@@ -464,7 +466,8 @@ def make_plan(scenario: Scenario, balance: pd.DataFrame | None = None, *,
     if chosen.removal is not None:
         sp = removal_setpoint(scenario)
         up = chosen.removal > sp + 0.01
-        above = round(setpoint_saving(scenario, lanes, chosen, bal_of, sp, up), 2) if up.any() else 0.0
+        cash, pen = setpoint_saving(scenario, lanes, chosen, bal_of, sp, up) if up.any() else (0.0, 0.0)
+        above = {"saves": round(cash, 2), "setpoint_penalty_weights": round(pen, 2)}
     stability = None
     if keep:
         held = sum(float(v.sum()) for v in keep.values())
