@@ -176,12 +176,12 @@ def weekly_loop(workbook: Path, folder: Path, weeks: int = 8, *, horizon_days: i
             # the piles are surveyed at the week's end: the book less the plant's drift, with noise
             record = load_record(engine)
             state = asof_state(scenario, record, week_end)
-            booked = past_balance(scenario, record, days[0].date(), week_end)
+            as_booked = past_balance(scenario, record, days[0].date(), week_end)
             real = past_balance(true_plant(scenario), record, days[0].date(), week_end)
             # the truth: the book (rolled with the workbook's factors) corrected by what
             # the real plant used and made more than the workbook says
-            extra = {"limestone": -float(real["limestone_t"].sum() - booked["limestone_t"].sum()),
-                     "gypsum": float(real["gypsum_wet_t"].sum() - booked["gypsum_wet_t"].sum())}
+            extra = {"limestone": -float(real["limestone_t"].sum() - as_booked["limestone_t"].sum()),
+                     "gypsum": float(real["gypsum_wet_t"].sum() - as_booked["gypsum_wet_t"].sum())}
             found = {}
             rows = []
             for store in ("limestone", "gypsum"):
