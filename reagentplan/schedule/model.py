@@ -1057,8 +1057,19 @@ def _permit(p: Problem) -> None:
         return
     penalty = p.scenario.plant.shortage_penalty_per_t
     margin = permit_margin(p.scenario)
+    # the emissions summed from the first day, S[d] = S[d−1] + a_d + b_d r[k(d)] (rows
+    # ``so2_sum[d]``), so each rolling sum is S[d] − S[d−D]: two terms a row, not D
+    ic, sl = lever.intercept["so2_emitted_t"], lever.slope["so2_emitted_t"]
+    most = float(np.sum(np.maximum(ic + sl * lever.lo, ic + sl * lever.hi))) + 1.0
+    cum, prev = [], 0.0
+    for d in range(p.n):
+        v = p.model.add_variable(lb=-most, ub=most, name=f"so2_sum[{d}]")
+        p.row(v == prev + float(ic[d]) + float(sl[d]) * p.r[int(p.pid[d])], f"so2_sum[{d}]")
+        cum.append(v)
+        prev = v
     for d, allowed, const, coefs, worst, line, g in permit_days(lever, p.periods, p.pid, margin, p.permit_guard):
-        emitted = const + sum((float(c) * p.r[k] for k, c in coefs.items()), 0.0)
+        lo_d = max(0, d - lever.avg_days + 1)
+        emitted = cum[d] - (cum[lo_d - 1] if lo_d > 0 else 0.0)
         if worst > allowed + 1e-9:
             over = p.model.add_variable(lb=0, ub=max(worst - allowed, 0.0) + 1.0, name=f"permit[{d}]")
             p.row(emitted - over <= allowed, f"permit[{d}]")
