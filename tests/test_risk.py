@@ -76,22 +76,33 @@ def test_more_sulfur_spread_raises_limestone_risk_and_an_extra_train_lowers_it()
 def _station_at_the_limit(days=14, margin=None):
     """The removal lever's one-day station (`test_removal_lever.one_day_station`): 100 t of
     SO2 a day reach the scrubber, the permit allows 3 t a day on a one-day average, the
-    setpoint is 98 %, and at 40 per allowance the plan runs at the permit's 97 %: its
-    rolling average sits exactly on the limit."""
+    setpoint is 98 %, and at 30 per allowance a point down saves 51.36 − 30 = 21.36, more
+    than the setpoint's cost of moving (12.84), so the plan, unguarded and with no
+    compliance margin, runs at the permit's 97 %: its rolling average sits exactly on the
+    limit."""
     from test_removal_lever import one_day_station, set_kv
-    from reagentplan.schema import SHEETS
 
-    s = one_day_station(days=days, allowance=40.0)
-    plant_keys = {f.name for sheet in SHEETS if sheet.name == "plant" for f in sheet.fields}
-    if margin is not None and "so2_limit_margin_pct" in plant_keys:
+    s = one_day_station(days=days, allowance=30.0)
+    if margin is not None:
         set_kv(s, "plant", "so2_limit_margin_pct", margin)
     return load_scenario(workbook_bytes(s))
 
 
 @pytest.fixture(scope="module")
 def at_the_limit():
-    scn = _station_at_the_limit(margin=5)
-    return run_plan(scn, futures=100, seed=1, time_limit=30, firm_days=14)
+    """The plan made without futures (so the permit is not guarded and the plan sits on
+    the limit), then replayed against 100 sampled futures as `plan` replays it."""
+    from types import SimpleNamespace
+
+    from reagentplan.forecast import sample_futures
+    from reagentplan.pipeline import FUTURE_FLOWS, SO2_FLOWS, STORE_FLOWS
+
+    scn = _station_at_the_limit(margin=0)
+    fut = sample_futures(scn, 100, seed=1, keep=FUTURE_FLOWS)
+    plan = make_plan(scn, firm_days=14)
+    flows = {st: fut.flows[q] for st, q in STORE_FLOWS.items() if st in scn.storage and q in fut.flows}
+    risk = replay(plan, flows, so2={k: fut.flows[k] for k in SO2_FLOWS})
+    return SimpleNamespace(plan=plan, futures=fut, risk=risk)
 
 
 def test_permit_risk_is_computed_at_the_chosen_removal(at_the_limit):

@@ -847,8 +847,11 @@ def _store_balance(p: Problem, store: str, st) -> None:
             p.lots = SiloLots(m, chem, p.lanes, st.initial_t, most)
         else:
             # room for the fixed ratio of inerts drawn: the replayed silo may draw a
-            # little more stone than the linearised model did
+            # little more (or less) stone than the linearised model did, so its level is
+            # kept that share inside both limits (on the demo, without the capacity side,
+            # the chosen stone overflowed the silo by 426-515 t on two outlook days)
             safety += SILO_SAFETY_MARGIN * st.safety_t
+            capacity -= SILO_SAFETY_MARGIN * st.capacity_t
         need = (p.column("need", chem.need), p.column_most("need", chem.need))
         prev_j = st.initial_t * chem.initial_caco3
         p.silo_inerts.clear()

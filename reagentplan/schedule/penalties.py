@@ -53,9 +53,9 @@ ALLOWANCE_SHORT_PENALTY_FACTOR = 5.0
 #: limits, then buys what protection it can.
 GUARD_WEIGHT = 0.25
 
-#: Share of the limestone safety stock the quality-coupled model keeps above it [-]: room
-#: for the fixed ratio of inerts drawn, as the replayed silo may draw a little more stone
-#: than the linearised model did.
+#: Share of the limestone safety stock the quality-coupled model keeps above it, and of
+#: the silo's capacity it keeps below it [-]: room for the fixed ratio of inerts drawn, as
+#: the replayed silo may draw a little more (or less) stone than the linearised model did.
 SILO_SAFETY_MARGIN = 0.03
 
 #: Money per load the plan gives up by moving or cancelling a load that the previous plan
@@ -106,7 +106,7 @@ TABLE: tuple[Penalty, ...] = (
     Penalty("GUARD_WEIGHT", GUARD_WEIGHT, "x shortage/overflow penalty",
             "a guarded (worse-future) or late-train shortfall against a planned one"),
     Penalty("SILO_SAFETY_MARGIN", SILO_SAFETY_MARGIN, "x safety stock",
-            "extra limestone kept above safety when the silo's mix is modelled"),
+            "room kept inside the silo's safety stock and capacity when its mix is modelled"),
     Penalty("CHANGE_COST_PER_LOAD", CHANGE_COST_PER_LOAD, "money/load",
             "moving or cancelling a load the previous plan held in the firm window"),
     Penalty("LATE_TRAIN_DAYS", LATE_TRAIN_DAYS, "d",
