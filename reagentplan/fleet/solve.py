@@ -88,9 +88,31 @@ def _shared_car_sets(probs: dict[str, Problem], sets, model: mathopt.Model) -> N
             if b - a + 1 > ts.window_days:
                 terms = [p.x[l.name][k] for p, l in members if p.x[l.name][k] is not None]
                 if terms:
+                    open_days = np.zeros(b - a + 1, dtype=bool)
+                    for _, l in members:
+                        open_days |= np.asarray(l.open[a:b + 1], bool)
                     model.add_linear_constraint(
-                        sum(terms, 0.0) <= ts.max_trains * int(np.ceil((b - a + 1) / ts.window_days)),
+                        sum(terms, 0.0) <= ts.max_trains * windows_to_cover(open_days, ts.window_days),
                         name=f"fleet_train_set_bucket[{ts.train_set},{k}]")
+
+
+def windows_to_cover(open_days: np.ndarray, window: int) -> int:
+    """The fewest windows of ``window`` days that cover every open day of a bucket
+    (greedy from the first uncovered day, which is optimal on a line): a bucket takes at
+    most N trains per such window, tighter than N ⌈length / W⌉ where the set's lanes
+    run on few weekdays."""
+    count, d, n = 0, 0, len(open_days)
+    while d < n:
+        if open_days[d]:
+            count += 1
+            d += window
+        else:
+            d += 1
+    return count
+
+
+def _in_shared_set(lane, sets) -> bool:
+    return lane.kind == SUPPLY and getattr(lane.source, "train_set", None) in {t.train_set for t in sets}
 
 
 def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver, gap, time_limit,
@@ -98,12 +120,25 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
     model = mathopt.Model(name="fleet")
     probs: dict[str, Problem] = {}
     for s in stations:
+        own = None
+        if totals is not None:
+            # a shared set's trains: the week's total at most (``fleet_week[l,a]``), so
+            # that the set's window, exact day by day, can always be kept
+            own = {l.name: [] if _in_shared_set(l, sets) else totals[s.name][l.name] for l in s.lanes}
         p = Problem(s.open, s.balance, s.lanes, s.firm, s.guard, periods, solver, chem=s.chem,
-                    lin=lins.get(s.name), lever=s.lever, allow=s.allow,
-                    totals=None if totals is None else totals[s.name], late_days=late_days,
+                    lin=lins.get(s.name), lever=s.lever, allow=s.allow, totals=own, late_days=late_days,
                     margin_days=firm_days, permit_guard=s.pguard, into=model, prefix=f"{s.name}:")
         formulate(p)
         probs[s.name] = p
+        if totals is not None:
+            for lane in s.lanes:
+                if not _in_shared_set(lane, sets):
+                    continue
+                for a, b, q in totals[s.name][lane.name]:
+                    terms = [v for v in p.x[lane.name][a:b + 1] if v is not None]
+                    if terms:
+                        model.add_linear_constraint(sum(terms, 0.0) <= float(q) + 1e-6,
+                                                    name=f"{s.name}:fleet_week[{lane.name},{a}]")
     cost = [p.objective for p in probs.values()]
     _pooled_contracts(probs, contracts, model, cost)
     _shared_car_sets(probs, sets, model)

@@ -174,7 +174,6 @@ def load_fleet(source: str | os.PathLike) -> Fleet:
     t_rows = read_table_into(raw["shared_train_sets"], SHARED_TRAIN_SETS, out) if "shared_train_sets" in raw else []
     if not st_rows and not out.problems:
         out.add("stations", None, None, "no station", "one row per station (station, workbook)")
-    out.fail()
     stations = []
     for r in st_rows:
         name = str(r["station"]).strip()
@@ -214,7 +213,7 @@ def _check_same_calendar(stations: list[Station], out: Collector) -> None:
             a, b = get(first.scenario.plant), get(s.scenario.plant)
             if a != b:
                 out.add("stations", s.row, "workbook",
-                        f"station '{s.station}' has {what} {b} but station '{first.station}' has {a}",
+                        f"station '{s.station}' has {what} {b} but station '{first.station}' has {what} {a}",
                         f"every station of the fleet with the same {what} (plant sheet)")
 
 
