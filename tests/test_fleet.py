@@ -212,3 +212,30 @@ def test_fleet_plan_never_dearer_than_the_hand_split_and_room_goes_where_it_pays
     for name in STATIONS:
         own = json.loads((out / name / "summary.json").read_text())
         assert own["total_cost"] == pytest.approx(summary["stations"][name]["total_cost"], abs=0.01)
+
+
+def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
+    """A station whose quarries give their own CaCO3 (its silo linearised at its hand
+    split's replay, every plan replayed exactly) shares the board plant's room with two
+    plain stations: the independent replay of its silo, purity on every shipping day and
+    train windows (`plancheck.check_plan`) finds nothing its plan does not list."""
+    from plancheck import check_plan
+    from test_schedule import two_quarries
+
+    def as_quarries(s):
+        q = two_quarries(days=DAYS, seed=1)
+        s.clear()
+        s.update(q)
+
+    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": as_quarries},
+                       contracts=[["Board pool", "Board Co", "gypsum", None, 5000, None]], sets=[])
+    fleet = load_fleet(path)
+    assert fleet.station("east").scenario.quality_coupled
+    result = plan_fleet(fleet, futures=0, firm_days=FIRM)
+    assert result.groups == [["north", "south", "east"]]
+    r = result.runs["east"].plan
+    assert check_plan(r.scenario, r.movements.astype({"date": str}), r.balance, r.inventory, r.breaches) == []
+    s = fleet_summary(result)
+    assert s["total_cost"] <= s["baseline_total_cost"] + 1e-6
+    for month in s["shared_contracts"]["Board pool"].values():
+        assert month["tonnes"] <= month["max_t"] + 1e-6
