@@ -239,3 +239,26 @@ def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
     assert s["total_cost"] <= s["baseline_total_cost"] + 1e-6
     for month in s["shared_contracts"]["Board pool"].values():
         assert month["tonnes"] <= month["max_t"] + 1e-6
+
+
+def test_trains_go_to_the_stations_that_burn_while_one_unit_is_out(tmp_path):
+    """North's unit is out for two weeks and the car set brings one train in six days to
+    the three stations: in the fleet plan the set's trains of those weeks go to the other
+    two stations, and the fleet costs no more than the hand split."""
+    out_days = range(14, 28)
+
+    def outage(s):
+        for i in out_days:
+            s["generation"][1 + i][2] = 0.0
+
+    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"north": outage},
+                       contracts=[["Quarry pool", "Quarry Q", "limestone", None, 6000, None]], sets=[["Q set", 1, 6]])
+    result = plan_fleet(load_fleet(path), futures=0, firm_days=DAYS)
+    trains = {n: r.plan.movements.query("party == 'Quarry Q'").set_index("date")["loads"]
+              for n, r in result.runs.items()}
+    days = pd.date_range(START, periods=DAYS, freq="D")[list(out_days)]
+    during = {n: int(t[t.index.isin(days)].sum()) for n, t in trains.items()}
+    assert during["north"] == 0
+    assert during["south"] + during["east"] >= 2
+    assert result.total_cost <= result.baseline_total_cost + 1e-6
+    assert fleet_summary(result)["shared_train_sets"]["Q set"]["most_in_window"] <= 1

@@ -384,7 +384,11 @@ def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettin
                           so2=so2 if len(so2) == len(SO2_FLOWS) else None)
         runs[s.name] = PlanRun(result, s.fut, risk, {"contract_months": contract_month_note(s.open),
                                                      "fleet": {"name": fleet.name, "planned_with": names,
-                                                               "hand_split": s.split}})
+                                                               "hand_split": s.split,
+                                                               "objective_scope": "objective, bound and gap are "
+                                                               "the joint model's, of every station planned with "
+                                                               "this one; baseline_total_cost is the hand split's; "
+                                                               "pooled shortfalls are in fleet_summary.json"}})
     plans_out = {s.name: (s.lanes, runs[s.name].plan.plan) for s in stations}
     return runs, plans_out, {s.name: (s.lanes, s.base) for s in stations}, \
         {s.name: s.split for s in stations}, (solver, objective, bound, seconds, status)

@@ -111,6 +111,54 @@ def windows_to_cover(open_days: np.ndarray, window: int) -> int:
     return count
 
 
+def repair_car_sets(stations, plans: dict, sets) -> dict:
+    """A warm start that keeps every shared car set's window: the hand split's trains (each
+    station keeping its own share of the set) can meet in one window at several stations.
+    Day by day, a train that would break a window moves to the nearest earlier open day of
+    its lane that breaks none, else the nearest later one within the window, else it is
+    dropped (the store's soft limits then price the gap).  Booked trains never move.
+    Returns new `DailyPlan`s (copies; ``plans`` is left as it was)."""
+    import copy
+
+    out = {k: copy.copy(v) for k, v in plans.items()}
+    for k in out:
+        out[k].quantity = {n: np.array(q, copy=True) for n, q in plans[k].quantity.items()}
+    for ts in sets:
+        members = [(s, l) for s in stations for l in s.lanes
+                   if l.kind == SUPPLY and getattr(l.source, "train_set", None) == ts.train_set]
+        if not members:
+            continue
+        n = len(members[0][0].open.dates)
+        w = ts.window_days
+        trains = np.zeros(n)
+        for s, l in members:
+            trains += out[s.name].quantity[l.name]
+
+        def fits(day: int) -> bool:
+            lo, hi = max(0, day - w + 1), min(n - w, day)
+            return all(trains[a:a + w].sum() + 1 <= ts.max_trains + 1e-9 for a in range(lo, max(hi, lo) + 1))
+
+        for d in range(n):
+            for s, l in members:
+                q = out[s.name].quantity[l.name]
+                booked = out[s.name].booked.get(l.name, np.zeros(n, int))
+                while q[d] > booked[d]:
+                    trains[d] -= 1
+                    if fits(d):
+                        trains[d] += 1
+                        break
+                    q[d] -= 1
+                    cap = l.max_per_day
+                    spots = [e for e in range(d - 1, max(-1, d - w - 1), -1) if l.open[e] and q[e] < cap]
+                    spots += [e for e in range(d + 1, min(n, d + w)) if l.open[e] and q[e] < cap]
+                    for e in spots:
+                        if fits(e):
+                            q[e] += 1
+                            trains[e] += 1
+                            break
+    return out
+
+
 def _in_shared_set(lane, sets) -> bool:
     return lane.kind == SUPPLY and getattr(lane.source, "train_set", None) in {t.train_set for t in sets}
 
@@ -170,7 +218,8 @@ def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: 
     periods = build_periods(first_st.open.dates, firm_days)
     lins = {s.name: s.chem.linearisation(s.lanes, s.base, periods, _silo_floor(s.open))
             for s in stations if s.chem is not None}
-    sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints={s.name: s.base for s in stations},
+    start = repair_car_sets(stations, {s.name: s.base for s in stations}, sets)
+    sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints=start,
                         totals=None, solver=solver, gap=gap, time_limit=time_limit, node_limit=work.nodes,
                         scale=scale, late_days=late_days, firm_days=firm_days)
     plans = {s.name: spread_to_days(s.open, s.balance, s.lanes, s.firm, periods, sols[s.name].quantity,
@@ -185,7 +234,8 @@ def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: 
                  for s in stations if s.chem is not None}
         left = max(time_limit - (time.perf_counter() - t0), 5.0)
         try:
-            sols2, _ = _one_pass(stations, contracts, sets, daily, lins=lins2, hints=plans, totals=totals,
+            sols2, _ = _one_pass(stations, contracts, sets, daily, lins=lins2,
+                                 hints=repair_car_sets(stations, plans, sets), totals=totals,
                                  solver=solver, gap=work.placement_gap, time_limit=left,
                                  node_limit=work.placement_nodes, scale=scale, late_days=late_days,
                                  firm_days=firm_days)
