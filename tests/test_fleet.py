@@ -27,14 +27,9 @@ def _plan_cli(fleet_path, out, *extra) -> int:
 # --------------------------------------------------------------------------- bad input
 
 
-def _bad(tmp_path, capsys, **kw) -> str:
-    path = write_fleet(tmp_path / "f", days=DAYS, **kw)
-    return path
-
-
-def _run_bad(path, tmp_path, capsys) -> str:
+def _run_bad(path, tmp_path, capsys, *extra) -> str:
     out = tmp_path / "out"
-    code = _plan_cli(path, out)
+    code = _plan_cli(path, out, *extra)
     err = capsys.readouterr().err
     assert code == 2, err
     assert not out.exists(), "nothing may be written for bad input"
@@ -262,3 +257,59 @@ def test_trains_go_to_the_stations_that_burn_while_one_unit_is_out(tmp_path):
     assert during["south"] + during["east"] >= 2
     assert result.total_cost <= result.baseline_total_cost + 1e-6
     assert fleet_summary(result)["shared_train_sets"]["Q set"]["most_in_window"] <= 1
+
+
+def test_a_fleet_planned_from_its_stations_records(tmp_path, capsys):
+    """`plan FLEET.xlsx --as-of DATE`: each station from its own record (opening stock,
+    month-to-date), the pooled maximum's first month less the tonnes the records say all
+    the stations took already (1,010 t each on 2 March in `record_data`), each plan
+    stored as a version in its station's record; a station without a record is an input
+    error naming its row."""
+    from record_data import record_sheets, write_record
+
+    from reagentplan.record.db import connect
+    from reagentplan.record.versions import plan_ids
+
+    folder = tmp_path / "f"
+    write_fleet(folder, days=DAYS)
+    as_of = START - dt.timedelta(days=1)
+    rows = fleet_rows({}, [["Quarry pool", "Quarry Q", "limestone", None, 5000, None]], [["Q set", 2, 7]])
+    rows["stations"] = [["station", "workbook", "db"]]
+    for name in ("north", "south"):
+        url = f"sqlite:///{tmp_path / (name + '.db')}"
+        assert main(["db", "upgrade", "--db", url]) == 0
+        week = write_record(record_sheets(), tmp_path / f"{name}-week.xlsx")
+        assert main(["record", str(week), "--db", url, "--scenario", str(folder / f"{name}.xlsx"),
+                     "--as-of", f"{as_of}"]) == 0
+        rows["stations"].append([name, f"{name}.xlsx", url])
+    path = write_workbook(rows, folder / "recorded.xlsx")
+    capsys.readouterr()
+    out = tmp_path / "out"
+    code = _plan_cli(path, out, "--as-of", f"{as_of}")
+    assert code in (0, 1), capsys.readouterr().err
+    summary = json.loads((out / "fleet_summary.json").read_text())
+    march = summary["shared_contracts"]["Quarry pool"]["2030-03"]
+    assert march["max_t"] == pytest.approx(5000 - 2 * 1010.0)
+    mv = _movements_of(out, ("north", "south"))
+    in_march = mv[(mv["party"] == "Quarry Q") & (mv["date"] < "2030-04-01")]["tonnes"].sum()
+    assert in_march <= 5000 - 2020 + 1e-6
+    for name in ("north", "south"):
+        own = json.loads((out / name / "summary.json").read_text())
+        assert own["as_of"] == f"{as_of}" and own["plan_id"] is not None
+        engine = connect(rows["stations"][1 + ("north", "south").index(name)][2])
+        assert plan_ids(engine) == [own["plan_id"]]
+        engine.dispose()
+    # a station without a record
+    rows["stations"].append(["east", "east.xlsx", None])
+    path = write_workbook(rows, folder / "recorded2.xlsx")
+    err = _run_bad(path, tmp_path / "again", capsys, "--as-of", f"{as_of}")
+    assert "sheet 'stations', row 4, column 'db': station 'east' has no record" in err
+
+
+def _movements_of(out, names) -> pd.DataFrame:
+    frames = []
+    for name in names:
+        m = pd.read_csv(out / name / "movements.csv", parse_dates=["date"])
+        m["station"] = name
+        frames.append(m)
+    return pd.concat(frames, ignore_index=True)

@@ -38,18 +38,26 @@ def plan(args, settings) -> int:
     from ..output.fleet import write_fleet
     from ..summary import describe_warnings
 
-    if args.db or args.as_of:
+    if args.db or args.calibrated:
         from ..errors import Problem, ScenarioError
 
-        raise ScenarioError(Problem(None, None, "--db", "a fleet workbook with --db/--as-of",
-                                    "a fleet planned from its workbooks (planning a fleet from its stations' "
-                                    "records is not built yet)"), "The command line")
+        opt = "--db" if args.db else "--calibrated"
+        raise ScenarioError(Problem(None, None, opt, f"{opt} with a fleet workbook",
+                                    "each station's record in the stations sheet's db column, and --as-of DATE "
+                                    "(a fleet is not planned with calibrated factors yet)"), "The command line")
     fleet = load_fleet(args.workbook)
     for s in fleet.stations:
         text = describe_warnings(s.scenario.warnings)
         if text:
             print(f"[{s.station}] {text}", file=sys.stderr)
-    result = plan_fleet(fleet, settings, progress=True)
+    if args.as_of:
+        from ..fleet.record import plan_fleet_from_records
+
+        result = plan_fleet_from_records(fleet, args.as_of, settings, horizon_days=args.horizon_days,
+                                         user=args.user, progress=True)
+        fleet = result.fleet
+    else:
+        result = plan_fleet(fleet, settings, progress=True)
     summary = fleet_summary(result)
     with staged_output(args.out) as tmp:
         write_fleet(result.runs, summary, fleet_frames(result), tmp)

@@ -48,14 +48,14 @@ from ..schedule.lanes import SUPPLY, build_lanes, contract_month_note, firm_load
 from ..schedule.lever import AllowanceTerms, RemovalLever, baseline_trades
 from ..schedule.model import SolveOutcome, SolveStatus, WorkLimits
 from ..schedule.permit import permit_breaches
-from ..schedule.plan import (PlanResult, _penalties, flows_at_plan_stone, guard_margins, permit_guard,
+from ..schedule.plan import (PlanResult, _penalties, flows_at_plan_stone, guard_margins, held_loads, permit_guard,
                              saving_by_cause)
 from ..schedule.quality import SiloChemistry
 from ..schedule.settle import earliest_departures
 from ..settings import PlanSettings
 from .solve import solve_joint
-from .split import (covers, expected_use, has_party, hand_scenario, month_limits, open_scenario, shares,
-                    uses_set)
+from .split import (covers, expected_use, has_party, hand_scenario, month_limits, open_scenario,
+                    pool_month_to_date, shares, uses_set)
 from .workbook import Fleet
 
 
@@ -81,6 +81,7 @@ class StationWork:
     base_bal: pd.DataFrame | None = None
     base_ev: Evaluation | None = None
     split: dict = field(default_factory=dict)
+    keep: dict = field(default_factory=dict)
 
     def bal_of(self, p: DailyPlan) -> pd.DataFrame:
         """The balance a plan makes: at its silo's stone and its removal."""
@@ -177,8 +178,9 @@ def pool_accounts(fleet: Fleet, plans: dict[str, tuple[list, DailyPlan]]) -> dic
     dates = fleet.stations[0].scenario.dates
     month_index, months, _ = horizon_months(dates)
     out = {"contracts": {}, "cost": 0.0, "breaches": [], "shortfalls": []}
+    scenarios = [s.scenario for s in fleet.stations]
     for c in fleet.shared_contracts:
-        lo, hi = month_limits(dates, c)
+        lo, hi = month_limits(dates, c, pool_month_to_date(scenarios, c))
         rate = CONTRACT_PENALTY_PER_T if c.shortfall_per_t is None else float(c.shortfall_per_t)
         rows = {}
         for j, m in enumerate(months):
@@ -267,7 +269,8 @@ def _sample(scn: Scenario, settings: PlanSettings, progress: bool):
     return sample_futures(scn, settings.futures, seed=settings.seed, progress=progress, keep=FUTURE_FLOWS)
 
 
-def _prepare(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettings) -> list[StationWork]:
+def _prepare(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettings,
+             previous: dict | None = None) -> list[StationWork]:
     """Each station of a joint group: its open and hand-split scenarios, lanes, guard and
     hand-split baseline (priced on the open lanes: pooled shortfalls go to the fleet)."""
     balances = {n: balance_frame(fleet.station(n).scenario) for n in names}
@@ -318,12 +321,14 @@ def _prepare(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettings)
                                                              horizon_months(opened.dates)[0])
         w.base_ev = evaluate(opened, w.base_bal, lanes, w.base)
         w.split = {"contracts": c_share.get(n, {}), "train_sets": t_share.get(n, {})}
+        w.keep = held_loads(opened, lanes, firm, (previous or {}).get(n), settings.firm_days)
         out.append(w)
     return out
 
 
-def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettings, work: WorkLimits | None):
-    stations = _prepare(fleet, names, futs, settings)
+def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettings, work: WorkLimits | None,
+                previous: dict | None = None):
+    stations = _prepare(fleet, names, futs, settings, previous)
     contracts = [c for c in fleet.shared_contracts if any(has_party(s.scenario, c) for s in stations)]
     sets = [t for t in fleet.shared_train_sets if any(uses_set(s.scenario, t) for s in stations)]
     solver = settings.solver
@@ -334,7 +339,9 @@ def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettin
     try:
         plans, first, seconds = solve_joint(stations, contracts, sets, firm_days=settings.firm_days, solver=solver,
                                             gap=settings.gap, time_limit=settings.time_limit,
-                                            late_days=_late_days(), work=work, scale=scale)
+                                            late_days=_late_days(), work=work, scale=scale,
+                                            used={c.contract: pool_month_to_date([s.open for s in stations], c)
+                                                  for c in contracts})
         state, status = first.status, first.status.value + note
         objective, bound, gap = first.objective, first.bound, first.gap
         clock = first.clock_cut
@@ -401,9 +408,12 @@ def _late_days() -> int:
 
 
 def plan_fleet(fleet: Fleet, settings: PlanSettings | None = None, *, progress: bool = False,
-               work: WorkLimits | None = None, decompose: bool = True, **changes) -> FleetResult:
+               work: WorkLimits | None = None, decompose: bool = True, previous: dict | None = None,
+               **changes) -> FleetResult:
     """Plan every station of ``fleet`` (settings as `pipeline.run_plan`).  ``decompose``
-    False plans even stations nothing ties in one joint model (the tests compare the two)."""
+    False plans even stations nothing ties in one joint model (the tests compare the two).
+    ``previous``: per station, the movements of the plan in force (a load it held in the
+    firm window costs the change cost to move, as `make_plan` prices it)."""
     settings = settings_of(settings, **changes)
     t0 = time.perf_counter()
     futs = {s.station: _sample(s.scenario, settings, progress) for s in fleet.stations}
@@ -414,7 +424,8 @@ def plan_fleet(fleet: Fleet, settings: PlanSettings | None = None, *, progress: 
     for names in groups:
         if decompose and len(names) == 1 and not touched(fleet, names[0]):
             n = names[0]
-            run = plan_with_futures(fleet.station(n).scenario, futs[n], settings, progress=progress)
+            run = plan_with_futures(fleet.station(n).scenario, futs[n], settings, progress=progress,
+                                    previous=(previous or {}).get(n))
             run.summary_extra["fleet"] = {"name": fleet.name, "planned_with": [n], "hand_split": {}}
             runs[n] = run
             plans[n] = (run.plan.lanes, run.plan.plan)
@@ -425,7 +436,7 @@ def plan_fleet(fleet: Fleet, settings: PlanSettings | None = None, *, progress: 
             statuses.append(run.plan.outcome.status)
             continue
         g_runs, g_plans, g_bases, g_split, (solver, obj, bound, _, status) = _plan_group(fleet, names, futs, settings,
-                                                                                       work)
+                                                                                       work, previous)
         runs.update(g_runs)
         plans.update(g_plans)
         bases.update(g_bases)

@@ -40,11 +40,11 @@ def _members(p: Problem, contract) -> list:
     return [l for l in p.lanes if l.kind != "landfill" and covers(contract, l.source)]
 
 
-def _pooled_contracts(probs: dict[str, Problem], contracts, model: mathopt.Model, cost: list) -> None:
+def _pooled_contracts(probs: dict[str, Problem], contracts, model: mathopt.Model, cost: list,
+                      used: dict | None = None) -> None:
     first = next(iter(probs.values()))
-    lo, hi = {}, {}
     for c in contracts:
-        lo, hi = month_limits(first.scenario.dates, c)
+        lo, hi = month_limits(first.scenario.dates, c, (used or {}).get(c.contract))
         rate = CONTRACT_PENALTY_PER_T if c.shortfall_per_t is None else float(c.shortfall_per_t)
         for j in range(len(first.months)):
             ks = np.flatnonzero(first.period_month == j)
@@ -164,7 +164,8 @@ def _in_shared_set(lane, sets) -> bool:
 
 
 def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver, gap, time_limit,
-              node_limit, scale, late_days, firm_days) -> tuple[dict[str, PeriodSolution], dict[str, Problem]]:
+              node_limit, scale, late_days, firm_days, used=None, change_cost=None
+              ) -> tuple[dict[str, PeriodSolution], dict[str, Problem]]:
     model = mathopt.Model(name="fleet")
     probs: dict[str, Problem] = {}
     for s in stations:
@@ -175,7 +176,8 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
             own = {l.name: [] if _in_shared_set(l, sets) else totals[s.name][l.name] for l in s.lanes}
         p = Problem(s.open, s.balance, s.lanes, s.firm, s.guard, periods, solver, chem=s.chem,
                     lin=lins.get(s.name), lever=s.lever, allow=s.allow, totals=own, late_days=late_days,
-                    margin_days=firm_days, permit_guard=s.pguard, into=model, prefix=f"{s.name}:")
+                    margin_days=firm_days, permit_guard=s.pguard, into=model, prefix=f"{s.name}:",
+                    keep=s.keep or None, **({} if change_cost is None else {"change_cost": change_cost}))
         formulate(p)
         probs[s.name] = p
         if totals is not None:
@@ -188,7 +190,7 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
                         model.add_linear_constraint(sum(terms, 0.0) <= float(q) + 1e-6,
                                                     name=f"{s.name}:fleet_week[{lane.name},{a}]")
     cost = [p.objective for p in probs.values()]
-    _pooled_contracts(probs, contracts, model, cost)
+    _pooled_contracts(probs, contracts, model, cost, used)
     _shared_car_sets(probs, sets, model)
     model.minimize(sum(cost, 0.0))
     values = {}
@@ -203,7 +205,8 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
 
 
 def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: float, time_limit: float,
-                late_days: int, work: WorkLimits | None = None, scale: float | None = None):
+                late_days: int, work: WorkLimits | None = None, scale: float | None = None,
+                used: dict | None = None, change_cost: float | None = None):
     """Plan the stations together: the joint model over the firm window's days and the
     outlook's weeks, then (when the horizon has weeks) day by day with each outlook week's
     totals held (arrivals exactly, sales at most), so the shared car set's window holds
@@ -221,7 +224,8 @@ def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: 
     start = repair_car_sets(stations, {s.name: s.base for s in stations}, sets)
     sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints=start,
                         totals=None, solver=solver, gap=gap, time_limit=time_limit, node_limit=work.nodes,
-                        scale=scale, late_days=late_days, firm_days=firm_days)
+                        scale=scale, late_days=late_days, firm_days=firm_days, used=used,
+                        change_cost=change_cost)
     plans = {s.name: spread_to_days(s.open, s.balance, s.lanes, s.firm, periods, sols[s.name].quantity,
                                     sols[s.name], s.lever) for s in stations}
     first = next(iter(sols.values()))
@@ -238,7 +242,7 @@ def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: 
                                  hints=repair_car_sets(stations, plans, sets), totals=totals,
                                  solver=solver, gap=work.placement_gap, time_limit=left,
                                  node_limit=work.placement_nodes, scale=scale, late_days=late_days,
-                                 firm_days=firm_days)
+                                 firm_days=firm_days, used=used, change_cost=change_cost)
             plans = {s.name: spread_to_days(s.open, s.balance, s.lanes, s.firm, daily, sols2[s.name].quantity,
                                             sols2[s.name], s.lever) for s in stations}
             first.clock_cut = first.clock_cut or next(iter(sols2.values())).clock_cut

@@ -97,13 +97,31 @@ def hand_scenario(scn: Scenario, contracts, contract_share: dict[str, float], se
                    train_sets=tuple(own))
 
 
-def month_limits(dates: pd.DatetimeIndex, contract: SharedContract) -> tuple[np.ndarray, np.ndarray]:
+def month_limits(dates: pd.DatetimeIndex, contract: SharedContract,
+                 used_t: float | None = None) -> tuple[np.ndarray, np.ndarray]:
     """The pooled minimum and maximum [t] of each horizon month as they apply to its
-    planned days (a part month as a station's own contract is cut, `lanes._monthly`)."""
+    planned days (a part month as a station's own contract is cut, `lanes._monthly`):
+    ``used_t`` [t], the first month's tonnes already moved at all the stations (their
+    records' month-to-date), else the contract's even pace before the first day."""
     from ..schedule.lanes import _monthly, horizon_months, month_span
 
     _, months, share = horizon_months(dates)
     span = month_span(dates)
-    lo = _monthly(contract.min_t_per_month, share, months, bound="min", span=span)
-    hi = _monthly(contract.max_t_per_month, share, months, bound="max", span=span)
+    lo = _monthly(contract.min_t_per_month, share, months, bound="min", span=span, used_t=used_t)
+    hi = _monthly(contract.max_t_per_month, share, months, bound="max", span=span, used_t=used_t)
     return lo, hi
+
+
+def pool_month_to_date(scenarios: list[Scenario], contract: SharedContract) -> float | None:
+    """The tonnes of the first planned month already moved under ``contract`` at all its
+    stations [t] (each scenario's ``month_to_date`` per lane, from its record), or None
+    when a station of the contract has no record (the even pace is assumed then)."""
+    total = 0.0
+    for scn in scenarios:
+        rows = [r for r in (*scn.suppliers, *scn.buyers) if covers(contract, r)]
+        if not rows:
+            continue
+        if scn.month_to_date is None:
+            return None
+        total += sum(float(scn.month_to_date.get(r.lane, 0.0)) for r in rows)
+    return total
