@@ -313,3 +313,32 @@ def _movements_of(out, names) -> pd.DataFrame:
         m["station"] = name
         frames.append(m)
     return pd.concat(frames, ignore_index=True)
+
+
+def test_study_of_a_fleet_on_dask(tmp_path, capsys):
+    """`study FLEET.xlsx` with a station's spec and a fleet sheet's: the full grid, each
+    case the fleet planned together, run on a local Dask cluster; a spec naming no
+    station of the fleet is bad input."""
+    path = write_fleet(tmp_path / "f", days=DAYS)
+    out = tmp_path / "study"
+    args = ["study", str(path), "--out", str(out), "--futures", "5", "--firm-days", str(FIRM),
+            "--cluster", "local", "--workers", "1",
+            "--vary", "north:storage[gypsum].capacity_t=3000,6000",
+            "--vary", "shared_contracts[Board pool].max_t_per_month=2500,4000"]
+    assert main(args) == 0, capsys.readouterr().err
+    frame = pd.read_csv(out / "study.csv")
+    assert list(frame["case"]) == [1, 2, 3, 4]
+    assert {"north:storage[gypsum].capacity_t", "shared_contracts[Board pool].max_t_per_month", "total_cost",
+            "cost_p50", "north_total_cost", "breaches"} <= set(frame.columns)
+    # more pooled room for the board plant never costs the fleet more (same futures)
+    by = frame.set_index(["north:storage[gypsum].capacity_t", "shared_contracts[Board pool].max_t_per_month"])
+    for cap in (3000, 6000):
+        assert by.loc[(cap, 4000), "total_cost"] <= by.loc[(cap, 2500), "total_cost"] + 1e-6
+    assert (out / "study.xlsx").is_file()
+    capsys.readouterr()
+    bad = ["study", str(path), "--out", str(tmp_path / "bad"), "--cluster", "serial",
+           "--vary", "nort:storage[gypsum].capacity_t=3000,6000"]
+    assert main(bad) == 2
+    err = capsys.readouterr().err
+    assert "names the station 'nort', which the fleet has not (did you mean 'north'?)" in err
+    assert not (tmp_path / "bad").exists()

@@ -85,3 +85,27 @@ def plan(args, settings) -> int:
     print(f"\nWrote {', '.join(sorted(result.runs))}/, fleet_summary.json, fleet.xlsx to {args.out}")
     print(f"\nCaution: {CAUTION}")
     return EXIT_BREACH if summary["breaches"] else EXIT_OK
+
+
+def study(args, settings) -> int:
+    from ..fleet.study import build_fleet_grid, pick_fleet_winner, run_fleet_study
+    from ..output import staged_output
+    from ..output.fleet import write_fleet_study
+
+    grid = build_fleet_grid(args.workbook, args.vary, max_cases=args.max_cases)
+    print(f"{len(grid.cases)} case(s) of the fleet '{grid.base.name}' ({len(grid.base.stations)} stations), "
+          f"{settings.futures} futures per station (same seed in every case)")
+    frame = run_fleet_study(grid, settings, cluster=args.cluster, workers=args.workers)
+    winner = pick_fleet_winner(frame, settings.risk_level)
+    with staged_output(args.out) as tmp:
+        write_fleet_study(frame, winner, tmp)
+    cols = ["case", *[s.target for s in grid.specs], "total_cost", "baseline_total_cost", "breaches"]
+    print(frame[[c for c in cols if c in frame]].to_string(index=False))
+    if winner is None:
+        print("No case keeps every limit within the risk level.")
+    else:
+        label = next(c for c in grid.cases if c.case == winner).label(grid.specs)
+        print(f"Winner: case {winner} ({label})")
+    print(f"\nWrote study.csv, study.xlsx to {args.out}")
+    print(f"\nCaution: {CAUTION}")
+    return EXIT_OK

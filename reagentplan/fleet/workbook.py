@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import Problem, ScenarioError
-from ..scenario import Scenario, load_scenario
+from ..scenario import Scenario, load_scenario, scenario_from_raw
 from ..scenario.tables import Collector, did_you_mean, read_keyvalue_into, read_table_into
 from ..schema import Field, Sheet
 from ..units import VARIANTS
@@ -148,8 +148,12 @@ def _station_problems(station: str, err: ScenarioError) -> list[Problem]:
                     p.expected) for p in err.problems]
 
 
-def load_fleet(source: str | os.PathLike) -> Fleet:
+def load_fleet(source: str | os.PathLike, *, raw: dict[str, RawSheet] | None = None,
+               station_raws: dict[str, dict[str, RawSheet]] | None = None) -> Fleet:
     """Read and check a fleet workbook and every station workbook it names.
+
+    ``raw``: the fleet workbook's sheets already read (a study's variant of them);
+    ``station_raws``: per station, its workbook's sheets already read (likewise).
 
     Raises
     ------
@@ -157,7 +161,7 @@ def load_fleet(source: str | os.PathLike) -> Fleet:
         Listing every problem, located by (station,) sheet, Excel row and column.
     """
     path = Path(source)
-    raw = read_raw(path)
+    raw = read_raw(path) if raw is None else raw
     out = Collector()
     for name in raw:
         if name not in {s.name for s in SHEETS} and name not in NOTE_SHEETS:
@@ -184,7 +188,10 @@ def load_fleet(source: str | os.PathLike) -> Fleet:
                     "a station's scenario workbook, a path relative to the fleet workbook's folder")
             continue
         try:
-            scn = load_scenario(wb)
+            if station_raws and name in station_raws:
+                scn = scenario_from_raw(station_raws[name], wb.name)
+            else:
+                scn = load_scenario(wb)
         except ScenarioError as e:
             out.problems.extend(_station_problems(name, e))
             continue

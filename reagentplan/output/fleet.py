@@ -59,3 +59,23 @@ def write_fleet(runs: dict, summary: dict, frames: dict[str, pd.DataFrame], fold
     paths.append(write_json(summary, folder / "fleet_summary.json"))
     paths.append(write_fleet_workbook(summary, frames, folder / "fleet.xlsx"))
     return paths
+
+
+def write_fleet_study(frame: pd.DataFrame, winner: int | None, folder: Path) -> list[Path]:
+    """A fleet study's ``study.csv`` (one row per case) and ``study.xlsx`` (the same table
+    and the winner)."""
+    from .files import write_csv
+
+    folder = Path(folder)
+    paths = [write_csv(frame, folder / "study.csv")]
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Study"
+    ws.append(list(frame.columns))
+    for row in frame.itertuples(index=False):
+        ws.append([None if (isinstance(v, float) and pd.isna(v)) else v for v in row])
+    ws.freeze_panes = "A2"
+    info = wb.create_sheet("Winner")
+    info.append(["winner case", winner])
+    paths.append(save_workbook(wb, folder / "study.xlsx"))
+    return paths
