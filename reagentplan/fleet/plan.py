@@ -343,6 +343,9 @@ def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettin
                                             used={c.contract: pool_month_to_date([s.open for s in stations], c)
                                                   for c in contracts})
         state, status = first.status, first.status.value + note
+        if first.clock_cut:
+            status += (f" (the {settings.time_limit:g} s safety net cut a solve short: a re-run may give another "
+                       "plan; allow more time with --time-limit)")
         objective, bound, gap = first.objective, first.bound, first.gap
         clock = first.clock_cut
     except RuntimeError as e:
