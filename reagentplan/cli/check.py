@@ -16,7 +16,10 @@ def register(sub) -> None:
 def run(args) -> int:
     from ..scenario import load_scenario
     from ..summary import describe_scenario
+    from .fleet import check as check_fleet, is_fleet
 
+    if is_fleet(args.workbook):
+        return check_fleet(args)
     scenario = load_scenario(args.workbook)
     n = len(scenario.warnings)
     print(f"{args.workbook}: the workbook is sound"

@@ -52,7 +52,18 @@ def run(args) -> int:
         print(f"--port {args.port}: expected a port from 0 to 65535.", file=sys.stderr)
         return EXIT_BAD_INPUT
     from ..dashboard.app import create_app, serve
+    from .fleet import is_fleet
 
+    if args.workbook and is_fleet(args.workbook):
+        from ..dashboard.fleet import create_fleet_app
+
+        print(f"Planning the fleet of {args.workbook} ({plan_settings(args, PLAN).futures} futures per station)...")
+        app = create_fleet_app(args.workbook, settings=plan_settings(args, PLAN), password=password)
+        print(f"Fleet dashboard on http://{args.host}:{args.port}/"
+              + (" (password required)" if password else "") + "; Ctrl+C stops it.")
+        print(f"Caution: {CAUTION}")
+        serve(app, args.host, args.port, trusted_proxy=args.trusted_proxy)
+        return EXIT_OK
     from ..plancache import cache_dir
 
     settings = plan_settings(args, PLAN)

@@ -46,6 +46,10 @@ def run(args) -> int:
     from ..summary import describe_plan, describe_risk
 
     settings = plan_settings(args, PLAN)
+    from .fleet import is_fleet, plan as plan_fleet
+
+    if is_fleet(args.workbook):
+        return plan_fleet(args, settings)
     from_record = bool(args.db or args.as_of or os.environ.get("REAGENTPLAN_DB"))
     if args.calibrated and not from_record:
         from ..errors import Problem

@@ -51,6 +51,10 @@ def run(args) -> int:
     if problems:
         raise ScenarioError(problems)
     settings = plan_settings(args, STUDY)
+    from .fleet import is_fleet, study as study_fleet
+
+    if is_fleet(args.workbook):
+        return study_fleet(args, settings)
     grid, shared = prepare_study(args.workbook, args.vary, futures=settings.futures, seed=settings.seed,
                                  max_cases=args.max_cases)
     print(f"{len(grid.cases)} case(s) of {grid.base.plant.name}; {shared.n_futures} futures "

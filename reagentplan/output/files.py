@@ -29,11 +29,20 @@ def staged_output(out_dir: str | os.PathLike) -> Iterator[Path]:
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent))
     try:
         yield tmp
-        out.mkdir(exist_ok=True)
-        for item in sorted(tmp.iterdir()):
-            os.replace(item, out / item.name)
+        _move_into(tmp, out)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
+
+
+def _move_into(src: Path, out: Path) -> None:
+    """Move every file of ``src`` into ``out``, file by file; a sub-folder (a fleet's
+    station folder) is merged into the one already there."""
+    out.mkdir(exist_ok=True)
+    for item in sorted(src.iterdir()):
+        if item.is_dir() and (out / item.name).is_dir():
+            _move_into(item, out / item.name)
+        else:
+            os.replace(item, out / item.name)
 
 
 def write_csv(frame: pd.DataFrame, path: Path, float_format: str = "%.10g") -> Path:

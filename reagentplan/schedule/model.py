@@ -461,7 +461,13 @@ class Problem:
     silo_lots: bool = False
     limestone_end_per_t: float | None = None
     permit_guard: np.ndarray | None = None
+    #: formulate into this MathOpt model (several stations' problems in one model,
+    #: `reagentplan.fleet`) instead of one of its own: every variable and row name then
+    #: starts with ``prefix`` and the objective is left in ``objective`` for the caller
+    into: mathopt.Model | None = None
+    prefix: str = ""
     # ---- built by formulate
+    objective: object = field(init=False, default=None)
     model: mathopt.Model = field(init=False)
     pid: np.ndarray = field(init=False)
     days_in: np.ndarray = field(init=False)
@@ -489,7 +495,7 @@ class Problem:
         self.days_in = np.array([b - a + 1 for a, b in self.periods], dtype=float)
         self.month_index, self.months, _ = horizon_months(self.scenario.dates)
         self.period_month = np.array([self.month_index[a] for a, _ in self.periods])
-        self.model = mathopt.Model(name="reagentplan")
+        self.model = mathopt.Model(name="reagentplan") if self.into is None else _Named(self.into, self.prefix)
 
     @property
     def n(self) -> int:
@@ -540,6 +546,30 @@ class Problem:
     def row(self, expr, name: str):
         """Add a named linear row."""
         return self.model.add_linear_constraint(expr, name=name)
+
+
+class _Named:
+    """A MathOpt model shared by several problems: the variables and rows one problem adds
+    are named with its ``prefix`` (MathOpt refuses two of one name); the rest is the
+    model's own."""
+
+    def __init__(self, model: mathopt.Model, prefix: str):
+        self._model, self._prefix = model, prefix
+
+    def add_variable(self, *, lb: float = -np.inf, ub: float = np.inf, is_integer: bool = False, name: str = ""):
+        return self._model.add_variable(lb=lb, ub=ub, is_integer=is_integer, name=self._prefix + name)
+
+    def add_integer_variable(self, *, lb: float = -np.inf, ub: float = np.inf, name: str = ""):
+        return self._model.add_integer_variable(lb=lb, ub=ub, name=self._prefix + name)
+
+    def add_binary_variable(self, *, name: str = ""):
+        return self._model.add_binary_variable(name=self._prefix + name)
+
+    def add_linear_constraint(self, bounded_expr=None, *, lb=None, ub=None, expr=None, name: str = ""):
+        return self._model.add_linear_constraint(bounded_expr, lb=lb, ub=ub, expr=expr, name=self._prefix + name)
+
+    def __getattr__(self, attr):
+        return getattr(self._model, attr)
 
 
 def formulate(p: Problem) -> Problem:
@@ -1195,7 +1225,9 @@ def _objective(p: Problem) -> None:
         if lane.name in p.firm:
             f_loads, f_t = p.firm[lane.name]
             booked += lane.cost_per_t * f_t.sum() + lane.cost_per_load * f_loads.sum()
-    p.model.minimize(sum(p.cost, 0.0) + sum(p.end_value, 0.0) + float(booked))
+    p.objective = sum(p.cost, 0.0) + sum(p.end_value, 0.0) + float(booked)
+    if p.into is None:
+        p.model.minimize(p.objective)
 
 
 # ====================================================================== days

@@ -1,0 +1,126 @@
+"""The fleet dashboard (``reagentplan dashboard FLEET.xlsx``): a fleet view (each pooled
+contract month by month with every station's share, the shared car sets' arrivals by
+day, every station's stores at a glance) and, behind a station picker, the station's
+own views (deliveries and orders, stores and risk, byproduct sales) of its part of the
+fleet plan.  The fleet is planned once when the app is made (`reagentplan.fleet`); the
+callback only selects the station's plan and hands it to the views."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import flask
+from dash import Dash, Input, Output, dcc, html
+
+from reagentplan import CAUTION, __version__
+
+from . import fleet_figures
+from .security import install_basic_auth, install_body_limit, install_headers, install_origin_check
+from .style import INDEX_STRING
+from .views import coordinator, plant, sales
+from .views.common import card, fmt_money
+
+STATION_VIEWS = (("coordinator", "Deliveries & orders", coordinator), ("plant", "Stores & risk", plant),
+                 ("sales", "Byproduct sales", sales))
+PICKER = "fleet-station"
+MAX_REQUEST_BYTES = 1024 * 1024
+
+
+def _stores_table(stores) -> html.Table:
+    cols = ["station", "store", "opening_t", "lowest_t", "highest_t", "end_t", "safety_t", "capacity_t",
+            "days_below_safety", "days_over_capacity"]
+    head = html.Tr([html.Th(c.replace("_", " ")) for c in cols])
+    rows = [html.Tr([html.Td(f"{r[c]:,.0f}" if isinstance(r[c], float) else str(r[c])) for c in cols],
+                    className="rp-row-warn" if r["days_below_safety"] or r["days_over_capacity"] else None)
+            for r in stores.to_dict("records")]
+    return html.Table([html.Thead(head), html.Tbody(rows)], className="rp-table", id="fleet-stores")
+
+
+def fleet_view(summary: dict, frames: dict) -> html.Div:
+    """The fleet tab: pooled contracts, car sets, stores at a glance, where the room went."""
+    cur = summary["currency"]
+    graphs = [card(dcc.Graph(id=f"fleet-pool-{i}", figure=fleet_figures.pooled_figure(frames["Pooled contracts"], c),
+                             style={"height": "380px"}), wide=True)
+              for i, c in enumerate(summary["shared_contracts"])]
+    graphs += [card(dcc.Graph(id=f"fleet-cars-{i}", figure=fleet_figures.cars_figure(frames["Car sets"], t),
+                              style={"height": "360px"}), wide=True)
+               for i, t in enumerate(summary["shared_train_sets"])]
+    room = frames["Pooled room"]
+    room_rows = [html.Li(f"{r['contract']}: {r['station']} {r['tonnes']:,.0f} t (hand split {r['hand_split_tonnes']:,.0f} t)")
+                 for r in room.to_dict("records")]
+    saving = summary["baseline_total_cost"] - summary["total_cost"]
+    return html.Div(className="rp-view", id="fleet-view", children=[
+        html.P(f"The fleet plan costs {fmt_money(summary['total_cost'], cur)} against the hand split's "
+               f"{fmt_money(summary['baseline_total_cost'], cur)} (saving {fmt_money(saving, cur)}); "
+               f"{len(summary['breaches'])} limit(s) broken.", className="rp-view-intro", id="fleet-intro"),
+        html.Div(className="rp-grid", children=[
+            *graphs,
+            card(_stores_table(frames["Stores"]), wide=True, title="Every station's stores at a glance"),
+            card(html.Ul(room_rows, id="fleet-room"), title="Where the pooled room went"),
+        ]),
+    ])
+
+
+def fleet_layout(result, summary: dict, frames: dict) -> html.Div:
+    names = list(result.runs)
+    tabs = [dcc.Tab(label="Fleet", value="fleet", className="rp-tab", selected_className="rp-tab--selected",
+                    children=fleet_view(summary, frames), id="tab-fleet")]
+    tabs += [dcc.Tab(label=label, value=value, className="rp-tab", selected_className="rp-tab--selected",
+                     children=view.layout(), id=f"tab-{value}") for value, label, view in STATION_VIEWS]
+    return html.Div(className="rp-page", children=[
+        html.Header(className="rp-header", children=[
+            html.Div(className="rp-brand", children=[
+                html.Div("reagentplan · a fleet of stations", className="rp-sub",
+                         style={"color": "#d9a441", "letterSpacing": ".6px", "marginTop": 0}),
+                html.Div(result.fleet.name, className="rp-name", id="header-title"),
+                html.Div(f"{len(names)} stations · {result.status}", className="rp-sub", id="header-sub"),
+            ]),
+            html.Div(className="rp-kpis", children=[
+                html.Span("Station: "),
+                dcc.RadioItems(id=PICKER, options=[{"label": n, "value": n} for n in names], value=names[0],
+                               inline=True),
+            ]),
+        ]),
+        html.Div(CAUTION, className="rp-caution", id="caution"),
+        html.Main(className="rp-main", children=[
+            dcc.Tabs(id="views", value="fleet", className="rp-tabs", children=tabs),
+        ]),
+        html.Div(f"reagentplan {__version__} · everything on this page is served from this machine; "
+                 "nothing is fetched from elsewhere.", className="rp-foot"),
+    ])
+
+
+def create_fleet_app(workbook: str | os.PathLike, *, settings=None, password: str | None = None,
+                     result=None, origins: tuple[str, ...] = ()) -> Dash:
+    """The fleet dashboard of ``workbook`` (planned here unless ``result`` is given)."""
+    from reagentplan.fleet import fleet_frames, fleet_summary, load_fleet, plan_fleet
+
+    if result is None:
+        result = plan_fleet(load_fleet(Path(workbook)), settings)
+    summary, frames = fleet_summary(result), fleet_frames(result)
+    server = flask.Flask("reagentplan.dashboard.fleet")
+    install_origin_check(server, loopback_only=not password, origins=origins)
+    if password:
+        install_basic_auth(server, password)
+    app = Dash(__name__, server=server, serve_locally=True, title="reagentplan · fleet", update_title=None,
+               include_assets_files=False)
+    prefix = app.config.requests_pathname_prefix or "/"
+    app.index_string = INDEX_STRING.replace(
+        "PLOTLY_JS_URL", f"{prefix}_dash-component-suites/plotly/package_data/plotly.min.js")
+    install_body_limit(server, MAX_REQUEST_BYTES)
+    install_headers(server)
+    app.layout = fleet_layout(result, summary, frames)
+    outputs = [(key, "figure" if key in view.FIGURE_OUTPUTS else "children")
+               for _, _, view in STATION_VIEWS for key in view.OUTPUTS]
+
+    @app.callback([Output(k, p) for k, p in outputs], Input(PICKER, "value"))
+    def show_station(station):
+        run = result.runs[station]
+        contents = {}
+        for _, _, view in STATION_VIEWS:
+            contents.update(view.content(run))
+        return [contents[k] for k, _ in outputs]
+
+    app.reagentplan_fleet = result
+    return app
