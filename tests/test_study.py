@@ -429,7 +429,8 @@ def test_ctrl_c_stops_the_study_and_keeps_the_finished_cases(tmp_path):
     assert "Running on tcp://127.0.0.1:" in stdout and "Dask dashboard: http://" in stdout
     frame = pd.read_csv(out / "study.csv")
     assert len(frame) == 40
-    done = frame[frame["status"] == "optimal"]
+    # a case's plan ends "optimal" or, where its solves reach their node limit, "feasible"
+    done = frame[frame["status"].isin(["optimal", "feasible"])]
     assert 4 <= len(done) < 40
-    assert set(frame["status"]) == {"optimal", "not run"}
+    assert set(frame["status"]) - {"optimal", "feasible"} == {"not run"}
     assert json.loads((out / "study.json").read_text())["interrupted"] is True
