@@ -133,8 +133,11 @@ def header_content(run, meta: dict) -> list:
              html.Div(f"solver {s['solver']}: {s['status']}"
                       + ((f", proven within {100 * s['gap']:.2f} % of the best possible cost"
                           if not scn.quality_coupled else
-                          f", within {100 * s['gap']:.2f} % of the best byproduct plan at the chosen stone")
+                          f", within {100 * s['gap']:.2f} % of a lower bound on every plan of the mixed silo"
+                          + ("" if (s.get("silo") or {}).get("settled") else " (its successive solves had not settled)"))
                          if s["gap"] is not None else "")
+                      + ("; the wall-clock safety net cut a solve short: a re-run may differ"
+                         if s.get("clock_cut") else "")
                       + (f", made {made} in {secs:.1f} s" if secs is not None else ""))]
     return [title, sub, kpis, label]
 
