@@ -32,6 +32,7 @@ from ortools.math_opt.python import mathopt
 from ..schedule.evaluate import CONTRACT_PENALTY_PER_T
 from ..schedule.lanes import SUPPLY
 from ..schedule.model import (PeriodSolution, Problem, SolveStatus, WorkLimits, _hint_values, _read_solution,
+                              window_period_sets,
                               _silo_floor, build_periods, formulate, run_solver, spread_to_days)
 from .split import covers, month_limits
 
@@ -73,12 +74,7 @@ def _shared_car_sets(probs: dict[str, Problem], sets, model: mathopt.Model) -> N
                    if l.kind == SUPPLY and getattr(l.source, "train_set", None) == ts.train_set]
         if not members:
             continue
-        seen = set()
-        for d in range(n):
-            inside = tuple(np.flatnonzero((starts >= d) & (ends <= d + ts.window_days - 1)))
-            if not inside or inside in seen:
-                continue
-            seen.add(inside)
+        for d, inside in window_period_sets(periods, ts.window_days, n):
             terms = [p.x[l.name][k] for p, l in members for k in inside if p.x[l.name][k] is not None]
             booked = float(sum(p.firm_loads(l)[starts[k]:ends[k] + 1].sum() for p, l in members for k in inside))
             if terms:

@@ -786,6 +786,19 @@ def _freight_tier(p: Problem, lane: Lane, j: int) -> None:
         p.cost.append((float(lane.source.tier_freight_per_load) - lane.cost_per_load) * extra)
 
 
+def window_period_sets(periods: list[tuple[int, int]], window_days: int, n: int):
+    """Each distinct set of whole periods inside a window of ``window_days`` days starting
+    on a day d, once, as (d, period indices): the periods a car set's window row sums."""
+    starts = np.array([a for a, _ in periods])
+    ends = np.array([b for _, b in periods])
+    seen = set()
+    for d in range(n):
+        inside = tuple(np.flatnonzero((starts >= d) & (ends <= d + window_days - 1)))
+        if inside and inside not in seen:
+            seen.add(inside)
+            yield d, inside
+
+
 def _car_set(p: Problem, ts) -> None:
     """Car sets (train sets): the lanes sharing a set bring at most N_T trains in any
     W consecutive days: for every distinct group K of periods lying inside a W-day window,
@@ -798,12 +811,7 @@ def _car_set(p: Problem, ts) -> None:
         return
     starts = np.array([a for a, _ in p.periods])
     ends = np.array([b for _, b in p.periods])
-    seen = set()
-    for d in range(n):
-        inside = tuple(np.flatnonzero((starts >= d) & (ends <= d + ts.window_days - 1)))
-        if not inside or inside in seen:
-            continue
-        seen.add(inside)
+    for d, inside in window_period_sets(p.periods, ts.window_days, n):
         terms = [p.x[l.name][k] for l in members for k in inside if p.x[l.name][k] is not None]
         booked_loads = float(sum(p.firm_loads(l)[starts[k]:ends[k] + 1].sum() for l in members for k in inside))
         if terms:
