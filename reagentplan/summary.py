@@ -103,8 +103,9 @@ def describe_plan(result) -> str:
     s = result.summary()
     cur = s["currency"]
     mv = result.movements
+    gap = "not proven" if s["gap"] is None else f"{s['gap'] * 100:.2f} %"
     lines = [f"Plan for {result.scenario.plant.name}: solver {s['solver']} ({s['status']}, gap "
-             f"{(s['gap'] or 0) * 100:.2f} %, {s['solve_seconds']:.1f} s)",
+             f"{gap}, {s['solve_seconds']:.1f} s)",
              f"  the gap covers {s['gap_scope']}",
              *([f"  the silo's successive solves {'settled' if s['silo']['settled'] else 'did not settle'}: "
                 f"{s['silo']['why']}"] if s.get("silo") else []),
@@ -255,7 +256,8 @@ def describe_demo(run, out, files: list[str]) -> str:
              f"  {'  of which penalty weights':34} {bpen - pen:>14,.0f} {cur}"
              "   (the workbook's price on a tonne below safety or over capacity)",
              f"  {'limestone trains / trucks booked':34} {trains:>8} / {trucks}",
-             f"  {'gap to the best plan at most':34} {100 * (s['gap'] or 0):>13.2f} %"
+             (f"  {'gap to the best plan at most':34} {100 * s['gap']:>13.2f} %" if s["gap"] is not None
+              else f"  {'gap to the best plan':34} {'not proven':>15}")
              + ("   (the silo's solves settled)" if s.get("silo", {}).get("settled")
                 else "   (the silo's solves had not settled)" if s.get("silo") else ""),
              *(["  the wall-clock safety net cut a solve short: a re-run may give another plan"]
