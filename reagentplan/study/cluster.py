@@ -78,10 +78,14 @@ def study_client(cluster: str = "local", workers: int | None = None, *,
         n = workers or default_workers()
         # Ctrl-C in a terminal reaches the whole process group: the worker processes are
         # started with SIGINT ignored, so only this process handles it (and closes them)
+        # the workers' own log lines are silenced up to CRITICAL: a case that fails reaches
+        # the study as its future's exception (with its message), and what they log
+        # otherwise is shutdown noise (on a loaded machine, after Ctrl-C, a worker's
+        # heartbeat to the scheduler already closed logs an ERROR with a traceback)
         with _sigint_ignored():
             local = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
                                  dashboard_address=":0" if dashboard else None,
-                                 silence_logs=logging.ERROR)
+                                 silence_logs=logging.CRITICAL)
         try:
             with Client(local) as client:
                 yield client
