@@ -12,6 +12,7 @@ station's plan and record and hands them to the views."""
 
 from __future__ import annotations
 
+import math
 import os
 from pathlib import Path
 
@@ -25,7 +26,7 @@ from .security import install_basic_auth, install_body_limit, install_headers, i
 from .style import INDEX_STRING
 from .views import coordinator, plant, record, sales
 from .views import study as study_view
-from .views.common import card, fmt_money
+from .views.common import GRAPH_CONFIG, card, fmt_money
 
 STATION_VIEWS = (("coordinator", "Deliveries & orders", coordinator), ("plant", "Stores & risk", plant),
                  ("sales", "Byproduct sales", sales))
@@ -35,11 +36,17 @@ RECORD = "fleet-record"
 MAX_REQUEST_BYTES = 1024 * 1024
 
 
+def _tonnes(x: float) -> str:
+    """Whole tonnes; rounded first, so that a solver's -1e-9 t shows as 0, not -0."""
+    return "–" if math.isnan(x) else f"{round(x):,d}" if math.isfinite(x) else str(x)
+
+
 def _stores_table(stores) -> html.Table:
     cols = ["station", "store", "opening_t", "lowest_t", "highest_t", "end_t", "safety_t", "capacity_t",
             "days_below_safety", "days_over_capacity"]
     head = html.Tr([html.Th(c.replace("_", " ")) for c in cols])
-    rows = [html.Tr([html.Td(f"{r[c]:,.0f}" if isinstance(r[c], float) else str(r[c])) for c in cols],
+    rows = [html.Tr([html.Td(_tonnes(r[c]) if isinstance(r[c], float) else str(r[c]).replace("_", " "))
+                     for c in cols],
                     className="rp-row-warn" if r["days_below_safety"] or r["days_over_capacity"] else None)
             for r in stores.to_dict("records")]
     return html.Table([html.Thead(head), html.Tbody(rows)], className="rp-table", id="fleet-stores")
@@ -49,10 +56,10 @@ def fleet_view(summary: dict, frames: dict) -> html.Div:
     """The fleet tab: pooled contracts, car sets, stores at a glance, where the room went."""
     cur = summary["currency"]
     graphs = [card(dcc.Graph(id=f"fleet-pool-{i}", figure=fleet_figures.pooled_figure(frames["Pooled contracts"], c),
-                             style={"height": "380px"}), wide=True)
+                             config=GRAPH_CONFIG, className="rp-graph"), wide=True)
               for i, c in enumerate(summary["shared_contracts"])]
     graphs += [card(dcc.Graph(id=f"fleet-cars-{i}", figure=fleet_figures.cars_figure(frames["Car sets"], t),
-                              style={"height": "360px"}), wide=True)
+                              config=GRAPH_CONFIG, className="rp-graph"), wide=True)
                for i, t in enumerate(summary["shared_train_sets"])]
     room = frames["Pooled room"]
     room_rows = [html.Li(f"{r['contract']}: {r['station']} {r['tonnes']:,.0f} t (hand split {r['hand_split_tonnes']:,.0f} t)")
@@ -136,15 +143,17 @@ def fleet_layout(result, summary: dict, frames: dict, *, records: bool = False, 
                 html.Div(result.fleet.name, className="rp-name", id="header-title"),
                 html.Div(f"{len(names)} stations · {result.status}", className="rp-sub", id="header-sub"),
             ]),
-            html.Div(className="rp-kpis", children=[
+            html.Div(className="rp-kpis", style={"alignItems": "center"}, children=[
                 html.Span("Station: "),
                 dcc.RadioItems(id=PICKER, options=[{"label": n, "value": n} for n in names], value=names[0],
-                               inline=True),
+                               inline=True, className="rp-picker"),
             ]),
         ]),
         html.Div(CAUTION, className="rp-caution", id="caution"),
-        html.Main(className="rp-main", children=[
-            dcc.Tabs(id="views", value="fleet", className="rp-tabs", children=tabs),
+        html.Div(className="rp-body", children=[
+            html.Main(className="rp-main", children=[
+                dcc.Tabs(id="views", value="fleet", className="rp-tabs", children=tabs),
+            ]),
         ]),
         html.Div(f"reagentplan {__version__} · everything on this page is served from this machine; "
                  "nothing is fetched from elsewhere.", className="rp-foot"),

@@ -142,6 +142,26 @@ def test_the_record_tab_is_absent_when_no_station_has_a_record_and_the_studies_t
     assert not any("fleet-record" in k for k in plain.callback_map)
 
 
+def test_a_station_has_one_colour_in_every_fleet_figure_and_the_stores_show_no_minus_zero(built):
+    """The pooled contracts' and the car set's figures colour a station alike (they did
+    not: one took the sorted names, the other the table's order), their legends sit at
+    the foot, below the axis title; a solver's -1e-9 t shows as 0 in the stores table."""
+    from reagentplan.dashboard import fleet_figures
+    from reagentplan.fleet import fleet_frames
+
+    app = built[0]
+    frames = fleet_frames(app.reagentplan_fleet)
+    pooled = fleet_figures.pooled_figure(frames["Pooled contracts"], "Quarry pool")
+    cars = fleet_figures.cars_figure(frames["Car sets"], "Q set")
+    colour = {t.name: t.marker.color for t in pooled.data if t.type == "bar"}
+    assert set(colour) == {"north", "south", "east"} and len(set(colour.values())) == 3
+    assert {t.name: t.marker.color for t in cars.data if t.type == "bar"} == colour
+    for fig in (pooled, cars):
+        assert fig.layout.legend.yref == "container" and fig.layout.legend.yanchor == "bottom"
+    cells = [c.children for row in app.layout["fleet-stores"].children[1].children for c in row.children]
+    assert "-0" not in cells and "fly ash" in cells
+
+
 def test_a_station_record_that_cannot_be_opened_names_its_row(tmp_path, capsys):
     from reagentplan.dashboard.fleet import station_records
     from reagentplan.errors import ScenarioError
