@@ -182,10 +182,13 @@ def create_fleet_app(workbook: str | os.PathLike, *, settings=None, password: st
         from reagentplan.study.results import read_study_table
 
         study = read_study_table(study_dir)
-    if result is None:
-        result = plan_fleet(load_fleet(Path(workbook)), settings)
+    if result is None:  # the records are read first: one that cannot be opened is refused at once
+        fleet = load_fleet(Path(workbook))
+        records = station_records(fleet)
+        result = plan_fleet(fleet, settings)
+    else:
+        records = station_records(result.fleet)
     summary, frames = fleet_summary(result), fleet_frames(result)
-    records = station_records(result.fleet)
     panels = record_panels(records) if any(ov is not None for ov in records.values()) else None
     server = flask.Flask("reagentplan.dashboard.fleet")
     install_origin_check(server, loopback_only=not password, origins=origins)

@@ -172,6 +172,9 @@ def test_a_station_record_that_cannot_be_opened_names_its_row(tmp_path, capsys):
         station_records(load_fleet(path))
     assert "sheet 'stations', row 3, column 'db': station 'south'" in err.value.report()
     assert "does not exist" in err.value.report()
+    # on the command line: exit 2 with the same line, before the fleet is planned
+    assert main(["dashboard", str(path), "--futures", "0"]) == 2
+    assert "row 3, column 'db': station 'south'" in capsys.readouterr().err
 
 
 def test_cli_fleet_dashboard_with_a_missing_study_exits_2_before_planning(tmp_path, capsys):
