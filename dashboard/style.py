@@ -94,6 +94,12 @@ body {{ margin: 0; background: {PAGE}; color: {INK}; font-family: {FONT}; font-s
 .rp-brand .rp-name b {{ color: {ACCENT}; }}
 .rp-brand .rp-sub {{ font-size: 13px; color: #c8d2cb; margin-top: 2px; }}
 .rp-kpis {{ display: flex; flex-wrap: wrap; gap: 10px; margin-left: auto; }}
+.rp-picker .dash-options-list-option,
+.rp-picker .dash-options-list-option:not(:has(input[disabled])):focus-within {{ color: #f4f1e8;
+  background: transparent; }}
+.rp-picker .dash-options-list-option:has(input:checked),
+.rp-picker .dash-options-list-option:has(input:checked):not(:has(input[disabled])):focus-within {{
+  color: {ACCENT}; font-weight: bold; }}
 .rp-kpi {{ background: rgba(255,255,255,.08); border: 1px solid rgba(255,255,255,.14);
   border-radius: 6px; padding: 5px 11px; min-width: 110px; }}
 .rp-kpi .k {{ font-size: 11px; color: #b9c6bf; text-transform: uppercase; letter-spacing: .5px; }}

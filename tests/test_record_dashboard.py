@@ -7,6 +7,7 @@ from __future__ import annotations
 import base64
 import datetime as dt
 
+import pytest
 import sqlalchemy as sa
 
 from reagentplan.dashboard.app import create_app
@@ -116,3 +117,43 @@ def test_weekly_chart_legend_sits_below_the_plot_not_over_its_title():
     assert legend.yanchor == "bottom" and legend.y < 0.05
     assert margin.b >= 2 * LEGEND_ROW_PX + 50  # the dates' two lines and the legend's two rows
     assert fig.layout.height - margin.b - margin.t >= 150  # still room to plot
+
+
+def test_a_record_of_one_week_draws_its_bars_a_week_wide_with_the_plan_over_each():
+    """One recorded week gave Plotly no spacing to take a bar's width from: the bars were
+    a millisecond wide on an axis of milliseconds.  Each bar now has its width and place
+    in the week [ms], and its planned tonnes are drawn over its own bar."""
+    import pandas as pd
+
+    from reagentplan.dashboard.record_figures import BARS_FILL, WEEK_MS, weekly_figure
+
+    week = pd.Timestamp("2030-02-25")
+    rows = [{"week": week, "direction": d, "material": m, "planned_t": 500.0, "recorded_t": 400.0}
+            for d, m in (("in", "limestone"), ("out", "gypsum"), ("out", "fly_ash"))]
+    fig = weekly_figure(pd.DataFrame(rows))
+    bars = [t for t in fig.data if t.type == "bar"]
+    planned = [t for t in fig.data if t.type == "scatter"]
+    assert len(bars) == 3 and all(b.width >= 86_400_000 for b in bars)  # at least a day wide
+    assert sum(b.width for b in bars) == pytest.approx(WEEK_MS * BARS_FILL)
+    lefts = sorted(b.offset for b in bars)
+    assert lefts[1] - lefts[0] == pytest.approx(bars[0].width)  # side by side, not on top of each other
+    for b, p in zip(bars, planned):
+        centre = week + pd.Timedelta(milliseconds=b.offset + b.width / 2)
+        assert pd.Timestamp(p.x[0]) == centre
+    assert fig.layout.xaxis.dtick == WEEK_MS  # a tick a week, not one a millisecond
+
+
+def test_a_stores_legend_sits_at_the_foot_not_over_its_title():
+    """Three entries in a card a third of the page wide wrapped over the title; at the
+    foot of the figure with room for two rows they cannot."""
+    import pandas as pd
+
+    from reagentplan.dashboard.figures import LEGEND_ROW_PX
+    from reagentplan.dashboard.record_figures import record_store_figure
+
+    days = pd.date_range("2030-02-25", periods=5)
+    pva = pd.DataFrame({"date": days, "store": "limestone", "planned_level_t": 3000.0,
+                        "book_level_t": 2900.0, "surveyed_level_t": [2500.0, None, None, None, None]})
+    fig = record_store_figure(pva, "limestone")
+    assert fig.layout.legend.yref == "container" and fig.layout.legend.yanchor == "bottom"
+    assert fig.layout.margin.b >= 2 * LEGEND_ROW_PX + 60

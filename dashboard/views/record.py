@@ -24,23 +24,28 @@ OUTPUTS = (IN_FORCE, STORES, WEEKLY, CHANGES, DRIFT, CALIBRATION, IMPORTS)
 FIGURE_OUTPUTS = (WEEKLY,)
 
 
-def layout():
+def layout(uploads: bool = True):
+    """The tab's components, to be filled by `content`.  ``uploads`` False: read-only (the
+    fleet dashboard), no upload card; the intro says where actuals are recorded instead."""
+    where = ("Record actuals here or with `reagentplan record`: the same checks, the same conflict rules."
+             if uploads else "Read-only here: record actuals with `reagentplan record` or in the "
+             "station's own dashboard (`reagentplan dashboard STATION.xlsx --db URL`).")
+    upload = [html.Div(className="rp-grid", children=[
+        card(dcc.Upload(id=UPLOAD, className="rp-upload", multiple=False, accept=".xlsx,.csv",
+                        children=html.Div(["Drop a record file (.xlsx with record sheets, or "
+                                           "arrivals.csv, ...) or ", html.A("choose one")])),
+             dcc.Checklist(id=REPLACE, options=[{"label": " replace values already recorded "
+                                                 "(old values kept in the audit trail)", "value": "replace"}],
+                           value=[]),
+             html.Div(id=UPLOAD_MESSAGE, className="rp-msg"),
+             title="Record actuals", wide=True),
+    ])] if uploads else []
     return html.Div(className="rp-view", children=[
         html.P("What happened against what was planned: surveys (points), the book level rolled "
                "from them, the plan in force each day; recorded arrivals and shipments per week; "
-               "what changed between the last two plans. Record actuals here or with "
-               "`reagentplan record`: the same checks, the same conflict rules.", className="rp-view-intro"),
+               "what changed between the last two plans. " + where, className="rp-view-intro"),
         html.Div(id=IN_FORCE, className="rp-headlines"),
-        html.Div(className="rp-grid", children=[
-            card(dcc.Upload(id=UPLOAD, className="rp-upload", multiple=False, accept=".xlsx,.csv",
-                            children=html.Div(["Drop a record file (.xlsx with record sheets, or "
-                                               "arrivals.csv, ...) or ", html.A("choose one")])),
-                 dcc.Checklist(id=REPLACE, options=[{"label": " replace values already recorded "
-                                                     "(old values kept in the audit trail)", "value": "replace"}],
-                               value=[]),
-                 html.Div(id=UPLOAD_MESSAGE, className="rp-msg"),
-                 title="Record actuals", wide=True),
-        ]),
+        *upload,
         html.Div(id=STORES, className="rp-grid"),
         html.Div(className="rp-grid", style={"marginTop": "14px"}, children=[
             card(dcc.Graph(id=WEEKLY, config=GRAPH_CONFIG, className="rp-graph"), wide=True),
@@ -51,6 +56,16 @@ def layout():
             card(html.Div(id=IMPORTS), title="Who recorded what (newest first)", wide=True),
         ]),
     ])
+
+
+def filled(ov, uploads: bool = True):
+    """`layout` with `content` of the overview ``ov`` in place (a page made whole, as the
+    fleet dashboard shows a picked station's record)."""
+    page = layout(uploads)
+    body = content(ov)
+    for key in OUTPUTS:
+        setattr(page[key], "figure" if key in FIGURE_OUTPUTS else "children", body[key])
+    return page
 
 
 def content(ov) -> dict:

@@ -30,7 +30,8 @@ def register(sub) -> None:
                    help="address of a TLS-terminating proxy in front of the dashboard; only its "
                         "X-Forwarded-For/-Host/-Proto headers are believed")
     p.add_argument("--study", default=None, metavar="DIR",
-                   help="a folder written by 'reagentplan study', shown in the Studies tab")
+                   help="a folder written by 'reagentplan study' (of a station or of a fleet), shown in the "
+                        "Studies tab")
     add_db(p)
     add_as_of(p, "with --db: plan from the record's state at the end of DATE (default: the "
                  "day of the newest recorded survey, arrival or shipment) and show the "
@@ -58,7 +59,12 @@ def run(args) -> int:
         from ..dashboard.fleet import create_fleet_app
 
         print(f"Planning the fleet of {args.workbook} ({plan_settings(args, PLAN).futures} futures per station)...")
-        app = create_fleet_app(args.workbook, settings=plan_settings(args, PLAN), password=password)
+        try:
+            app = create_fleet_app(args.workbook, settings=plan_settings(args, PLAN), password=password,
+                                   study_dir=args.study)
+        except ValueError as exc:
+            print(f"--study: {exc}", file=sys.stderr)
+            return EXIT_BAD_INPUT
         print(f"Fleet dashboard on http://{args.host}:{args.port}/"
               + (" (password required)" if password else "") + "; Ctrl+C stops it.")
         print(f"Caution: {CAUTION}")
