@@ -15,7 +15,6 @@ on Dask distributed (``--cluster local|ADDRESS``) or one after the other (``seri
 
 from __future__ import annotations
 
-import dataclasses
 import itertools
 import math
 import re
@@ -27,10 +26,8 @@ import numpy as np
 import pandas as pd
 
 from ..errors import Problem, ScenarioError
-from ..pipeline import STORE_FLOWS
-from ..schedule.lanes import LANDFILL, SALE, SUPPLY
 from ..settings import MAX_CASES, PlanSettings
-from ..study.grid import OPTION, VarySpec, _locate, _show, apply_variant, parse_vary
+from ..study.grid import OPTION, VarySpec, apply_variant, case_label, locate, parse_vary, with_case
 from ..workbook import RawSheet, read_raw
 from .workbook import SHARED_CONTRACTS, SHARED_TRAIN_SETS, Fleet, load_fleet
 
@@ -68,7 +65,7 @@ class FleetCase:
     fleet: Fleet
 
     def label(self, specs) -> str:
-        return ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs, self.values))
+        return case_label(specs, self.values)
 
 
 @dataclass(frozen=True)
@@ -163,7 +160,7 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
                    if any(sp.station == s.station for sp in specs)}
     targets = []
     for sp in specs:
-        targets.append(_locate(station_raw[sp.station], sp.spec) if sp.station else _fleet_target(fleet_raw, sp))
+        targets.append(locate(station_raw[sp.station], sp.spec) if sp.station else _fleet_target(fleet_raw, sp))
     cases, problems = [], []
     for i, values in enumerate(itertools.product(*(s.values for s in specs)), start=1):
         raws = dict(station_raw)
@@ -173,11 +170,10 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
                 raws[sp.station] = apply_variant(raws[sp.station], (sp.spec,), (tg,), (v,))
             else:
                 fraw = _apply_fleet(fraw, sp, tg, v)
-        label = ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs, values))
         try:
             cases.append(FleetCase(i, tuple(values), load_fleet(path, raw=fraw, station_raws=raws)))
         except ScenarioError as exc:
-            problems += [dataclasses.replace(p, found=f"{p.found} (with case {i}: {label})") for p in exc.problems]
+            problems += with_case(exc, f"case {i}: {case_label(specs, values)}")
     if problems:
         raise ScenarioError(problems)
     return FleetGrid(specs, base, tuple(cases))
@@ -186,9 +182,10 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
 def plan_case(case: FleetCase, settings: PlanSettings) -> dict:
     """Plan one case's fleet and summarise it as a row of ``study.csv`` (fleet-wide
     figures, and each station's cost).  Costs over the futures: per future, the sum of
-    the stations' plans replayed against their futures (`study.run.replay_costs`) plus
-    the pooled shortfalls of the plan."""
-    from ..study.run import replay_costs
+    the stations' plans replayed against their futures as the station study replays a
+    case (`study.run.replay_run`) plus the pooled shortfalls of the plan; loads and
+    tonnes as `study.run.movement_totals` counts them."""
+    from ..study.run import movement_totals, replay_run
     from .plan import plan_fleet
 
     t0 = time.perf_counter()
@@ -197,33 +194,20 @@ def plan_case(case: FleetCase, settings: PlanSettings) -> dict:
            "baseline_total_cost": round(result.baseline_total_cost, 2)}
     per_future = None
     p_below = p_over = 0.0
-    trains = trucks = 0
-    sold = landfilled = 0.0
     for name, run in result.runs.items():
-        plan = run.plan
         if run.futures is not None:
-            flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items() if store in plan.scenario.storage}
-            fig = replay_costs(plan, flows)
+            fig = replay_run(run)
             per_future = fig.costs if per_future is None else per_future + fig.costs
             p_below, p_over = max(p_below, fig.p_limestone_below_safety), max(p_over, fig.p_any_over_capacity)
-        for lane in plan.lanes:
-            q = plan.plan.quantity[lane.name]
-            if lane.kind == SUPPLY:
-                if lane.mode == "rail":
-                    trains += int(np.sum(q))
-                else:
-                    trucks += int(np.sum(q))
-            elif lane.kind == SALE:
-                sold += float(plan.plan.tonnes(lane).sum())
-            elif lane.kind == LANDFILL:
-                landfilled += float(plan.plan.tonnes(lane).sum())
-        row[f"{name}_total_cost"] = round(plan.evaluation.total_cost, 2)
+        row[f"{name}_total_cost"] = round(run.plan.evaluation.total_cost, 2)
+    moved = movement_totals(run.plan for run in result.runs.values())
     if per_future is not None:
         per_future = per_future + result.pools["cost"]
         q10, q50, q90 = np.quantile(per_future, [0.1, 0.5, 0.9])
         row.update(cost_p10=round(float(q10), 2), cost_p50=round(float(q50), 2), cost_p90=round(float(q90), 2),
                    p_limestone_below_safety=round(p_below, 6), p_any_over_capacity=round(p_over, 6))
-    row.update(trains=trains, trucks=trucks, sold_t=round(sold, 1), landfilled_t=round(landfilled, 1),
+    row.update(trains=moved.trains, trucks=moved.trucks, sold_t=round(moved.sold_t, 1),
+               landfilled_t=round(moved.landfilled_t, 1),
                breaches=len(result.all_breaches), gap=None if result.gap is None else round(result.gap, 6),
                solve_seconds=round(result.solve_seconds, 3), case_seconds=round(time.perf_counter() - t0, 3))
     return row

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from .grid import Grid, _cell_value
+from .grid import Grid, cell_value
 from .run import EXTRA_COLUMNS, PLANNED, RESULT_COLUMNS
 
 
@@ -27,7 +27,7 @@ def study_frame(grid: Grid, rows: list[dict]) -> pd.DataFrame:
         case = by_case[row["case"]]
         rec = {"case": case.case}
         for spec, value in zip(grid.specs, case.values):
-            rec[spec.target] = _cell_value(value)
+            rec[spec.target] = cell_value(value)
         rec.update({k: row.get(k) for k in RESULT_COLUMNS + EXTRA_COLUMNS})
         records.append(rec)
     cols = ["case", *grid.targets, *RESULT_COLUMNS, *EXTRA_COLUMNS]

@@ -219,28 +219,56 @@ def plan_case(case: Case, shared: DriverSamples, settings: PlanSettings) -> Plan
     return plan_with_futures(case.scenario, fut, settings)
 
 
-def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
-    """The plain row of a planned case (the fields of `RESULT_COLUMNS` and
-    `EXTRA_COLUMNS`)."""
+@dataclass(frozen=True)
+class Movements:
+    """What plans move over the horizon: rail loads (trains) and road loads (trucks) of
+    limestone [-], and byproduct tonnes sold and landfilled [t]."""
+
+    trains: int
+    trucks: int
+    sold_t: float
+    landfilled_t: float
+
+
+def movement_totals(plans) -> Movements:
+    """The loads and tonnes of one or more plans (`reagentplan.schedule.PlanResult`),
+    summed lane by lane in the order given: a station's plan, or a fleet's stations'."""
+    trains = trucks = 0
+    sold = landfilled = 0.0
+    for plan in plans:
+        for lane in plan.lanes:
+            q = plan.plan.quantity[lane.name]
+            if lane.kind == SUPPLY:
+                if lane.mode == "rail":
+                    trains += int(np.sum(q))
+                else:
+                    trucks += int(np.sum(q))
+            elif lane.kind == SALE:
+                sold += float(plan.plan.tonnes(lane).sum())
+            elif lane.kind == LANDFILL:
+                landfilled += float(plan.plan.tonnes(lane).sum())
+    return Movements(trains, trucks, sold, landfilled)
+
+
+def replay_run(run: PlanRun) -> ReplayFigures:
+    """A planned run (`reagentplan.pipeline.PlanRun`, with futures) replayed against its
+    own futures (`replay_costs`): each store's flow as sampled, the limestone use and
+    gypsum moved to the plan's stone where the silo's quality is coupled
+    (`reagentplan.schedule.plan.flows_at_plan_stone`)."""
     plan = run.plan
     flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items()
              if store in plan.scenario.storage}
     if plan.scenario.quality_coupled:  # the futures' stone use and gypsum at the plan's silo
         flows = flows_at_plan_stone(plan, flows, balance_frame(plan.scenario))
-    fig = replay_costs(plan, flows)
-    trains = trucks = 0
-    sold = landfilled = 0.0
-    for lane in plan.lanes:
-        q = plan.plan.quantity[lane.name]
-        if lane.kind == SUPPLY:
-            if lane.mode == "rail":
-                trains += int(np.sum(q))
-            else:
-                trucks += int(np.sum(q))
-        elif lane.kind == SALE:
-            sold += float(plan.plan.tonnes(lane).sum())
-        elif lane.kind == LANDFILL:
-            landfilled += float(plan.plan.tonnes(lane).sum())
+    return replay_costs(plan, flows)
+
+
+def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
+    """The plain row of a planned case (the fields of `RESULT_COLUMNS` and
+    `EXTRA_COLUMNS`)."""
+    plan = run.plan
+    fig = replay_run(run)
+    moved = movement_totals([plan])
     o = plan.outcome
     status = o.status.split(" ")[0]
     q10, q50, q90 = np.quantile(fig.costs, [0.1, 0.5, 0.9])
@@ -251,8 +279,8 @@ def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
         "cost_p90": round(float(q90), 2),
         "p_limestone_below_safety": round(fig.p_limestone_below_safety, 6),
         "p_any_over_capacity": round(fig.p_any_over_capacity, 6),
-        "trains": trains, "trucks": trucks, "sold_t": round(sold, 1),
-        "landfilled_t": round(landfilled, 1), "solve_seconds": round(o.solve_seconds, 3),
+        "trains": moved.trains, "trucks": moved.trucks, "sold_t": round(moved.sold_t, 1),
+        "landfilled_t": round(moved.landfilled_t, 1), "solve_seconds": round(o.solve_seconds, 3),
         "expected_cost": round(float(fig.costs.mean()), 2),
         "baseline_total_cost": round(plan.baseline_evaluation.total_cost, 2),
         "gap": round(o.gap, 6) if np.isfinite(o.gap) else None,
@@ -308,6 +336,6 @@ def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
                       time.perf_counter() - t0)
 
 
-__all__ = ["ReplayFigures", "replay_costs", "replay_byproduct_heel",
+__all__ = ["ReplayFigures", "replay_costs", "replay_run", "Movements", "movement_totals", "replay_byproduct_heel",
            "outbound_cost_per_t", "replay_limestone_capped", "inbound_cost_per_t", "case_futures", "plan_case",
            "result_row", "failed_row", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]
