@@ -15,6 +15,7 @@ on Dask distributed (``--cluster local|ADDRESS``) or one after the other (``seri
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 import re
@@ -27,7 +28,9 @@ import pandas as pd
 
 from ..errors import Problem, ScenarioError
 from ..settings import MAX_CASES, PlanSettings
+from ..study.cluster import NOT_RUN, StudyRun, run_on_cluster
 from ..study.grid import OPTION, VarySpec, apply_variant, case_label, locate, parse_vary, with_case
+from ..study.results import case_table
 from ..workbook import RawSheet, read_raw
 from .workbook import SHARED_CONTRACTS, SHARED_TRAIN_SETS, Fleet, load_fleet
 
@@ -213,25 +216,56 @@ def plan_case(case: FleetCase, settings: PlanSettings) -> dict:
     return row
 
 
-def run_fleet_study(grid: FleetGrid, settings: PlanSettings, *, cluster: str = "local",
-                    workers: int | None = None) -> pd.DataFrame:
-    """Run every case (on Dask, or ``serial``) and tabulate them (``study.csv``)."""
-    if cluster == "serial":
-        rows = [plan_case(c, settings) for c in grid.cases]
-    else:
-        from ..study.cluster import study_client
+#: Statuses of a case that has no plan (its row's ``message`` says why).
+NO_PLAN = ("failed", "timeout", NOT_RUN)
+#: The fields of a fleet case's row that every case has (a row with no plan has them
+#: empty, and its ``message``); a planned case adds each station's cost and, with
+#: futures, the costs and chances over them.
+FLEET_ROW_COLUMNS = ("status", "total_cost", "baseline_total_cost", "trains", "trucks", "sold_t", "landfilled_t",
+                     "breaches", "gap", "solve_seconds", "case_seconds")
 
-        with study_client(cluster, workers, dashboard=False) as client:
-            futures = [client.submit(plan_case, c, settings, pure=False) for c in grid.cases]
-            rows = client.gather(futures)
-    records = []
-    for case, row in zip(grid.cases, rows):
-        rec = {"case": case.case}
-        for spec, v in zip(grid.specs, case.values):
-            rec[spec.target] = v
-        rec.update(row)
-        records.append(rec)
-    return pd.DataFrame(records)
+
+def failed_fleet_row(case: FleetCase, status: str, message: str, seconds: float | None = None) -> dict:
+    """The row of a fleet case with no plan: ``failed``, ``timeout`` or ``not run``, and
+    why (``message``)."""
+    row = {"case": case.case, **{k: None for k in FLEET_ROW_COLUMNS}}
+    row.update(status=status, case_seconds=None if seconds is None else round(seconds, 3), message=message)
+    return row
+
+
+def run_fleet_case(case: FleetCase, shared: None, settings: PlanSettings,
+                   case_timeout: float | None = None) -> dict:
+    """`plan_case` as the station study runs its cases (`study.run.run_guarded`): a case
+    that raises gives a ``failed`` row, one not done after ``case_timeout`` [s] a
+    ``timeout`` row (`failed_fleet_row`).  ``shared`` is ``None``: a fleet's cases share
+    no futures in memory (each samples its stations' with the study's seed)."""
+    from ..study.run import run_guarded
+
+    return run_guarded(case, functools.partial(plan_case, case, settings), failed_fleet_row,
+                       case_timeout=case_timeout, time_limit=settings.time_limit)
+
+
+@dataclass
+class FleetStudyResult:
+    """A fleet study run: the table (``study.csv``) and how the cases ran
+    (`study.cluster.StudyRun`: interrupted, where, workers, seconds)."""
+
+    frame: pd.DataFrame
+    run: StudyRun
+
+
+def run_fleet_study(grid: FleetGrid, settings: PlanSettings, *, cluster: str = "local",
+                    workers: int | None = None, case_timeout: float | None = None,
+                    progress: bool = False) -> FleetStudyResult:
+    """Run every case (on Dask, or ``serial``) with the station study's runner
+    (`study.cluster.run_on_cluster`, no Dask dashboard) and tabulate them
+    (``study.csv``, `study.results.case_table`): case, the varied values, each case's
+    row (`plan_case`)."""
+    run = run_on_cluster(grid.cases, None, settings, cluster=cluster, workers=workers, dashboard=False,
+                         case_timeout=case_timeout, progress=progress, case_fn=run_fleet_case,
+                         failed_fn=failed_fleet_row)
+    # the varied values as given (text), as the fleet study has always written them
+    return FleetStudyResult(case_table(grid.specs, grid.cases, run.rows, cells=False), run)
 
 
 def pick_fleet_winner(frame: pd.DataFrame, risk_level: float) -> int | None:

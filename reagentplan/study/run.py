@@ -50,9 +50,11 @@ per period.
 
 from __future__ import annotations
 
+import functools
 import threading
 import time
 import traceback
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -299,16 +301,46 @@ def failed_row(case: Case, status: str, message: str, seconds: float | None = No
     return row
 
 
-def _run(case: Case, shared: DriverSamples, settings: PlanSettings) -> dict:
+def _caught(case, plan_row: Callable[[], dict], failed: Callable[..., dict]) -> dict:
     t0 = time.perf_counter()
     try:
-        run = plan_case(case, shared, settings)
-        return result_row(case, run, time.perf_counter() - t0)
+        return plan_row()
     except Exception as exc:  # a case that fails is reported, and the study goes on
         where = traceback.extract_tb(exc.__traceback__)[-1]
-        return failed_row(case, "failed", f"{type(exc).__name__}: {exc} (at {where.name}, "
-                          f"{where.filename.rsplit('/', 1)[-1]}:{where.lineno})",
-                          time.perf_counter() - t0)
+        return failed(case, "failed", f"{type(exc).__name__}: {exc} (at {where.name}, "
+                      f"{where.filename.rsplit('/', 1)[-1]}:{where.lineno})",
+                      time.perf_counter() - t0)
+
+
+def run_guarded(case, plan_row: Callable[[], dict], failed: Callable[..., dict], *,
+                case_timeout: float | None = None, time_limit: float = 0.0) -> dict:
+    """``plan_row()`` (the row of one planned case) as a study runs it, whatever study:
+    a case that raises gives ``failed(case, "failed", message, seconds)`` with the error
+    and where it was raised; with ``case_timeout`` (wall-clock seconds of the whole case
+    [s]; None: none), a case that has not finished by then gives ``failed(case,
+    "timeout", message, seconds)`` naming ``time_limit``, the solver's limit per solve
+    [s] (its thread cannot be stopped from outside: it runs on to its solver time limit
+    in the background and its result is dropped).  ``case`` needs a ``case`` number."""
+    if not case_timeout:
+        return _caught(case, plan_row, failed)
+    box: list[dict] = []
+    t0 = time.perf_counter()
+    worker = threading.Thread(target=lambda: box.append(_caught(case, plan_row, failed)),
+                              name=f"study-case-{case.case}", daemon=True)
+    worker.start()
+    worker.join(case_timeout)
+    if box:
+        return box[0]
+    return failed(case, "timeout",
+                  f"no result after {case_timeout:g} s (solver limit "
+                  f"{time_limit:g} s per solve); the result is dropped",
+                  time.perf_counter() - t0)
+
+
+def _planned_row(case: Case, shared: DriverSamples, settings: PlanSettings) -> dict:
+    t0 = time.perf_counter()
+    run = plan_case(case, shared, settings)
+    return result_row(case, run, time.perf_counter() - t0)
 
 
 def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
@@ -317,25 +349,12 @@ def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
 
     A case that raises gives a ``failed`` row with the error; with ``case_timeout``
     (wall-clock seconds of the whole case [s]; None: none), a case that has not finished by then gives a ``timeout``
-    row (its thread cannot be stopped from outside: it runs on to its solver time limit
-    in the background and its result is dropped).
+    row (`run_guarded`).
     """
-    if not case_timeout:
-        return _run(case, shared, settings)
-    box: list[dict] = []
-    t0 = time.perf_counter()
-    worker = threading.Thread(target=lambda: box.append(_run(case, shared, settings)),
-                              name=f"study-case-{case.case}", daemon=True)
-    worker.start()
-    worker.join(case_timeout)
-    if box:
-        return box[0]
-    return failed_row(case, "timeout",
-                      f"no result after {case_timeout:g} s (solver limit "
-                      f"{settings.time_limit:g} s per solve); the result is dropped",
-                      time.perf_counter() - t0)
+    return run_guarded(case, functools.partial(_planned_row, case, shared, settings), failed_row,
+                       case_timeout=case_timeout, time_limit=settings.time_limit)
 
 
 __all__ = ["ReplayFigures", "replay_costs", "replay_run", "Movements", "movement_totals", "replay_byproduct_heel",
            "outbound_cost_per_t", "replay_limestone_capped", "inbound_cost_per_t", "case_futures", "plan_case",
-           "result_row", "failed_row", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]
+           "result_row", "failed_row", "run_guarded", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]
