@@ -11,6 +11,7 @@ import subprocess
 import sys
 import time
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -83,3 +84,45 @@ def test_ctrl_c_stops_a_fleet_study_and_keeps_the_finished_cases(tmp_path):
     assert list(frame["case"]) == list(range(1, 41))
     assert "not run" in set(frame["status"])
     assert set(frame["status"]) - {"optimal", "feasible", "not run"} == set()
+
+
+def test_a_coupled_silo_in_a_fleet_study_is_priced_as_the_station_study_prices_it(tmp_path):
+    """A station whose quarries give their own CaCO3 (its silo's stone coupled to the
+    plan): each future's stone use and gypsum are moved to the plan's stone before the
+    replay (`flows_at_plan_stone`), as the station study does, so the fleet's cost per
+    future is the stations' replays so priced, summed, plus the pooled shortfalls."""
+    from test_schedule import two_quarries
+
+    from reagentplan.balance import balance_frame
+    from reagentplan.fleet import plan_fleet
+    from reagentplan.fleet.study import plan_case
+    from reagentplan.pipeline import STORE_FLOWS
+    from reagentplan.schedule.plan import flows_at_plan_stone
+    from reagentplan.study.run import replay_costs
+
+    def as_quarries(s):
+        q = two_quarries(days=DAYS, seed=1)
+        s.clear()
+        s.update(q)
+
+    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": as_quarries},
+                       contracts=[["Board pool", "Board Co", "gypsum", None, 5000, None]], sets=[])
+    grid = build_fleet_grid(path, ["shared_contracts[Board pool].max_t_per_month=5000"])
+    settings = dataclasses.replace(STUDY, futures=8, firm_days=FIRM)
+    assert grid.cases[0].fleet.station("east").scenario.quality_coupled
+    row = plan_case(grid.cases[0], settings)
+    result = plan_fleet(grid.cases[0].fleet, settings)  # the same inputs give the same plan
+    assert round(result.total_cost, 2) == row["total_cost"]
+    per_future = result.pools["cost"]
+    moved = False
+    for run in result.runs.values():
+        plan = run.plan
+        flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items() if store in plan.scenario.storage}
+        if plan.scenario.quality_coupled:
+            at_stone = flows_at_plan_stone(plan, flows, balance_frame(plan.scenario))
+            moved |= any(not np.allclose(at_stone[s], flows[s]) for s in flows)
+            flows = at_stone
+        per_future = per_future + replay_costs(plan, flows).costs
+    assert moved  # the plan's stone is not the initial one: the test tells the two apart
+    assert row["cost_p50"] == round(float(np.quantile(per_future, 0.5)), 2)
+    assert row["cost_p90"] == round(float(np.quantile(per_future, 0.9)), 2)
