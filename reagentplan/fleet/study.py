@@ -10,7 +10,10 @@ writing the values into the cells as read and loading the fleet again through
 
 Each case samples every station's futures with the study's seed: cases that vary no
 driver (generation, coal) share the same futures (common random numbers).  The cases run
-on Dask distributed (``--cluster local|ADDRESS``) or one after the other (``serial``).
+on the station study's runner (`reagentplan.study.cluster.run_on_cluster`): on Dask
+distributed (``--cluster local|ADDRESS``) or one after the other (``serial``); a case that
+raises or passes ``--case-timeout`` is a row with its message, and Ctrl-C keeps the
+finished cases.
 """
 
 from __future__ import annotations
