@@ -32,7 +32,8 @@ import pandas as pd
 from ..errors import Problem, ScenarioError
 from ..settings import MAX_CASES, PlanSettings
 from ..study.cluster import NOT_RUN, StudyRun, run_on_cluster
-from ..study.grid import OPTION, VarySpec, apply_variant, case_label, locate, parse_vary, with_case
+from ..study.grid import (OPTION, VarySpec, apply_variant, case_label, cell_value, locate, parse_vary, set_cell,
+                          with_case)
 from ..study.results import case_table
 from ..workbook import RawSheet, read_raw
 from .workbook import SHARED_CONTRACTS, SHARED_TRAIN_SETS, Fleet, load_fleet
@@ -142,10 +143,7 @@ def _apply_fleet(raw: dict[str, RawSheet], spec: FleetSpec, target, value) -> di
         j = len(sheet.header)
         sheet.header.append(spec.column)
         sheet.header_as_written.append(spec.column)
-    cell = None if value is None else (float(value) if re.fullmatch(r"-?\d+(\.\d*)?", value) else value)
-    row = list(sheet.rows[i][1]) + [None] * max(0, j + 1 - len(sheet.rows[i][1]))
-    row[j] = cell
-    sheet.rows[i] = (sheet.rows[i][0], tuple(row))
+    sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell_value(value)))
     return out
 
 

@@ -396,7 +396,7 @@ def apply_variant(raw: dict[str, RawSheet], specs: tuple[VarySpec, ...],
             jk = sheet.header.index("key")
             if target.rows:
                 for i in target.rows:
-                    sheet.rows[i] = (sheet.rows[i][0], _set(sheet.rows[i][1], j, cell))
+                    sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell))
             else:  # the key is not in the workbook (it takes its default): add its row
                 last = max((r for r, _ in sheet.rows), default=1)
                 row = [None] * max(len(sheet.header), j + 1, jk + 1)
@@ -411,11 +411,12 @@ def apply_variant(raw: dict[str, RawSheet], specs: tuple[VarySpec, ...],
                 sheet.header_as_written.append(spec.column)
                 added[(target.title, spec.column)] = j
         for i in target.rows:
-            sheet.rows[i] = (sheet.rows[i][0], _set(sheet.rows[i][1], j, cell))
+            sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell))
     return out
 
 
-def _set(values: tuple, j: int, cell: Any) -> tuple:
+def set_cell(values: tuple, j: int, cell: Any) -> tuple:
+    """A row's values with column ``j`` set to ``cell`` (padded with empty cells)."""
     row = list(values) + [None] * max(0, j + 1 - len(values))
     row[j] = cell
     return tuple(row)
@@ -504,4 +505,4 @@ def build_grid(raw: dict[str, RawSheet], specs: list[str] | tuple[str, ...] | li
 
 
 __all__ = ["VarySpec", "Case", "Grid", "CellTarget", "parse_vary", "build_grid", "locate", "apply_variant",
-           "cell_value", "show_value", "case_label", "with_case", "MAX_CASES", "DRIVER_SHEETS"]
+           "cell_value", "set_cell", "show_value", "case_label", "with_case", "MAX_CASES", "DRIVER_SHEETS"]
