@@ -88,14 +88,16 @@ def plan(args, settings) -> int:
 
 
 def study(args, settings) -> int:
-    from ..fleet.study import build_fleet_grid, pick_fleet_winner, run_fleet_study
+    from ..fleet.study import NO_PLAN, build_fleet_grid, pick_fleet_winner, run_fleet_study
     from ..output import staged_output
     from ..output.fleet import write_fleet_study
 
     grid = build_fleet_grid(args.workbook, args.vary, max_cases=args.max_cases)
     print(f"{len(grid.cases)} case(s) of the fleet '{grid.base.name}' ({len(grid.base.stations)} stations), "
           f"{settings.futures} futures per station (same seed in every case)")
-    frame = run_fleet_study(grid, settings, cluster=args.cluster, workers=args.workers)
+    study = run_fleet_study(grid, settings, cluster=args.cluster, workers=args.workers,
+                            case_timeout=args.case_timeout)
+    frame = study.frame
     winner = pick_fleet_winner(frame, settings.risk_level)
     with staged_output(args.out) as tmp:
         write_fleet_study(frame, winner, tmp)
@@ -106,6 +108,12 @@ def study(args, settings) -> int:
     else:
         label = next(c for c in grid.cases if c.case == winner).label(grid.specs)
         print(f"Winner: case {winner} ({label})")
+    for _, r in frame[frame["status"].isin(NO_PLAN)].iterrows():
+        print(f"  case {int(r['case'])}: {r['status']}: {r['message']}")
     print(f"\nWrote study.csv, study.xlsx to {args.out}")
     print(f"\nCaution: {CAUTION}")
-    return EXIT_OK
+    if study.run.interrupted:
+        print("Interrupted: the finished cases are in study.csv; the others are marked 'not run'.",
+              file=sys.stderr)
+        return 130
+    return EXIT_BREACH if frame["status"].isin(NO_PLAN).any() else EXIT_OK

@@ -10,12 +10,15 @@ writing the values into the cells as read and loading the fleet again through
 
 Each case samples every station's futures with the study's seed: cases that vary no
 driver (generation, coal) share the same futures (common random numbers).  The cases run
-on Dask distributed (``--cluster local|ADDRESS``) or one after the other (``serial``).
+on the station study's runner (`reagentplan.study.cluster.run_on_cluster`): on Dask
+distributed (``--cluster local|ADDRESS``) or one after the other (``serial``); a case that
+raises or passes ``--case-timeout`` is a row with its message, and Ctrl-C keeps the
+finished cases.
 """
 
 from __future__ import annotations
 
-import dataclasses
+import functools
 import itertools
 import math
 import re
@@ -27,10 +30,11 @@ import numpy as np
 import pandas as pd
 
 from ..errors import Problem, ScenarioError
-from ..pipeline import STORE_FLOWS
-from ..schedule.lanes import LANDFILL, SALE, SUPPLY
 from ..settings import MAX_CASES, PlanSettings
-from ..study.grid import OPTION, VarySpec, _locate, _show, apply_variant, parse_vary
+from ..study.cluster import NOT_RUN, StudyRun, run_on_cluster
+from ..study.grid import (OPTION, VarySpec, apply_variant, case_label, cell_value, locate, parse_vary, set_cell,
+                          with_case)
+from ..study.results import case_table
 from ..workbook import RawSheet, read_raw
 from .workbook import SHARED_CONTRACTS, SHARED_TRAIN_SETS, Fleet, load_fleet
 
@@ -68,7 +72,7 @@ class FleetCase:
     fleet: Fleet
 
     def label(self, specs) -> str:
-        return ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs, self.values))
+        return case_label(specs, self.values)
 
 
 @dataclass(frozen=True)
@@ -139,10 +143,7 @@ def _apply_fleet(raw: dict[str, RawSheet], spec: FleetSpec, target, value) -> di
         j = len(sheet.header)
         sheet.header.append(spec.column)
         sheet.header_as_written.append(spec.column)
-    cell = None if value is None else (float(value) if re.fullmatch(r"-?\d+(\.\d*)?", value) else value)
-    row = list(sheet.rows[i][1]) + [None] * max(0, j + 1 - len(sheet.rows[i][1]))
-    row[j] = cell
-    sheet.rows[i] = (sheet.rows[i][0], tuple(row))
+    sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell_value(value)))
     return out
 
 
@@ -163,7 +164,7 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
                    if any(sp.station == s.station for sp in specs)}
     targets = []
     for sp in specs:
-        targets.append(_locate(station_raw[sp.station], sp.spec) if sp.station else _fleet_target(fleet_raw, sp))
+        targets.append(locate(station_raw[sp.station], sp.spec) if sp.station else _fleet_target(fleet_raw, sp))
     cases, problems = [], []
     for i, values in enumerate(itertools.product(*(s.values for s in specs)), start=1):
         raws = dict(station_raw)
@@ -173,11 +174,10 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
                 raws[sp.station] = apply_variant(raws[sp.station], (sp.spec,), (tg,), (v,))
             else:
                 fraw = _apply_fleet(fraw, sp, tg, v)
-        label = ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs, values))
         try:
             cases.append(FleetCase(i, tuple(values), load_fleet(path, raw=fraw, station_raws=raws)))
         except ScenarioError as exc:
-            problems += [dataclasses.replace(p, found=f"{p.found} (with case {i}: {label})") for p in exc.problems]
+            problems += with_case(exc, f"case {i}: {case_label(specs, values)}")
     if problems:
         raise ScenarioError(problems)
     return FleetGrid(specs, base, tuple(cases))
@@ -186,9 +186,10 @@ def build_fleet_grid(path: str | Path, texts: list[str], *, max_cases: int = MAX
 def plan_case(case: FleetCase, settings: PlanSettings) -> dict:
     """Plan one case's fleet and summarise it as a row of ``study.csv`` (fleet-wide
     figures, and each station's cost).  Costs over the futures: per future, the sum of
-    the stations' plans replayed against their futures (`study.run.replay_costs`) plus
-    the pooled shortfalls of the plan."""
-    from ..study.run import replay_costs
+    the stations' plans replayed against their futures as the station study replays a
+    case (`study.run.replay_run`) plus the pooled shortfalls of the plan; loads and
+    tonnes as `study.run.movement_totals` counts them."""
+    from ..study.run import movement_totals, replay_run
     from .plan import plan_fleet
 
     t0 = time.perf_counter()
@@ -197,57 +198,75 @@ def plan_case(case: FleetCase, settings: PlanSettings) -> dict:
            "baseline_total_cost": round(result.baseline_total_cost, 2)}
     per_future = None
     p_below = p_over = 0.0
-    trains = trucks = 0
-    sold = landfilled = 0.0
     for name, run in result.runs.items():
-        plan = run.plan
         if run.futures is not None:
-            flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items() if store in plan.scenario.storage}
-            fig = replay_costs(plan, flows)
+            fig = replay_run(run)
             per_future = fig.costs if per_future is None else per_future + fig.costs
             p_below, p_over = max(p_below, fig.p_limestone_below_safety), max(p_over, fig.p_any_over_capacity)
-        for lane in plan.lanes:
-            q = plan.plan.quantity[lane.name]
-            if lane.kind == SUPPLY:
-                if lane.mode == "rail":
-                    trains += int(np.sum(q))
-                else:
-                    trucks += int(np.sum(q))
-            elif lane.kind == SALE:
-                sold += float(plan.plan.tonnes(lane).sum())
-            elif lane.kind == LANDFILL:
-                landfilled += float(plan.plan.tonnes(lane).sum())
-        row[f"{name}_total_cost"] = round(plan.evaluation.total_cost, 2)
+        row[f"{name}_total_cost"] = round(run.plan.evaluation.total_cost, 2)
+    moved = movement_totals(run.plan for run in result.runs.values())
     if per_future is not None:
         per_future = per_future + result.pools["cost"]
         q10, q50, q90 = np.quantile(per_future, [0.1, 0.5, 0.9])
         row.update(cost_p10=round(float(q10), 2), cost_p50=round(float(q50), 2), cost_p90=round(float(q90), 2),
                    p_limestone_below_safety=round(p_below, 6), p_any_over_capacity=round(p_over, 6))
-    row.update(trains=trains, trucks=trucks, sold_t=round(sold, 1), landfilled_t=round(landfilled, 1),
+    row.update(trains=moved.trains, trucks=moved.trucks, sold_t=round(moved.sold_t, 1),
+               landfilled_t=round(moved.landfilled_t, 1),
                breaches=len(result.all_breaches), gap=None if result.gap is None else round(result.gap, 6),
                solve_seconds=round(result.solve_seconds, 3), case_seconds=round(time.perf_counter() - t0, 3))
     return row
 
 
-def run_fleet_study(grid: FleetGrid, settings: PlanSettings, *, cluster: str = "local",
-                    workers: int | None = None) -> pd.DataFrame:
-    """Run every case (on Dask, or ``serial``) and tabulate them (``study.csv``)."""
-    if cluster == "serial":
-        rows = [plan_case(c, settings) for c in grid.cases]
-    else:
-        from ..study.cluster import study_client
+#: Statuses of a case that has no plan (its row's ``message`` says why).
+NO_PLAN = ("failed", "timeout", NOT_RUN)
+#: The fields of a fleet case's row that every case has (a row with no plan has them
+#: empty, and its ``message``); a planned case adds each station's cost and, with
+#: futures, the costs and chances over them.
+FLEET_ROW_COLUMNS = ("status", "total_cost", "baseline_total_cost", "trains", "trucks", "sold_t", "landfilled_t",
+                     "breaches", "gap", "solve_seconds", "case_seconds")
 
-        with study_client(cluster, workers, dashboard=False) as client:
-            futures = [client.submit(plan_case, c, settings, pure=False) for c in grid.cases]
-            rows = client.gather(futures)
-    records = []
-    for case, row in zip(grid.cases, rows):
-        rec = {"case": case.case}
-        for spec, v in zip(grid.specs, case.values):
-            rec[spec.target] = v
-        rec.update(row)
-        records.append(rec)
-    return pd.DataFrame(records)
+
+def failed_fleet_row(case: FleetCase, status: str, message: str, seconds: float | None = None) -> dict:
+    """The row of a fleet case with no plan: ``failed``, ``timeout`` or ``not run``, and
+    why (``message``)."""
+    row = {"case": case.case, **{k: None for k in FLEET_ROW_COLUMNS}}
+    row.update(status=status, case_seconds=None if seconds is None else round(seconds, 3), message=message)
+    return row
+
+
+def run_fleet_case(case: FleetCase, shared: None, settings: PlanSettings,
+                   case_timeout: float | None = None) -> dict:
+    """`plan_case` as the station study runs its cases (`study.run.run_guarded`): a case
+    that raises gives a ``failed`` row, one not done after ``case_timeout`` [s] a
+    ``timeout`` row (`failed_fleet_row`).  ``shared`` is ``None``: a fleet's cases share
+    no futures in memory (each samples its stations' with the study's seed)."""
+    from ..study.run import run_guarded
+
+    return run_guarded(case, functools.partial(plan_case, case, settings), failed_fleet_row,
+                       case_timeout=case_timeout, time_limit=settings.time_limit)
+
+
+@dataclass
+class FleetStudyResult:
+    """A fleet study run: the table (``study.csv``) and how the cases ran
+    (`study.cluster.StudyRun`: interrupted, where, workers, seconds)."""
+
+    frame: pd.DataFrame
+    run: StudyRun
+
+
+def run_fleet_study(grid: FleetGrid, settings: PlanSettings, *, cluster: str = "local",
+                    workers: int | None = None, case_timeout: float | None = None,
+                    progress: bool = False) -> FleetStudyResult:
+    """Run every case (on Dask, or ``serial``) with the station study's runner
+    (`study.cluster.run_on_cluster`, no Dask dashboard) and tabulate them
+    (``study.csv``, `study.results.case_table`): case, the varied values, each case's
+    row (`plan_case`)."""
+    run = run_on_cluster(grid.cases, None, settings, cluster=cluster, workers=workers, dashboard=False,
+                         case_timeout=case_timeout, progress=progress, case_fn=run_fleet_case,
+                         failed_fn=failed_fleet_row)
+    # the varied values as given (text), as the fleet study has always written them
+    return FleetStudyResult(case_table(grid.specs, grid.cases, run.rows, cells=False), run)
 
 
 def pick_fleet_winner(frame: pd.DataFrame, risk_level: float) -> int | None:

@@ -138,12 +138,20 @@ def _probe(shared) -> int:
     return int(shared.n_futures)
 
 
-def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, settings: PlanSettings,
+def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples | None, settings: PlanSettings,
               client=None, *, case_timeout: float | None = None, progress: bool = True,
-              case_fn: Callable = run_case,
+              case_fn: Callable = run_case, failed_fn: Callable[..., dict] = failed_row,
               on_start: Callable[[StudyRun], None] | None = None) -> StudyRun:
-    """Run every case (`run_case`, planned with ``settings``) against the shared
-    futures; serially when ``client`` is ``None``.  ``case_timeout``: see `run_case`.
+    """Run every case (``case_fn(case, shared, settings)``, by default the station
+    study's `run_case`) against the shared futures; serially when ``client`` is
+    ``None``.  ``case_timeout``: see `run_case` (passed on to ``case_fn``).
+
+    Any study runs here: ``case_fn`` plans one case and returns its row (a failure as a
+    row, as `reagentplan.study.run.run_guarded` makes it), ``failed_fn(case, status,
+    message)`` is the row of a case that came back with no row (a lost worker) or did
+    not run (Ctrl-C), and ``shared`` is what every case reads, scattered once to every
+    worker (``None``: nothing shared, ``case_fn`` gets ``None``).  ``cases`` need a
+    ``case`` number.
 
     ``on_start`` is called once the futures are on the workers (with the workers and
     the dashboard filled in), before the first case runs.  Rows come back in case order
@@ -170,7 +178,7 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
             interrupted = True
         finally:
             bar.close()
-        info.rows = _ordered(cases, by_case, interrupted)
+        info.rows = _ordered(cases, by_case, interrupted, failed_fn)
         info.interrupted, info.seconds = interrupted, time.perf_counter() - t0
         return info
 
@@ -178,11 +186,13 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
 
     n_workers = len(client.scheduler_info(n_workers=-1).get("workers", {})) or 1
     t0 = time.perf_counter()
+    shared_f, scatter = None, 0.0
     try:
-        shared_f = client.scatter(shared, broadcast=True, hash=False)
-        shared_f.result()
-        scatter = time.perf_counter() - t0
-        client.submit(_probe, shared_f, pure=False).result()
+        if shared is not None:
+            shared_f = client.scatter(shared, broadcast=True, hash=False)
+            shared_f.result()
+            scatter = time.perf_counter() - t0
+            client.submit(_probe, shared_f, pure=False).result()
     except Exception as exc:  # noqa: BLE001 - whatever the workers answer, say it plainly
         import reagentplan
 
@@ -208,7 +218,7 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
             try:
                 by_case[case.case] = f.result()
             except Exception as exc:  # noqa: BLE001 - lost worker, unpicklable result...
-                by_case[case.case] = failed_row(case, "failed", f"{type(exc).__name__}: {exc}")
+                by_case[case.case] = failed_fn(case, "failed", f"{type(exc).__name__}: {exc}")
             bar.update(1)
     except KeyboardInterrupt:
         interrupted = True
@@ -217,23 +227,49 @@ def run_cases(cases: tuple[Case, ...] | list[Case], shared: DriverSamples, setti
             client.cancel(pending, force=True)
     finally:
         bar.close()
-        with contextlib.suppress(Exception):
-            shared_f.release()  # its own key (hash=False): no other study shares it
-    info.rows = _ordered(cases, by_case, interrupted)
+        if shared_f is not None:
+            with contextlib.suppress(Exception):
+                shared_f.release()  # its own key (hash=False): no other study shares it
+    info.rows = _ordered(cases, by_case, interrupted, failed_fn)
     info.interrupted, info.seconds = interrupted, time.perf_counter() - t0
     return info
 
 
-def _ordered(cases, by_case: dict[int, dict], interrupted: bool) -> list[dict]:
+def run_on_cluster(cases, shared: DriverSamples | None, settings: PlanSettings, *, cluster: str = "local",
+                   workers: int | None = None, dashboard: bool = True, case_timeout: float | None = None,
+                   progress: bool = True, on_start: Callable[[StudyRun], None] | None = None,
+                   case_fn: Callable = run_case, failed_fn: Callable[..., dict] = failed_row) -> StudyRun:
+    """`run_cases` on ``cluster``: ``serial`` (in this process), ``local`` (a
+    `LocalCluster` of ``workers`` processes, closed after) or a scheduler's address
+    (`study_client`; ``dashboard``: whether a local cluster serves the Dask dashboard).
+    A second Ctrl-C while the cluster closes keeps the rows that came back (the run is
+    marked interrupted); one before any came back is raised."""
+    if cluster == "serial":
+        return run_cases(cases, shared, settings, None, case_timeout=case_timeout, progress=progress,
+                         case_fn=case_fn, failed_fn=failed_fn, on_start=on_start)
+    run = None
+    try:
+        with study_client(cluster, workers, dashboard=dashboard) as client:
+            run = run_cases(cases, shared, settings, client, case_timeout=case_timeout, progress=progress,
+                            case_fn=case_fn, failed_fn=failed_fn, on_start=on_start)
+    except KeyboardInterrupt:  # a second Ctrl-C while the cluster closes
+        if run is None:
+            raise
+        run.interrupted = True
+    return run
+
+
+def _ordered(cases, by_case: dict[int, dict], interrupted: bool, failed_fn: Callable[..., dict] = failed_row
+             ) -> list[dict]:
     rows = []
     for case in cases:
         row = by_case.get(case.case)
         if row is None:
-            row = failed_row(case, NOT_RUN, "stopped by Ctrl-C before it finished"
+            row = failed_fn(case, NOT_RUN, "stopped by Ctrl-C before it finished"
                              if interrupted else "no result")
         rows.append(row)
     return rows
 
 
-__all__ = ["StudyRun", "StudyClusterError", "study_client", "run_cases", "dashboard_link",
+__all__ = ["StudyRun", "StudyClusterError", "study_client", "run_cases", "run_on_cluster", "dashboard_link",
            "default_workers", "NOT_RUN"]

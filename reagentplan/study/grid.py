@@ -106,7 +106,7 @@ class Case:
     resample: bool = False  # its futures are sampled again (a driver input changed)
 
     def label(self, specs: tuple[VarySpec, ...]) -> str:
-        return ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs, self.values))
+        return case_label(specs, self.values)
 
 
 @dataclass(frozen=True)
@@ -134,8 +134,15 @@ def _did_you_mean(name: str, options) -> str:
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
-def _show(value) -> str:
+def show_value(value) -> str:
+    """A spec's value as the study names it (``none`` for an empty cell)."""
     return "none" if value is None else str(value)
+
+
+def case_label(specs, values) -> str:
+    """A case's values as ``target=value, ...`` (its label on the console and in
+    messages); ``specs`` are any specs with a ``target`` (a `VarySpec`, a fleet's spec)."""
+    return ", ".join(f"{s.target}={show_value(v)}" for s, v in zip(specs, values))
 
 
 def parse_vary(text: str) -> VarySpec:
@@ -185,7 +192,7 @@ def parse_vary(text: str) -> VarySpec:
     seen = set()
     for v in values:
         if v in seen:
-            raise ScenarioError(_problem(f"'{text}' gives the value {_show(v)} twice",
+            raise ScenarioError(_problem(f"'{text}' gives the value {show_value(v)} twice",
                                          "each value once"))
         seen.add(v)
     return VarySpec(text.strip(), sheet, row, m["column"].strip().lower(), tuple(values))
@@ -241,7 +248,7 @@ def _other_variant(name: str) -> str | None:
 
 
 @dataclass(frozen=True)
-class _Target:
+class CellTarget:
     """Where a spec writes: the sheet as written, the column index (``None``: a key
     row to add / a column to add), and the data rows (indices into ``rows``)."""
 
@@ -250,8 +257,16 @@ class _Target:
     rows: tuple[int, ...]
 
 
-def _locate(raw: dict[str, RawSheet], spec: VarySpec) -> _Target:
-    """Find the cells a spec writes, or raise `ScenarioError` naming what is missing."""
+def locate(raw: dict[str, RawSheet], spec: VarySpec) -> CellTarget:
+    """Find the cells a spec writes in ``raw`` (a workbook as `read_raw` read it), for
+    `apply_variant`.
+
+    Raises
+    ------
+    ScenarioError
+        The workbook has no such sheet, key, column or row, or the row name matches
+        several lanes (the message names the choices).
+    """
     sheet = schema.SHEETS_BY_NAME[spec.sheet]
     found = _sheet_of(raw, spec.sheet)
     accepted = _accepted(sheet)
@@ -273,7 +288,7 @@ def _locate(raw: dict[str, RawSheet], spec: VarySpec) -> _Target:
             raise ScenarioError(_problem(
                 f"'{spec.text}': the workbook gives this value as '{other}'",
                 f"{spec.sheet}.{other}=... (values in that key's unit)", sheet=spec.sheet))
-        return _Target(found.name, jv, tuple(idx))
+        return CellTarget(found.name, jv, tuple(idx))
     header = found.header
     if other and other in header:
         raise ScenarioError(_problem(
@@ -334,7 +349,7 @@ def _locate(raw: dict[str, RawSheet], spec: VarySpec) -> _Target:
             "one of " + ", ".join(f"{spec.sheet}{n}.{spec.column}" for n in sorted(lanes)),
             sheet=spec.sheet, column=keys[0]))
     j = header.index(spec.column) if spec.column in header else None
-    return _Target(found.name, j, tuple(matched))
+    return CellTarget(found.name, j, tuple(matched))
 
 
 def _show_cell(cell: Any) -> str:
@@ -349,7 +364,7 @@ def _show_cell(cell: Any) -> str:
     return str(cell).strip()
 
 
-def _cell_value(text: str | None) -> Any:
+def cell_value(text: str | None) -> Any:
     """A spec value as a cell: a number when it reads as one, else the text."""
     if text is None:
         return None
@@ -363,7 +378,7 @@ def _cell_value(text: str | None) -> Any:
 
 
 def apply_variant(raw: dict[str, RawSheet], specs: tuple[VarySpec, ...],
-                  targets: tuple[_Target, ...], values: tuple[str | None, ...]
+                  targets: tuple[CellTarget, ...], values: tuple[str | None, ...]
                   ) -> dict[str, RawSheet]:
     """A copy of ``raw`` with each spec's cells set to its value (the sheets not
     touched are shared, not copied)."""
@@ -375,13 +390,13 @@ def apply_variant(raw: dict[str, RawSheet], specs: tuple[VarySpec, ...],
             sheet = RawSheet(sheet.name, list(sheet.header), list(sheet.header_as_written),
                              list(sheet.rows))
             out[target.title] = sheet
-        cell = _cell_value(value)
+        cell = cell_value(value)
         j = target.column
         if schema.SHEETS_BY_NAME[spec.sheet].keyvalue:
             jk = sheet.header.index("key")
             if target.rows:
                 for i in target.rows:
-                    sheet.rows[i] = (sheet.rows[i][0], _set(sheet.rows[i][1], j, cell))
+                    sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell))
             else:  # the key is not in the workbook (it takes its default): add its row
                 last = max((r for r, _ in sheet.rows), default=1)
                 row = [None] * max(len(sheet.header), j + 1, jk + 1)
@@ -396,11 +411,12 @@ def apply_variant(raw: dict[str, RawSheet], specs: tuple[VarySpec, ...],
                 sheet.header_as_written.append(spec.column)
                 added[(target.title, spec.column)] = j
         for i in target.rows:
-            sheet.rows[i] = (sheet.rows[i][0], _set(sheet.rows[i][1], j, cell))
+            sheet.rows[i] = (sheet.rows[i][0], set_cell(sheet.rows[i][1], j, cell))
     return out
 
 
-def _set(values: tuple, j: int, cell: Any) -> tuple:
+def set_cell(values: tuple, j: int, cell: Any) -> tuple:
+    """A row's values with column ``j`` set to ``cell`` (padded with empty cells)."""
     row = list(values) + [None] * max(0, j + 1 - len(values))
     row[j] = cell
     return tuple(row)
@@ -409,7 +425,9 @@ def _set(values: tuple, j: int, cell: Any) -> tuple:
 # --------------------------------------------------------------------------- the grid
 
 
-def _with_case(exc: ScenarioError, label: str) -> list[Problem]:
+def with_case(exc: ScenarioError, label: str) -> list[Problem]:
+    """The problems of ``exc``, each found text ending ``(with LABEL)`` (the case or
+    value that made them)."""
     return [dataclasses.replace(p, found=f"{p.found} (with {label})") for p in exc.problems]
 
 
@@ -454,7 +472,7 @@ def build_grid(raw: dict[str, RawSheet], specs: list[str] | tuple[str, ...] | li
     problems: list[Problem] = []
     for s in specs_t:
         try:
-            targets.append(_locate(raw, s))
+            targets.append(locate(raw, s))
         except ScenarioError as exc:
             problems += exc.problems
     if problems:
@@ -467,17 +485,17 @@ def build_grid(raw: dict[str, RawSheet], specs: list[str] | tuple[str, ...] | li
             try:
                 scenario_from_raw(apply_variant(raw, (s,), (targets_t[k],), (v,)), source_name)
             except ScenarioError as exc:
-                problems += _with_case(exc, f"{OPTION} {s.target}={_show(v)}")
+                problems += with_case(exc, f"{OPTION} {s.target}={show_value(v)}")
     if problems:
         raise ScenarioError(problems)
 
     cases = []
     for i, values in enumerate(itertools.product(*(s.values for s in specs_t)), start=1):
-        label = ", ".join(f"{s.target}={_show(v)}" for s, v in zip(specs_t, values))
+        label = case_label(specs_t, values)
         try:
             scn = scenario_from_raw(apply_variant(raw, specs_t, targets_t, values), source_name)
         except ScenarioError as exc:
-            problems += _with_case(exc, f"case {i}: {label}")
+            problems += with_case(exc, f"case {i}: {label}")
             continue
         resample = any(s.touches_drivers for s in specs_t)
         cases.append(Case(i, tuple(values), scn, resample))
@@ -486,5 +504,5 @@ def build_grid(raw: dict[str, RawSheet], specs: list[str] | tuple[str, ...] | li
     return Grid(specs_t, base, tuple(cases))
 
 
-__all__ = ["VarySpec", "Case", "Grid", "parse_vary", "build_grid", "apply_variant", "MAX_CASES",
-           "DRIVER_SHEETS"]
+__all__ = ["VarySpec", "Case", "Grid", "CellTarget", "parse_vary", "build_grid", "locate", "apply_variant",
+           "cell_value", "set_cell", "show_value", "case_label", "with_case", "MAX_CASES", "DRIVER_SHEETS"]

@@ -14,24 +14,36 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from .grid import Grid, _cell_value
+from .grid import Grid, cell_value
 from .run import EXTRA_COLUMNS, PLANNED, RESULT_COLUMNS
 
 
-def study_frame(grid: Grid, rows: list[dict]) -> pd.DataFrame:
-    """``study.csv``: case, one column per ``--vary`` (named as its target), then
-    `RESULT_COLUMNS` (DESIGN §7) and `EXTRA_COLUMNS`."""
-    by_case = {c.case: c for c in grid.cases}
+def case_table(specs, cases, rows: list[dict], columns: tuple[str, ...] | None = None, *,
+               cells: bool = True) -> pd.DataFrame:
+    """A study's table: per row (matched to its case by ``case``), the case number, one
+    column per spec (named as its ``target``; the value as a cell, `cell_value`, or with
+    ``cells`` False as the text given), then the row's ``columns`` (``None``: every
+    field the rows have, in the order they come).  Any study's specs and cases (a
+    station's `Grid`, a fleet's)."""
+    by_case = {c.case: c for c in cases}
+    targets = [spec.target for spec in specs]
     records = []
     for row in rows:
         case = by_case[row["case"]]
         rec = {"case": case.case}
-        for spec, value in zip(grid.specs, case.values):
-            rec[spec.target] = _cell_value(value)
-        rec.update({k: row.get(k) for k in RESULT_COLUMNS + EXTRA_COLUMNS})
+        for target, value in zip(targets, case.values):
+            rec[target] = cell_value(value) if cells else value
+        rec.update(row if columns is None else {k: row.get(k) for k in columns})
         records.append(rec)
-    cols = ["case", *grid.targets, *RESULT_COLUMNS, *EXTRA_COLUMNS]
-    return pd.DataFrame(records, columns=cols)
+    if columns is None:
+        return pd.DataFrame(records)
+    return pd.DataFrame(records, columns=["case", *targets, *columns])
+
+
+def study_frame(grid: Grid, rows: list[dict]) -> pd.DataFrame:
+    """``study.csv``: case, one column per ``--vary`` (named as its target), then
+    `RESULT_COLUMNS` (DESIGN §7) and `EXTRA_COLUMNS` (`case_table`)."""
+    return case_table(grid.specs, grid.cases, rows, RESULT_COLUMNS + EXTRA_COLUMNS)
 
 
 def case_risk(frame: pd.DataFrame) -> pd.Series:
@@ -139,5 +151,5 @@ def varied_columns(frame: pd.DataFrame) -> list[str]:
     return cols[cols.index("case") + 1:cols.index("status")]
 
 
-__all__ = ["study_frame", "case_risk", "Winner", "pick_winner", "study_summary",
+__all__ = ["case_table", "study_frame", "case_risk", "Winner", "pick_winner", "study_summary",
            "read_study_table", "varied_columns"]

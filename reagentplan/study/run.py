@@ -50,9 +50,11 @@ per period.
 
 from __future__ import annotations
 
+import functools
 import threading
 import time
 import traceback
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -219,28 +221,56 @@ def plan_case(case: Case, shared: DriverSamples, settings: PlanSettings) -> Plan
     return plan_with_futures(case.scenario, fut, settings)
 
 
-def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
-    """The plain row of a planned case (the fields of `RESULT_COLUMNS` and
-    `EXTRA_COLUMNS`)."""
+@dataclass(frozen=True)
+class Movements:
+    """What plans move over the horizon: rail loads (trains) and road loads (trucks) of
+    limestone [-], and byproduct tonnes sold and landfilled [t]."""
+
+    trains: int
+    trucks: int
+    sold_t: float
+    landfilled_t: float
+
+
+def movement_totals(plans) -> Movements:
+    """The loads and tonnes of one or more plans (`reagentplan.schedule.PlanResult`),
+    summed lane by lane in the order given: a station's plan, or a fleet's stations'."""
+    trains = trucks = 0
+    sold = landfilled = 0.0
+    for plan in plans:
+        for lane in plan.lanes:
+            q = plan.plan.quantity[lane.name]
+            if lane.kind == SUPPLY:
+                if lane.mode == "rail":
+                    trains += int(np.sum(q))
+                else:
+                    trucks += int(np.sum(q))
+            elif lane.kind == SALE:
+                sold += float(plan.plan.tonnes(lane).sum())
+            elif lane.kind == LANDFILL:
+                landfilled += float(plan.plan.tonnes(lane).sum())
+    return Movements(trains, trucks, sold, landfilled)
+
+
+def replay_run(run: PlanRun) -> ReplayFigures:
+    """A planned run (`reagentplan.pipeline.PlanRun`, with futures) replayed against its
+    own futures (`replay_costs`): each store's flow as sampled, the limestone use and
+    gypsum moved to the plan's stone where the silo's quality is coupled
+    (`reagentplan.schedule.plan.flows_at_plan_stone`)."""
     plan = run.plan
     flows = {store: run.futures.flows[q] for store, q in STORE_FLOWS.items()
              if store in plan.scenario.storage}
     if plan.scenario.quality_coupled:  # the futures' stone use and gypsum at the plan's silo
         flows = flows_at_plan_stone(plan, flows, balance_frame(plan.scenario))
-    fig = replay_costs(plan, flows)
-    trains = trucks = 0
-    sold = landfilled = 0.0
-    for lane in plan.lanes:
-        q = plan.plan.quantity[lane.name]
-        if lane.kind == SUPPLY:
-            if lane.mode == "rail":
-                trains += int(np.sum(q))
-            else:
-                trucks += int(np.sum(q))
-        elif lane.kind == SALE:
-            sold += float(plan.plan.tonnes(lane).sum())
-        elif lane.kind == LANDFILL:
-            landfilled += float(plan.plan.tonnes(lane).sum())
+    return replay_costs(plan, flows)
+
+
+def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
+    """The plain row of a planned case (the fields of `RESULT_COLUMNS` and
+    `EXTRA_COLUMNS`)."""
+    plan = run.plan
+    fig = replay_run(run)
+    moved = movement_totals([plan])
     o = plan.outcome
     status = o.status.split(" ")[0]
     q10, q50, q90 = np.quantile(fig.costs, [0.1, 0.5, 0.9])
@@ -251,8 +281,8 @@ def result_row(case: Case, run: PlanRun, seconds: float) -> dict:
         "cost_p90": round(float(q90), 2),
         "p_limestone_below_safety": round(fig.p_limestone_below_safety, 6),
         "p_any_over_capacity": round(fig.p_any_over_capacity, 6),
-        "trains": trains, "trucks": trucks, "sold_t": round(sold, 1),
-        "landfilled_t": round(landfilled, 1), "solve_seconds": round(o.solve_seconds, 3),
+        "trains": moved.trains, "trucks": moved.trucks, "sold_t": round(moved.sold_t, 1),
+        "landfilled_t": round(moved.landfilled_t, 1), "solve_seconds": round(o.solve_seconds, 3),
         "expected_cost": round(float(fig.costs.mean()), 2),
         "baseline_total_cost": round(plan.baseline_evaluation.total_cost, 2),
         "gap": round(o.gap, 6) if np.isfinite(o.gap) else None,
@@ -271,16 +301,46 @@ def failed_row(case: Case, status: str, message: str, seconds: float | None = No
     return row
 
 
-def _run(case: Case, shared: DriverSamples, settings: PlanSettings) -> dict:
+def _caught(case, plan_row: Callable[[], dict], failed: Callable[..., dict]) -> dict:
     t0 = time.perf_counter()
     try:
-        run = plan_case(case, shared, settings)
-        return result_row(case, run, time.perf_counter() - t0)
+        return plan_row()
     except Exception as exc:  # a case that fails is reported, and the study goes on
         where = traceback.extract_tb(exc.__traceback__)[-1]
-        return failed_row(case, "failed", f"{type(exc).__name__}: {exc} (at {where.name}, "
-                          f"{where.filename.rsplit('/', 1)[-1]}:{where.lineno})",
-                          time.perf_counter() - t0)
+        return failed(case, "failed", f"{type(exc).__name__}: {exc} (at {where.name}, "
+                      f"{where.filename.rsplit('/', 1)[-1]}:{where.lineno})",
+                      time.perf_counter() - t0)
+
+
+def run_guarded(case, plan_row: Callable[[], dict], failed: Callable[..., dict], *,
+                case_timeout: float | None = None, time_limit: float = 0.0) -> dict:
+    """``plan_row()`` (the row of one planned case) as a study runs it, whatever study:
+    a case that raises gives ``failed(case, "failed", message, seconds)`` with the error
+    and where it was raised; with ``case_timeout`` (wall-clock seconds of the whole case
+    [s]; None: none), a case that has not finished by then gives ``failed(case,
+    "timeout", message, seconds)`` naming ``time_limit``, the solver's limit per solve
+    [s] (its thread cannot be stopped from outside: it runs on to its solver time limit
+    in the background and its result is dropped).  ``case`` needs a ``case`` number."""
+    if not case_timeout:
+        return _caught(case, plan_row, failed)
+    box: list[dict] = []
+    t0 = time.perf_counter()
+    worker = threading.Thread(target=lambda: box.append(_caught(case, plan_row, failed)),
+                              name=f"study-case-{case.case}", daemon=True)
+    worker.start()
+    worker.join(case_timeout)
+    if box:
+        return box[0]
+    return failed(case, "timeout",
+                  f"no result after {case_timeout:g} s (solver limit "
+                  f"{time_limit:g} s per solve); the result is dropped",
+                  time.perf_counter() - t0)
+
+
+def _planned_row(case: Case, shared: DriverSamples, settings: PlanSettings) -> dict:
+    t0 = time.perf_counter()
+    run = plan_case(case, shared, settings)
+    return result_row(case, run, time.perf_counter() - t0)
 
 
 def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
@@ -289,25 +349,12 @@ def run_case(case: Case, shared: DriverSamples, settings: PlanSettings,
 
     A case that raises gives a ``failed`` row with the error; with ``case_timeout``
     (wall-clock seconds of the whole case [s]; None: none), a case that has not finished by then gives a ``timeout``
-    row (its thread cannot be stopped from outside: it runs on to its solver time limit
-    in the background and its result is dropped).
+    row (`run_guarded`).
     """
-    if not case_timeout:
-        return _run(case, shared, settings)
-    box: list[dict] = []
-    t0 = time.perf_counter()
-    worker = threading.Thread(target=lambda: box.append(_run(case, shared, settings)),
-                              name=f"study-case-{case.case}", daemon=True)
-    worker.start()
-    worker.join(case_timeout)
-    if box:
-        return box[0]
-    return failed_row(case, "timeout",
-                      f"no result after {case_timeout:g} s (solver limit "
-                      f"{settings.time_limit:g} s per solve); the result is dropped",
-                      time.perf_counter() - t0)
+    return run_guarded(case, functools.partial(_planned_row, case, shared, settings), failed_row,
+                       case_timeout=case_timeout, time_limit=settings.time_limit)
 
 
-__all__ = ["ReplayFigures", "replay_costs", "replay_byproduct_heel",
+__all__ = ["ReplayFigures", "replay_costs", "replay_run", "Movements", "movement_totals", "replay_byproduct_heel",
            "outbound_cost_per_t", "replay_limestone_capped", "inbound_cost_per_t", "case_futures", "plan_case",
-           "result_row", "failed_row", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]
+           "result_row", "failed_row", "run_guarded", "run_case", "RESULT_COLUMNS", "EXTRA_COLUMNS", "PLANNED"]

@@ -20,7 +20,7 @@ from ..errors import Problem, ScenarioError
 from ..forecast.futures import DriverSamples, sample_drivers
 from ..pipeline import PlanRun
 from ..workbook import read_raw
-from .cluster import StudyRun, run_cases, study_client
+from .cluster import StudyRun, run_on_cluster
 from .grid import MAX_CASES, Grid, build_grid
 from .results import Winner, pick_winner, study_frame
 from ..settings import STUDY, PlanSettings
@@ -78,19 +78,8 @@ def run_study(grid: Grid, shared: DriverSamples, settings: PlanSettings = STUDY,
     tabulate them and pick the winner within ``settings.risk_level``; the winner is
     planned once more here (the same inputs give the same plan) for its plan folder.
     ``case_timeout``: see `reagentplan.study.run.run_case`."""
-    if cluster == "serial":
-        run = run_cases(grid.cases, shared, settings, None, case_timeout=case_timeout,
-                        progress=progress, on_start=on_start)
-    else:
-        run = None
-        try:
-            with study_client(cluster, workers, dashboard=dashboard) as client:
-                run = run_cases(grid.cases, shared, settings, client, case_timeout=case_timeout,
-                                progress=progress, on_start=on_start)
-        except KeyboardInterrupt:  # a second Ctrl-C while the cluster closes
-            if run is None:
-                raise
-            run.interrupted = True
+    run = run_on_cluster(grid.cases, shared, settings, cluster=cluster, workers=workers, dashboard=dashboard,
+                         case_timeout=case_timeout, progress=progress, on_start=on_start)
     frame = study_frame(grid, run.rows)
     labels = {c.case: c.label(grid.specs) for c in grid.cases}
     winner = pick_winner(frame, settings.risk_level, grid.base.plant.currency, labels)
