@@ -210,8 +210,9 @@ def test_fleet_plan_never_dearer_than_the_hand_split_and_room_goes_where_it_pays
 
 
 def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
-    """A station whose quarries give their own CaCO3 (its silo linearised at its hand
-    split's replay, every plan replayed exactly) shares the board plant's room with two
+    """A station whose quarries give their own CaCO3 (its silo linearised where the joint
+    linear programme's recursion settles, its byproducts planned again at the stone
+    chosen, every plan replayed exactly) shares the board plant's room with two
     plain stations: the independent replay of its silo, purity on every shipping day and
     train windows (`plancheck.check_plan`) finds nothing its plan does not list."""
     from plancheck import check_plan
@@ -230,6 +231,10 @@ def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
     assert result.groups == [["north", "south", "east"]]
     r = result.runs["east"].plan
     assert check_plan(r.scenario, r.movements.astype({"date": str}), r.balance, r.inventory, r.breaches) == []
+    # its byproducts were planned again at the stone it chose (exact purity): no shipment
+    # outside a buyer's limits is left to be listed
+    assert "byproducts planned again at the chosen stone" in result.status
+    assert not [b for b in r.breaches if b["kind"] == "shipped outside the buyer's limits"]
     s = fleet_summary(result)
     assert s["total_cost"] <= s["baseline_total_cost"] + 1e-6
     for month in s["shared_contracts"]["Board pool"].values():
