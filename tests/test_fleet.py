@@ -210,8 +210,9 @@ def test_fleet_plan_never_dearer_than_the_hand_split_and_room_goes_where_it_pays
 
 
 def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
-    """A station whose quarries give their own CaCO3 (its silo linearised at its hand
-    split's replay, every plan replayed exactly) shares the board plant's room with two
+    """A station whose quarries give their own CaCO3 (its silo linearised where the joint
+    linear programme's recursion settles, its byproducts planned again at the stone
+    chosen, every plan replayed exactly) shares the board plant's room with two
     plain stations: the independent replay of its silo, purity on every shipping day and
     train windows (`plancheck.check_plan`) finds nothing its plan does not list."""
     from plancheck import check_plan
@@ -230,6 +231,10 @@ def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
     assert result.groups == [["north", "south", "east"]]
     r = result.runs["east"].plan
     assert check_plan(r.scenario, r.movements.astype({"date": str}), r.balance, r.inventory, r.breaches) == []
+    # its byproducts were planned again at the stone it chose (exact purity): no shipment
+    # outside a buyer's limits is left to be listed
+    assert "byproducts planned again at the chosen stone" in result.status
+    assert not [b for b in r.breaches if b["kind"] == "shipped outside the buyer's limits"]
     s = fleet_summary(result)
     assert s["total_cost"] <= s["baseline_total_cost"] + 1e-6
     for month in s["shared_contracts"]["Board pool"].values():
@@ -342,3 +347,48 @@ def test_study_of_a_fleet_on_dask(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "names the station 'nort', which the fleet has not (did you mean 'north'?)" in err
     assert not (tmp_path / "bad").exists()
+
+
+def test_station_sweeps_lower_the_joint_objective_and_keep_the_shared_limits(planned):
+    """Block coordinate descent (`fleet.solve.station_sweeps`), started from the hand
+    split (its car-set collisions repaired) pinned in the joint model day by day: each station re-planned with the others
+    held never raises the joint objective, here lowers it, and the plans it returns still
+    keep every pooled monthly maximum and the car set's window (the joint rows hold: the
+    held stations' movements are part of each solve)."""
+    from reagentplan.fleet.plan import _prepare, pool_accounts
+    from reagentplan.fleet.solve import _as_days, _one_pass, repair_car_sets, station_sweeps
+    from reagentplan.schedule.model import WorkLimits
+    from reagentplan.settings import PLAN
+
+    path, _, _ = planned
+    fleet = load_fleet(path)
+    names = [s.station for s in fleet.stations]
+    stations = _prepare(fleet, names, {}, PLAN, None)
+    daily = [(d, d) for d in range(DAYS)]
+    args = dict(solver="highs", gap=1e-4, time_limit=120, node_limit=WorkLimits().nodes, scale=None,
+                late_days=0, firm_days=DAYS, used=None, change_cost=None)
+    # the hand split, its trains that meet in one window of the car set moved apart
+    hand = repair_car_sets(stations, {s.name: s.base for s in stations}, fleet.shared_train_sets)
+    pinned = {s.name: {l.name: np.asarray(hand[s.name].quantity[l.name], float) for l in s.lanes}
+              for s in stations}
+    start, _ = _one_pass(stations, fleet.shared_contracts, fleet.shared_train_sets, daily, lins={}, hints={},
+                         totals=None, fixed=pinned, **args)
+    before = next(iter(start.values())).objective
+    plans = dict(hand)
+    sols, plans = station_sweeps(stations, fleet.shared_contracts, fleet.shared_train_sets, daily, start, plans,
+                                 lins={}, **args)
+    after = next(iter(sols.values())).objective
+    assert after < before - 1.0, (before, after)
+    # the pinned start was that plan exactly: its days read back unchanged
+    for s in stations:
+        back = _as_days(s, daily, start[s.name])
+        for lane in s.lanes:
+            assert np.allclose(back[lane.name], hand[s.name].quantity[lane.name]), (s.name, lane.name)
+    pools = pool_accounts(fleet, {s.name: (s.lanes, plans[s.name]) for s in stations})
+    assert not [b for b in pools["breaches"] if "maximum" in b["cause"]], pools["breaches"]
+    trains = np.zeros(DAYS)
+    for s in stations:
+        for lane in s.lanes:
+            if getattr(lane.source, "train_set", None) == "Q set":
+                trains += np.asarray(plans[s.name].quantity[lane.name], float)
+    assert np.convolve(trains, np.ones(6), mode="valid").max() <= 1 + 1e-9

@@ -16,11 +16,13 @@ pooled contracts or a shared car set tie stations.
    shortfalls are priced once for the fleet (`pool_accounts`), the same way for the
    plan and the baseline.
 
-Stations of quarries of different CaCO3 are planned with the silo linearised at the
-baseline's replayed mix (one step of Haverly's recursion, `schedule.plan._plan_the_silo`
-takes up to five) and every plan replayed exactly; their byproducts are not planned a
-second time at the chosen stone (a buyer's purity on a day is then priced, as an
-off-spec shipment, where the linearisation erred).
+Stations of quarries of different CaCO3 are planned with the silo linearised where the
+joint linear programme's recursion settles (`solve.settle_silos`, as
+`schedule.plan._plan_the_silo` starts a station's), one whole-load joint solve there, and
+every plan replayed exactly.  Then the byproducts of every station are planned again,
+jointly, at the stone chosen (`_byproducts_at_stone`: supply pinned, sale lanes closed on
+the days a station's gypsum fails a buyer's purity), and that plan is kept when the
+fleet's cost is not higher, so no shipment rests on the linearisation.
 
 References
 ----------
@@ -32,7 +34,7 @@ Management in Supply Chains*, 4th ed., CRC Press (the reorder-point baseline).
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -48,7 +50,7 @@ from ..schedule.lanes import SUPPLY, build_lanes, contract_month_note, firm_load
 from ..schedule.lever import AllowanceTerms, RemovalLever, baseline_trades
 from ..schedule.model import SolveOutcome, SolveStatus, WorkLimits
 from ..schedule.permit import permit_breaches
-from ..schedule.plan import (PlanResult, _penalties, flows_at_plan_stone, guard_margins, held_loads, permit_guard,
+from ..schedule.plan import (LINEAR_SILO_STEPS, SILO_TOLERANCE_PCT, PlanResult, _penalties, flows_at_plan_stone, guard_margins, held_loads, permit_guard,
                              saving_by_cause)
 from ..schedule.quality import SiloChemistry
 from ..schedule.settle import earliest_departures
@@ -336,12 +338,17 @@ def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettin
     if solver == "cp-sat" and any(s.chem is not None for s in stations):
         solver, note = "scip", " (cp-sat cannot take a silo's mix; solved with scip)"
     scale = sum(sum(abs(v) for v in s.base_ev.costs.values()) for s in stations)
+    used = {c.contract: pool_month_to_date([s.open for s in stations], c) for c in contracts}
     try:
         plans, first, seconds = solve_joint(stations, contracts, sets, firm_days=settings.firm_days, solver=solver,
                                             gap=settings.gap, time_limit=settings.time_limit,
-                                            late_days=_late_days(), work=work, scale=scale,
-                                            used={c.contract: pool_month_to_date([s.open for s in stations], c)
-                                                  for c in contracts})
+                                            late_days=_late_days(), work=work, scale=scale, used=used,
+                                            silo_steps=LINEAR_SILO_STEPS, silo_tolerance_pct=SILO_TOLERANCE_PCT)
+        if any(s.chem is not None for s in stations):
+            plans, more, note_x = _byproducts_at_stone(fleet, stations, plans, contracts, sets, settings, solver, work,
+                                                       scale, used)
+            seconds += more
+            note += note_x
         state, status = first.status, first.status.value + note
         if first.clock_cut:
             status += (f" (the {settings.time_limit:g} s safety net cut a solve short: a re-run may give another "
@@ -402,6 +409,41 @@ def _plan_group(fleet: Fleet, names: list[str], futs: dict, settings: PlanSettin
     plans_out = {s.name: (s.lanes, runs[s.name].plan.plan) for s in stations}
     return runs, plans_out, {s.name: (s.lanes, s.base) for s in stations}, \
         {s.name: s.split for s in stations}, (solver, objective, bound, seconds, status)
+
+
+def _fleet_cost(fleet: Fleet, stations, plans: dict) -> float:
+    """The fleet's cost of ``plans`` [money]: each station's evaluation at the balance its
+    plan makes, and the pooled shortfalls."""
+    evs = sum(evaluate(s.open, s.bal_of(plans[s.name]), s.lanes, plans[s.name]).total_cost for s in stations)
+    return evs + pool_accounts(fleet, {s.name: (s.lanes, plans[s.name]) for s in stations})["cost"]
+
+
+def _byproducts_at_stone(fleet: Fleet, stations, plans: dict, contracts, sets, settings: PlanSettings, solver: str,
+                         work: WorkLimits | None, scale: float, used: dict) -> tuple[dict, float, str]:
+    """The byproducts planned again, jointly, at the stone each station's plan chose: its
+    supply lanes pinned, its balance replayed at its silo's mix and its removal, its sale
+    lanes closed on the days its gypsum fails a buyer's purity (exact quality, as
+    `schedule.plan._plan_the_silo` does for one station).  The re-plan is kept when the
+    fleet's cost is not higher.  Returns (plans, seconds, note)."""
+    t0 = time.perf_counter()
+    again, fixed = [], {}
+    for s in stations:
+        p = plans[s.name]
+        bal = s.bal_of(p)
+        again.append(replace(s, balance=bal, lanes=build_lanes(s.open, bal, exact_quality=True), chem=None,
+                             lever=None, pguard=None))
+        fixed[s.name] = {l.name: p.quantity[l.name] for l in s.lanes if l.kind == SUPPLY}
+    try:
+        new, _, _ = solve_joint(again, contracts, sets, firm_days=max(settings.firm_days, 1), solver=solver,
+                                gap=settings.gap, time_limit=settings.time_limit, late_days=_late_days(),
+                                work=work, scale=scale, used=used, fixed=fixed, hints=plans)
+    except RuntimeError:
+        return plans, time.perf_counter() - t0, ""
+    for s in stations:
+        new[s.name].removal = plans[s.name].removal
+    if _fleet_cost(fleet, stations, new) <= _fleet_cost(fleet, stations, plans) + 1e-6:
+        return new, time.perf_counter() - t0, " (byproducts planned again at the chosen stone)"
+    return plans, time.perf_counter() - t0, ""
 
 
 def _late_days() -> int:

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import dataclasses
 import time
+from types import SimpleNamespace
 
 import numpy as np
 from ortools.math_opt.python import mathopt
@@ -160,8 +161,11 @@ def _in_shared_set(lane, sets) -> bool:
 
 
 def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver, gap, time_limit,
-              node_limit, scale, late_days, firm_days, used=None, change_cost=None
-              ) -> tuple[dict[str, PeriodSolution], dict[str, Problem]]:
+              node_limit, scale, late_days, firm_days, used=None, change_cost=None, fixed=None,
+              relax: bool = False) -> tuple[dict[str, PeriodSolution], dict[str, Problem]]:
+    """One solve of the joint model over ``periods``.  ``fixed``: per station, per lane,
+    quantities decided already (`Problem.fixed`); ``relax``: whole loads and yes/no
+    decisions relaxed to fractions (a linear programme, no node limit)."""
     model = mathopt.Model(name="fleet")
     probs: dict[str, Problem] = {}
     for s in stations:
@@ -173,7 +177,8 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
         p = Problem(s.open, s.balance, s.lanes, s.firm, s.guard, periods, solver, chem=s.chem,
                     lin=lins.get(s.name), lever=s.lever, allow=s.allow, totals=own, late_days=late_days,
                     margin_days=firm_days, permit_guard=s.pguard, into=model, prefix=f"{s.name}:",
-                    keep=s.keep or None, **({} if change_cost is None else {"change_cost": change_cost}))
+                    keep=s.keep or None, fixed=(fixed or {}).get(s.name),
+                    **({} if change_cost is None else {"change_cost": change_cost}))
         formulate(p)
         probs[s.name] = p
         if totals is not None:
@@ -189,6 +194,11 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
     _pooled_contracts(probs, contracts, model, cost, used)
     _shared_car_sets(probs, sets, model)
     model.minimize(sum(cost, 0.0))
+    if relax:
+        for v in model.variables():
+            if v.integer:
+                v.integer = False
+        node_limit = None
     values = {}
     for s in stations:
         if hints.get(s.name) is not None:
@@ -200,31 +210,140 @@ def _one_pass(stations, contracts, sets, periods, *, lins, hints, totals, solver
     return {name: _read_solution(p, result) for name, p in probs.items()}, probs
 
 
+def settle_silos(stations, contracts, sets, periods, *, steps: int, tolerance_pct: float, **pass_args):
+    """The linearisation points of the stations' silos where the joint model's linear
+    programme settles: Haverly's recursion with whole loads relaxed to fractions, from each
+    station's baseline's replayed silo, ``steps`` solves at most or until no station's
+    silo CaCO3 moves more than ``tolerance_pct`` [%-points] between two solves (as
+    `schedule.plan._plan_the_silo` starts a station's).  Returns ({station: point},
+    [largest change per step]).
+
+    References
+    ----------
+    Haverly, C. A. (1978), ACM SIGMAP Bulletin 25:19-28 (the recursion).
+    """
+    lins = {s.name: s.chem.linearisation(s.lanes, s.base, periods, _silo_floor(s.open))
+            for s in stations if s.chem is not None}
+    changes = []
+    for _ in range(steps if lins else 0):
+        try:
+            sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints={}, totals=None,
+                                relax=True, **pass_args)
+        except RuntimeError:
+            break
+        moved = 0.0
+        for s in stations:
+            if s.chem is None:
+                continue
+            plan = spread_to_days(s.open, s.balance, s.lanes, s.firm, periods, sols[s.name].quantity,
+                                  sols[s.name], s.lever)
+            made = s.chem.linearisation(s.lanes, plan, periods, _silo_floor(s.open))
+            moved = max(moved, float(np.max(np.abs(100 / made[0] - 100 / lins[s.name][0]))))
+            lins[s.name] = made
+        changes.append(moved)
+        if moved < tolerance_pct:
+            break
+    return lins, changes
+
+
+#: The joint solve's relative gap [-] above which the stations are re-planned one at a
+#: time, day by day (`station_sweeps`), after the daily pass.
+SWEEP_ABOVE_GAP = 0.01
+
+
+def _gap(objective: float, bound: float) -> float:
+    """Relative gap [-] of an objective against a lower bound (NaN without a bound)."""
+    if not (np.isfinite(objective) and np.isfinite(bound)):
+        return float("nan")
+    return max(objective - bound, 0.0) / max(abs(objective), 1.0)
+
+
+def station_sweeps(stations, contracts, sets, periods, sols, plans, *, lins, fixed=None, **pass_args):
+    """Each station in turn planned again with every other station's movements held
+    (the pooled contracts' and the car set's room they leave is what it may use), warm
+    started at the current plan, and kept when the joint objective falls: block
+    coordinate descent (Gauss-Seidel over the stations), one sweep.  The current plan is
+    feasible for every such solve and is its warm start, so the objective never rises.
+    At ten stations the joint solve can end at its warm start; each station's solve is
+    one station's size once the held movements are presolved away.  Run day by day (no
+    weekly totals): over weekly buckets, the weeks it chose could not all be placed on
+    days under a shared car set (the 10 × 365 bench broke 18 limits).  Returns
+    (solutions, daily plans).
+
+    References
+    ----------
+    Bertsekas, D. P. and Tsitsiklis, J. N. (1989), *Parallel and Distributed Computation:
+    Numerical Methods*, Prentice Hall, section 3.3.5 (block Gauss-Seidel / coordinate descent).
+    """
+    best = next(iter(sols.values())).objective
+    for s in stations:
+        now = {o.name: SimpleNamespace(quantity=_as_days(o, periods, sols[o.name])) for o in stations}
+        held = {o.name: now[o.name].quantity for o in stations if o.name != s.name}
+        if (fixed or {}).get(s.name):
+            held[s.name] = fixed[s.name]
+        try:
+            new, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints=now, totals=None,
+                               fixed=held, **pass_args)
+        except RuntimeError:
+            continue
+        obj = next(iter(new.values())).objective
+        if obj < best - 1e-6 * max(abs(best), 1.0):
+            best, sols = obj, new
+            plans = dict(plans)
+            plans[s.name] = spread_to_days(s.open, s.balance, s.lanes, s.firm, periods, new[s.name].quantity,
+                                           new[s.name], s.lever)
+    return sols, plans
+
+
+def _as_days(s, periods, sol: PeriodSolution) -> dict[str, np.ndarray]:
+    """A station's solution per period as daily quantities whose period sums, firm
+    orders taken out, are the solution's own (each period's quantity on its first day,
+    the firm loads on theirs): what `Problem.fixed` and the warm start read back."""
+    n = len(s.open.dates)
+    starts = np.array([a for a, _ in periods])
+    out = {}
+    for lane in s.lanes:
+        day = np.zeros(n)
+        day[starts] = np.asarray(sol.quantity[lane.name], float)
+        if lane.load_t:
+            day += s.firm.get(lane.name, (np.zeros(n, int), None))[0]
+        out[lane.name] = day
+    return out
+
+
 def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: float, time_limit: float,
                 late_days: int, work: WorkLimits | None = None, scale: float | None = None,
-                used: dict | None = None, change_cost: float | None = None):
+                used: dict | None = None, change_cost: float | None = None, fixed: dict | None = None,
+                hints: dict | None = None, silo_steps: int = 0, silo_tolerance_pct: float = 0.05):
     """Plan the stations together: the joint model over the firm window's days and the
     outlook's weeks, then (when the horizon has weeks) day by day with each outlook week's
     totals held (arrivals exactly, sales at most), so the shared car set's window holds
     day by day.  Returns ({station: DailyPlan}, the first solve's PeriodSolution, seconds).
 
-    A station of quarries of different CaCO3 (``chem``) has its silo linearised at its
-    baseline's replayed mix (first solve) and at the first solve's (daily solve)."""
+    A station of quarries of different CaCO3 (``chem``) has its silo linearised where the
+    joint linear programme's recursion settles (`settle_silos`, ``silo_steps`` solves at
+    most; 0: at its baseline's replayed mix) for the first solve, and at the first
+    solve's mix for the daily solve.  ``fixed`` (per station, per lane) pins quantities
+    decided already; ``hints`` (per station, a plan) is the warm start (default: the
+    baselines, their car-set collisions repaired).  When the first solve's gap is above
+    `SWEEP_ABOVE_GAP`, the stations are then re-planned one at a time, day by day, with the
+    others held (`station_sweeps`); the objective, bound and gap returned stay the first
+    solve's."""
     work = work or WorkLimits()
     t0 = time.perf_counter()
     first_st = stations[0]
     n = len(first_st.open.dates)
     periods = build_periods(first_st.open.dates, firm_days)
-    lins = {s.name: s.chem.linearisation(s.lanes, s.base, periods, _silo_floor(s.open))
-            for s in stations if s.chem is not None}
-    start = repair_car_sets(stations, {s.name: s.base for s in stations}, sets)
-    sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints=start,
-                        totals=None, solver=solver, gap=gap, time_limit=time_limit, node_limit=work.nodes,
-                        scale=scale, late_days=late_days, firm_days=firm_days, used=used,
-                        change_cost=change_cost)
+    pass_args = dict(solver=solver, gap=gap, time_limit=time_limit, node_limit=work.nodes, scale=scale,
+                     late_days=late_days, firm_days=firm_days, used=used, change_cost=change_cost, fixed=fixed)
+    lins, _ = settle_silos(stations, contracts, sets, periods, steps=silo_steps,
+                           tolerance_pct=silo_tolerance_pct, **pass_args)
+    start = repair_car_sets(stations, hints or {s.name: s.base for s in stations}, sets)
+    sols, _ = _one_pass(stations, contracts, sets, periods, lins=lins, hints=start, totals=None, **pass_args)
     plans = {s.name: spread_to_days(s.open, s.balance, s.lanes, s.firm, periods, sols[s.name].quantity,
                                     sols[s.name], s.lever) for s in stations}
     first = next(iter(sols.values()))
+    day_sols, day_periods, day_lins = sols, periods, lins
     if len(periods) < n:
         daily = [(d, d) for d in range(n)]
         totals = {s.name: {lane.name: [(a, b, sols[s.name].quantity[lane.name][k])
@@ -238,10 +357,15 @@ def solve_joint(stations, contracts, sets, *, firm_days: int, solver: str, gap: 
                                  hints=repair_car_sets(stations, plans, sets), totals=totals,
                                  solver=solver, gap=work.placement_gap, time_limit=left,
                                  node_limit=work.placement_nodes, scale=scale, late_days=late_days,
-                                 firm_days=firm_days, used=used, change_cost=change_cost)
+                                 firm_days=firm_days, used=used, change_cost=change_cost, fixed=fixed)
             plans = {s.name: spread_to_days(s.open, s.balance, s.lanes, s.firm, daily, sols2[s.name].quantity,
                                             sols2[s.name], s.lever) for s in stations}
             first.clock_cut = first.clock_cut or next(iter(sols2.values())).clock_cut
+            day_sols, day_periods, day_lins = sols2, daily, lins2
         except RuntimeError:
             pass  # keep the even spread of the weekly totals
+    if len(stations) > 1 and not first.gap <= SWEEP_ABOVE_GAP and len(day_periods) == n:
+        # day by day, no weekly totals held: each station may move its own loads anywhere
+        _, plans = station_sweeps(stations, contracts, sets, day_periods, day_sols, plans, lins=day_lins,
+                                  **{**pass_args, "node_limit": work.placement_nodes})
     return plans, first, time.perf_counter() - t0
