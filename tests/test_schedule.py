@@ -116,7 +116,10 @@ def test_demo_plan_keeps_every_rule(demo_plan, demo_path):
     code, out = demo_plan
     mv, bal, inv, summary = _files(out)
     scn = load_scenario(demo_path)
-    assert code == (1 if summary["breaches"] else 0)
+    # exit 1 only for a limit broken in the firm window (an outlook breach is re-planned
+    # before its day comes: `causes.firm_breaches`)
+    firm = [b for b in summary["breaches"] if b.get("window", "firm") != "outlook"]
+    assert code == (1 if firm else 0)
     assert check_plan(scn, mv, bal, inv, summary["breaches"]) == []
     assert set(mv.columns) >= {"date", "material", "direction", "party", "lane", "loads", "tonnes",
                                "cost", "order_by", "firm"}
