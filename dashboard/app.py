@@ -451,7 +451,12 @@ def stop_server(server) -> None:
     if trigger is not None:
         # closed from inside the server's own loop, which then ends (no socket closed
         # under a running select)
-        trigger.pull_trigger(lambda: wasyncore.close_all(socket_map))
+        try:
+            trigger.pull_trigger(lambda: wasyncore.close_all(socket_map))
+        except OSError:
+            # the trigger's pipe is closed already: the loop has ended or is ending (a
+            # teardown race seen once under load); close whatever is left from here
+            wasyncore.close_all(socket_map)
     else:  # pragma: no cover - every waitress server has a trigger
         wasyncore.close_all(socket_map)
 
