@@ -55,3 +55,16 @@ def write_fleet(folder: Path, *, days: int = 28, shared: bool = True, stations=N
         sets = sets if sets is not None else [["Q set", 2, 7]]
     rows = fleet_rows({n: f"{n}.xlsx" for n in stations}, contracts if shared else None, sets if shared else None)
     return write_workbook(rows, folder / "fleet.xlsx")
+
+
+def two_stones(days: int):
+    """A ``per_station`` edit for `write_fleet`: the station becomes
+    `test_schedule.two_quarries` (two quarries of different CaCO3 feeding a mixed silo)."""
+    from test_schedule import two_quarries
+
+    def edit(sheets: dict) -> None:
+        q = two_quarries(days=days, seed=1)
+        sheets.clear()
+        sheets.update(q)
+
+    return edit

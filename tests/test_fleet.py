@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from fleet_helpers import STATIONS, fleet_rows, station_sheets, write_fleet
+from fleet_helpers import STATIONS, fleet_rows, station_sheets, two_stones, write_fleet
 from helpers import START, set_value, write_workbook
 from reagentplan.cli import main
 from reagentplan.fleet import fleet_summary, load_fleet, plan_fleet
@@ -162,12 +162,7 @@ def test_outputs_are_those_fleet_md_names(planned):
 
 
 def _movements(out) -> pd.DataFrame:
-    frames = []
-    for name in STATIONS:
-        m = pd.read_csv(out / name / "movements.csv", parse_dates=["date"])
-        m["station"] = name
-        frames.append(m)
-    return pd.concat(frames, ignore_index=True)
+    return _movements_of(out, STATIONS)
 
 
 def test_every_pooled_limit_and_the_car_set_replayed_from_movements(planned):
@@ -216,14 +211,8 @@ def test_a_station_of_two_stones_in_the_fleet_replays_independently(tmp_path):
     plain stations: the independent replay of its silo, purity on every shipping day and
     train windows (`plancheck.check_plan`) finds nothing its plan does not list."""
     from plancheck import check_plan
-    from test_schedule import two_quarries
 
-    def as_quarries(s):
-        q = two_quarries(days=DAYS, seed=1)
-        s.clear()
-        s.update(q)
-
-    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": as_quarries},
+    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": two_stones(DAYS)},
                        contracts=[["Board pool", "Board Co", "gypsum", None, 5000, None]], sets=[])
     fleet = load_fleet(path)
     assert fleet.station("east").scenario.quality_coupled

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from fleet_helpers import write_fleet
+from fleet_helpers import two_stones, write_fleet
 from reagentplan.cli import main
 from reagentplan.fleet.study import build_fleet_grid, run_fleet_case
 from reagentplan.settings import STUDY
@@ -92,7 +92,6 @@ def test_a_coupled_silo_in_a_fleet_study_is_priced_as_the_station_study_prices_i
     plan): each future's stone use and gypsum are moved to the plan's stone before the
     replay (`flows_at_plan_stone`), as the station study does, so the fleet's cost per
     future is the stations' replays so priced, summed, plus the pooled shortfalls."""
-    from test_schedule import two_quarries
 
     from reagentplan.balance import balance_frame
     from reagentplan.fleet import plan_fleet
@@ -101,12 +100,7 @@ def test_a_coupled_silo_in_a_fleet_study_is_priced_as_the_station_study_prices_i
     from reagentplan.schedule.plan import flows_at_plan_stone
     from reagentplan.study.run import replay_costs
 
-    def as_quarries(s):
-        q = two_quarries(days=DAYS, seed=1)
-        s.clear()
-        s.update(q)
-
-    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": as_quarries},
+    path = write_fleet(tmp_path / "f", days=DAYS, per_station={"east": two_stones(DAYS)},
                        contracts=[["Board pool", "Board Co", "gypsum", None, 5000, None]], sets=[])
     grid = build_fleet_grid(path, ["shared_contracts[Board pool].max_t_per_month=5000"])
     settings = dataclasses.replace(STUDY, futures=8, firm_days=FIRM)

@@ -5,6 +5,8 @@ from __future__ import annotations
 import sys
 
 EXIT_OK, EXIT_BREACH, EXIT_BAD_INPUT = 0, 1, 2
+#: Exit code after Ctrl-C (128 + SIGINT), as a shell reports it.
+EXIT_INTERRUPTED = 130
 
 
 def warn(scenario, stream=None) -> None:
@@ -14,3 +16,12 @@ def warn(scenario, stream=None) -> None:
     text = describe_warnings(getattr(scenario, "warnings", ()))
     if text:
         print(text, file=stream or sys.stderr)
+
+
+def study_interrupted() -> int:
+    """Say on stderr what a study stopped by Ctrl-C kept, and give its exit code."""
+    import sys
+
+    print("Interrupted: the finished cases are in study.csv; the others are marked 'not run'.",
+          file=sys.stderr)
+    return EXIT_INTERRUPTED

@@ -7,7 +7,7 @@ from __future__ import annotations
 import sys
 
 from .. import CAUTION
-from .common import EXIT_BREACH, EXIT_OK
+from .common import EXIT_BREACH, EXIT_OK, study_interrupted
 
 
 def is_fleet(path) -> bool:
@@ -113,7 +113,5 @@ def study(args, settings) -> int:
     print(f"\nWrote study.csv, study.xlsx to {args.out}")
     print(f"\nCaution: {CAUTION}")
     if study.run.interrupted:
-        print("Interrupted: the finished cases are in study.csv; the others are marked 'not run'.",
-              file=sys.stderr)
-        return 130
+        return study_interrupted()
     return EXIT_BREACH if frame["status"].isin(NO_PLAN).any() else EXIT_OK

@@ -8,7 +8,7 @@ import sys
 from .. import CAUTION
 from ..errors import ScenarioError
 from ..settings import MAX_CASES, STUDY
-from .common import EXIT_BAD_INPUT, EXIT_BREACH, EXIT_OK
+from .common import EXIT_BAD_INPUT, EXIT_BREACH, EXIT_OK, study_interrupted
 from .options import (add_firm_days, add_futures, add_out, add_risk_level, add_seed, add_solver,
                       add_time_limit, plan_settings)
 
@@ -88,8 +88,6 @@ def run(args) -> int:
     print(f"\nWrote {', '.join(p.name + ('/' if p.is_dir() else '') for p in written)} to {args.out}")
     print(f"\nCaution: {CAUTION}")
     if result.run.interrupted:
-        print("Interrupted: the finished cases are in study.csv; the others are marked 'not run'.",
-              file=sys.stderr)
-        return 130
+        return study_interrupted()
     planned = result.frame["status"].isin(("optimal", "feasible")).all()
     return EXIT_OK if planned and result.winner.case is not None else EXIT_BREACH
