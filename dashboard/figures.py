@@ -239,8 +239,7 @@ def lane_use_figure(use: pd.DataFrame) -> go.Figure:
 # --------------------------------------------------------------------------- plant
 
 
-def shade_outlook(fig: go.Figure, frame: pd.DataFrame | None, text: str = "outlook: indication only, re-planned weekly"
-                  ) -> None:
+def shade_outlook(fig: go.Figure, frame: pd.DataFrame | None, text: str = "outlook") -> None:
     """Shade the days of ``frame`` whose ``window`` is ``outlook`` (risk.csv's column):
     beyond the firm window the replay's chances are an indication, not what the
     coordinator acts on.  Nothing where the frame has no outlook."""
@@ -249,6 +248,9 @@ def shade_outlook(fig: go.Figure, frame: pd.DataFrame | None, text: str = "outlo
     days = pd.to_datetime(frame.loc[frame["window"] == "outlook", "date"])
     fig.add_vrect(x0=days.min() - pd.Timedelta(hours=12), x1=days.max() + pd.Timedelta(hours=12),
                   fillcolor="rgba(150,160,165,0.13)", line_width=0, layer="below",
+                  # a short label: the capacity and limit labels sit at the top right,
+                  # where a longer one ran into them on a short outlook (the page's
+                  # intro says what the shading means)
                   annotation_text=text, annotation_position="top left",
                   annotation_font=dict(size=11, color=MUTED))
 

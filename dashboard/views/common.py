@@ -25,7 +25,8 @@ def card(*children, wide: bool = False, title: str | None = None, card_id: str |
 
 
 def fmt_t(x) -> str:
-    return "–" if x is None or pd.isna(x) else f"{x:,.0f}"
+    """Whole tonnes with thousands separators; a small negative rounds to 0, not "-0"."""
+    return "–" if x is None or pd.isna(x) else f"{round(float(x)):,}"
 
 
 def fmt_date(x) -> str:

@@ -26,7 +26,8 @@ def layout():
     return html.Div(className="rp-view", children=[
         html.P("Each store's planned level inside the band of the sampled futures (P10 to P90), "
                "with safety stock and capacity; the first day a store passes a "
-               f"{ALERT_LEVEL:.0%} chance of breaking a limit; the SO2 permit average.",
+               f"{ALERT_LEVEL:.0%} chance of breaking a limit; the SO2 permit average. The shaded "
+               "outlook beyond the firm window is an indication only: it is re-planned every week.",
                className="rp-view-intro"),
         html.Div(id=HEADLINES, className="rp-headlines"),
         html.Div(id=STORES, className="rp-grid"),
