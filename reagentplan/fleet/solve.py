@@ -23,7 +23,6 @@ OR-Tools MathOpt, https://developers.google.com/optimization/math_opt (model API
 
 from __future__ import annotations
 
-import dataclasses
 import time
 from types import SimpleNamespace
 
@@ -32,7 +31,7 @@ from ortools.math_opt.python import mathopt
 
 from ..schedule.evaluate import CONTRACT_PENALTY_PER_T
 from ..schedule.lanes import SUPPLY
-from ..schedule.model import (PeriodSolution, Problem, SolveStatus, WorkLimits, _hint_values, _read_solution,
+from ..schedule.model import (PeriodSolution, Problem, WorkLimits, _hint_values, _read_solution,
                               window_period_sets,
                               _silo_floor, build_periods, formulate, run_solver, spread_to_days)
 from .split import covers, month_limits
@@ -249,13 +248,6 @@ def settle_silos(stations, contracts, sets, periods, *, steps: int, tolerance_pc
 #: The joint solve's relative gap [-] above which the stations are re-planned one at a
 #: time, day by day (`station_sweeps`), after the daily pass.
 SWEEP_ABOVE_GAP = 0.01
-
-
-def _gap(objective: float, bound: float) -> float:
-    """Relative gap [-] of an objective against a lower bound (NaN without a bound)."""
-    if not (np.isfinite(objective) and np.isfinite(bound)):
-        return float("nan")
-    return max(objective - bound, 0.0) / max(abs(objective), 1.0)
 
 
 def station_sweeps(stations, contracts, sets, periods, sols, plans, *, lins, fixed=None, **pass_args):
