@@ -279,3 +279,22 @@ def test_what_the_gap_covers():
     s = make_plan(q, firm_days=20, time_limit=20).summary()
     assert s["gap_scope"].startswith("the whole plan") and "relaxation" in s["gap_scope"]
     assert s["silo"]["bound"] is not None and s["gap"] is not None and s["gap"] >= 0
+
+
+def test_silo_keeps_the_cheapest_priced_stone():
+    """The silo's whole-load steps run on the solver `WHOLE_LOAD_SOLVER` names; every
+    candidate stone is priced by its byproducts planned again at the silo it makes, and
+    the plan kept is the cheapest of them: its objective is the least priced, and the
+    plan's own replay prices it the same way (its exact balance ships nothing off-spec)."""
+    from reagentplan.schedule.plan import WHOLE_LOAD_SOLVER
+
+    q = load_scenario(workbook_bytes(two_quarries(days=40, seed=3, cheap=89.0)))
+    r = make_plan(q, firm_days=14, time_limit=30)
+    s = r.summary()
+    steps = [i for i in s["silo_iterations"] if isinstance(i["iteration"], int)]
+    assert steps and all(i["solver"] == WHOLE_LOAD_SOLVER["highs"] for i in steps)
+    assert s["silo"]["whole_load_solver"] == "scip"
+    final = s["silo_iterations"][-1]
+    assert final["iteration"] == "byproducts at the chosen stone"
+    assert final["objective"] == pytest.approx(min(i["objective"] for i in steps), abs=0.01)
+    assert r.evaluation.costs.get("quality_penalty", 0.0) == 0.0

@@ -10,6 +10,7 @@ trusts them.  A new column of a table sheet is a field here (with its `Field` in
 from __future__ import annotations
 
 import datetime as dt
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,9 +37,10 @@ class Plant:
     #: share of the permit limit the plan keeps the rolling average under [%]
     so2_limit_margin_pct: float = 5.0
 
-    @property
+    @functools.cached_property
     def dates(self) -> pd.DatetimeIndex:
-        """The planned days, start to end inclusive."""
+        """The planned days, start to end inclusive (made once per plant: the model reads
+        it for every row it builds)."""
         return pd.date_range(self.start_date, periods=self.horizon_days, freq="D")
 
     @property

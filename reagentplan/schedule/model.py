@@ -36,6 +36,7 @@ ACM SIGMAP Bulletin 25:19-28 (the silo's mix, linearised at the last plan).
 from __future__ import annotations
 
 import dataclasses
+import functools
 import datetime as dt
 import enum
 import time
@@ -136,7 +137,7 @@ class WorkLimits:
     nodes: int = 200
     bound_nodes: int = 0
     placement_nodes: int = 200
-    placement_gap: float = 1e-4
+    placement_gap: float = 1e-3
 
 
 @dataclass
@@ -162,6 +163,10 @@ class SolveOutcome:
     clock_cut: bool = False
     #: the plan's price where a caller priced it (`plan._plan_the_silo`) [money]
     price: float = float("nan")
+    #: with an outlook in buckets solved with ``to_days=False``: places the buckets on
+    #: their days later (`solve_plan`), so a caller that prices several plans in buckets
+    #: places only the one it keeps
+    place_days: object = field(default=None, repr=False, compare=False)
 
     @property
     def status_text(self) -> str:
@@ -225,25 +230,42 @@ def solve_plan(scenario: Scenario, balance: pd.DataFrame, lanes: list[Lane],
                       limestone_end_per_t=limestone_end_per_t, permit_guard=permit_guard)
     first = solve_problem(problem, time_limit=time_limit, gap=gap, hint=hint, scale=scale,
                           progress=progress, label=f"plan ({solver})", node_limit=work.nodes)
-    clock_cut = first.clock_cut
     plan = spread_to_days(scenario, balance, lanes, firm, periods, first.quantity, first, lever)
-    if len(periods) < n and to_days:
-        daily = [(d, d) for d in range(n)]
-        totals = {lane.name: [(a, b, first.quantity[lane.name][k]) for k, (a, b) in enumerate(periods)
-                              if b > a] for lane in lanes}
-        left = max(time_limit - (time.perf_counter() - t0), 5.0)
-        try:
-            lin2 = (None if chem is None or silo_lots
-                    else chem.linearisation(lanes, plan, daily, _silo_floor(scenario)))
-            second = solve_problem(dataclasses.replace(problem, periods=daily, lin=lin2, totals=totals),
-                                   time_limit=left, gap=work.placement_gap, hint=plan, progress=progress,
-                                   label="outlook to days", node_limit=work.placement_nodes)
-            plan = spread_to_days(scenario, balance, lanes, firm, daily, second.quantity, second, lever)
-            clock_cut = clock_cut or second.clock_cut
-        except RuntimeError:
-            pass  # keep the even spread of the weekly totals
-    return SolveOutcome(plan, solver, first.status, first.objective, first.bound, first.gap,
-                        time.perf_counter() - t0, clock_cut=clock_cut)
+    out = SolveOutcome(plan, solver, first.status, first.objective, first.bound, first.gap,
+                       time.perf_counter() - t0, clock_cut=first.clock_cut)
+    if len(periods) < n:
+        out.place_days = functools.partial(_place_on_days, out, problem, first, work, time_limit, progress)
+        if to_days:
+            out.place_days()
+    return out
+
+
+def _place_on_days(out: SolveOutcome, problem: "Problem", first: "PeriodSolution", work: "WorkLimits",
+                   time_limit: float, progress: bool) -> SolveOutcome:
+    """Place the outlook buckets of ``out`` (the solve of ``problem``) on their days: a
+    daily model whose bucket totals are those of the first solve (arrivals exactly, sales
+    at most, landfill free within its limits), solved to ``work.placement_gap``; its plan
+    replaces ``out.plan`` (the even spread stays when no placement is found).  Once."""
+    out.place_days = None
+    t0 = time.perf_counter()
+    sc, lanes = problem.scenario, problem.lanes
+    daily = [(d, d) for d in range(len(sc.dates))]
+    totals = {lane.name: [(a, b, first.quantity[lane.name][k]) for k, (a, b) in enumerate(problem.periods)
+                          if b > a] for lane in lanes}
+    left = max(time_limit - out.solve_seconds, 5.0)
+    try:
+        lin2 = (None if problem.chem is None or problem.silo_lots
+                else problem.chem.linearisation(lanes, out.plan, daily, _silo_floor(sc)))
+        second = solve_problem(dataclasses.replace(problem, periods=daily, lin=lin2, totals=totals),
+                               time_limit=left, gap=work.placement_gap, hint=out.plan, progress=progress,
+                               label="outlook to days", node_limit=work.placement_nodes)
+        out.plan = spread_to_days(sc, problem.balance, lanes, problem.firm, daily, second.quantity, second,
+                                  problem.lever)
+        out.clock_cut = out.clock_cut or second.clock_cut
+    except RuntimeError:
+        pass  # keep the even spread of the bucket totals
+    out.solve_seconds += time.perf_counter() - t0
+    return out
 
 
 def _silo_floor(scenario: Scenario) -> float:
