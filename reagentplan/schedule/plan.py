@@ -4,6 +4,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 from __future__ import annotations
 
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -274,9 +275,6 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
                    "solve_seconds": round(relax.solve_seconds, 3), "max_caco3_change_pct": None,
                    "bound": round(bound, 2) if np.isfinite(bound) else None}]
 
-    def caco3(p) -> np.ndarray:
-        return chem.replay(lanes, p)["frac"][:, 0]
-
     periods = build_periods(scenario.dates, common["firm_days"])
     floor = max(0.1 * scenario.storage["limestone"].safety_t, 1.0)
     point = chem.linearisation(lanes, base, periods, floor)
@@ -300,46 +298,56 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
         if moved < SILO_TOLERANCE_PCT:
             break
     step_solver = WHOLE_LOAD_SOLVER.get(common["solver"], common["solver"])
-    best, change, settled, steps, scores = None, None, False, 0, {}
-    while steps < MAX_SILO_STEPS:
-        steps += 1
-        try:
-            step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem,
-                              hint=base if best is None else best[1].plan, around=point, to_days=False,
-                              lever=lever, **{**common, "solver": step_solver})
-        except RuntimeError:
-            break
-        clock = clock or step.clock_cut
-        # the candidate's price: its byproducts planned again at the silo its stone really
-        # makes (the outlook in its buckets), the objective of that plan.  Its exact replay
-        # with the byproducts of the linearised solve would price mostly the linearisation's
-        # error (sales on the few days the lumpy silo dips under a buyer's purity).  A stone
-        # plan met before keeps its price
-        key = b"".join(step.plan.quantity[l.name].tobytes() for l in lanes if l.kind == SUPPLY)
-        t_score = time.perf_counter()
-        if key not in scores:
+    best, change, settled, steps, scores, tried = None, None, False, 0, {}, []
+    # a candidate is priced (its byproducts planned again, `_byproducts_at_stone`) on a
+    # second thread while the next whole-load step solves: the solvers let go of the
+    # interpreter, and the two solves share nothing, so a plan is the same whatever their
+    # timing.  The price needs the candidate alone; the next step starts at the silo the
+    # candidate makes, warm-started at the candidate
+    with ThreadPoolExecutor(max_workers=1) as pricing:
+        previous = None
+        while steps < MAX_SILO_STEPS:
+            steps += 1
             try:
-                scores[key] = _byproducts_at_stone(scenario, lanes, firm, guard, chem, lever, common, net,
-                                                   step.plan, to_days=False)
+                step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem,
+                                  hint=base if previous is None else previous.plan, around=point,
+                                  to_days=False, lever=lever, **{**common, "solver": step_solver})
             except RuntimeError:
                 break
-        scored = scores[key]
-        clock = clock or scored[0].clock_cut
-        made = chem.linearisation(lanes, step.plan, periods, floor)
-        # the linearisation's error: the silo's CaCO3 the model assumed against the one the
-        # plan really makes, per period [%-points]
-        change = float(np.max(np.abs(100 / made[0] - 100 / point[0])))
-        iterations.append({"iteration": steps, "total_cost": None, "objective": round(scored[2], 2),
-                           "gap": step.gap, "solver": step_solver,
-                           "solve_seconds": round(step.solve_seconds + time.perf_counter() - t_score, 3),
-                           "max_caco3_change_pct": round(change, 4)})
-        if best is None or scored[2] < best[0] - 1e-6:
-            best = (scored[2], step, scored)
-        if change < SILO_TOLERANCE_PCT:
-            settled = True
-            break
-        # the next point: the silo the plan made (damped: part of the way towards it)
-        point = tuple((1 - SILO_DAMPING) * a + SILO_DAMPING * b for a, b in zip(point, made))
+            clock = clock or step.clock_cut
+            # the candidate's price: its byproducts planned again at the silo its stone
+            # really makes (the outlook in its buckets), the objective of that plan.  Its
+            # exact replay with the byproducts of the linearised solve would price mostly the
+            # linearisation's error (sales on the few days the lumpy silo dips under a
+            # buyer's purity).  A stone plan met before keeps its price
+            key = b"".join(step.plan.quantity[l.name].tobytes() for l in lanes if l.kind == SUPPLY)
+            if key not in scores:
+                scores[key] = pricing.submit(_byproducts_at_stone, scenario, lanes, firm, guard, chem, lever,
+                                             {**common, "progress": False}, net, step.plan, to_days=False)
+            made = chem.linearisation(lanes, step.plan, periods, floor)
+            # the linearisation's error: the silo's CaCO3 the model assumed against the one
+            # the plan really makes, per period [%-points]
+            change = float(np.max(np.abs(100 / made[0] - 100 / point[0])))
+            tried.append((steps, key, step, change))
+            previous = step
+            if change < SILO_TOLERANCE_PCT:
+                settled = True
+                break
+            # the next point: the silo the plan made (damped: part of the way towards it)
+            point = tuple((1 - SILO_DAMPING) * a + SILO_DAMPING * b for a, b in zip(point, made))
+        for k, key, step, moved in tried:
+            try:
+                scored = scores[key].result()
+            except RuntimeError:
+                continue
+            clock = clock or scored[0].clock_cut
+            iterations.append({"iteration": k, "total_cost": None, "objective": round(scored[2], 2),
+                               "gap": step.gap, "solver": step_solver,
+                               "solve_seconds": round(step.solve_seconds, 3),
+                               "pricing_seconds": round(scored[0].solve_seconds, 3),
+                               "max_caco3_change_pct": round(moved, 4)})
+            if best is None or scored[2] < best[0] - 1e-6:
+                best = (scored[2], step, scored)
     stone = best[1].plan if best is not None else base
     # the chosen stone: its byproducts' outlook placed on its days (a plan of every day has
     # nothing to place)
