@@ -43,8 +43,9 @@ SILO_TOLERANCE_PCT = 0.05
 SILO_DAMPING = 1.0
 #: The solver of the silo's whole-load steps, by the plan's solver: with HiGHS, SCIP (one
 #: thread, bounded by the same nodes).  Measured on the demo (guide, "The silo's
-#: recursion"): HiGHS spends each such solve in its root node's sub-MIP heuristics, SCIP
-#: finds plans as cheap in a third of the time; linear programmes and the byproducts' re-plans stay on HiGHS.
+#: recursion" and "Solver"): HiGHS spends each such solve in its root node's sub-MIP
+#: heuristics, SCIP finds stone as cheap in about half the time.  Linear programmes and
+#: the byproducts' re-plans stay on HiGHS.
 WHOLE_LOAD_SOLVER = {"highs": "scip"}
 
 
