@@ -298,3 +298,38 @@ def test_silo_keeps_the_cheapest_priced_stone():
     assert final["iteration"] == "byproducts at the chosen stone"
     assert final["objective"] == pytest.approx(min(i["objective"] for i in steps), abs=0.01)
     assert r.evaluation.costs.get("quality_penalty", 0.0) == 0.0
+
+
+def test_relinearised_model_is_a_new_formulation():
+    """The silo's successive steps move one model's linearisation in place
+    (`model.relinearise`) rather than formulating it again: the model so moved must be,
+    byte for byte, the one `formulate` builds at the new point (same rows, bounds,
+    coefficients and objective), or a step would solve another problem than its own."""
+    from reagentplan.balance import balance_frame
+    from reagentplan.schedule.baseline import baseline_plan
+    from reagentplan.schedule.lanes import build_lanes, firm_loads
+    from reagentplan.schedule.model import Problem, formulate, relinearise
+    from reagentplan.schedule.quality import SiloChemistry
+
+    q = load_scenario(workbook_bytes(two_quarries(days=40, seed=3, cheap=89.0)))
+    bal = balance_frame(q)
+    lanes = build_lanes(q, bal)
+    firm = firm_loads(q, lanes)
+    chem = SiloChemistry.from_balance(q, bal, lanes)
+    periods = build_periods(q.dates, 14)
+    base = baseline_plan(q, bal, lanes, firm, chem=chem)
+    at_base = chem.linearisation(lanes, base, periods, 1.0)
+    # another point: the silo a third richer in inerts in every other period
+    u, j = at_base
+    other = (np.where(np.arange(len(u)) % 2 == 0, 1.0 + 1.3 * (u - 1.0), u), j)
+    assert np.max(np.abs(other[0] - at_base[0])) > 0.01
+
+    def fresh(lin):
+        return formulate(Problem(q, bal, lanes, firm, {}, periods, "highs", chem=chem, lin=lin))
+
+    moved = fresh(at_base)
+    before = moved.model.export_model().SerializeToString()
+    relinearise(moved, other)
+    after = moved.model.export_model().SerializeToString()
+    assert after != before  # the move changed the model ...
+    assert after == fresh(other).model.export_model().SerializeToString()  # ... into the new one

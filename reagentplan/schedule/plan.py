@@ -3,6 +3,7 @@ the contract outputs (`movements.csv`, `inventory.csv`, `summary.json`)."""
 
 from __future__ import annotations
 
+import functools
 import time
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
@@ -19,7 +20,7 @@ from .baseline import baseline_plan
 from .causes import explain, mark_windows
 from .evaluate import DailyPlan, Evaluation, evaluate, freight_by_day
 from .lanes import LANDFILL, SALE, SUPPLY, Lane, build_lanes, firm_loads, horizon_months
-from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SolveOutcome, WorkLimits, build_periods,
+from .model import (CHANGE_COST_PER_LOAD, LATE_TRAIN_DAYS, SiloSteps, SolveOutcome, WorkLimits, build_periods,
                     end_caco3_value, lever_cost_at, solve_plan)
 from .permit import permit_breaches
 from .lever import (AllowanceTerms, RemovalLever, allowance_frame, baseline_trades, removal_dips,
@@ -282,11 +283,15 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
     # the recursion with loads relaxed to fractions first: cheap, and the fractional plans
     # move the silo smoothly, so it settles in a few steps where the whole-load solves,
     # started from the baseline's lumpy silo, swing between trains
+    steps_model = SiloSteps(scenario, balance, lanes, firm, guard, chem=chem, firm_days=common["firm_days"],
+                            lever=lever, allow=common["allow"], keep=common["keep"],
+                            change_cost=common["change_cost"], late_days=common["late_days"],
+                            permit_guard=common["permit_guard"])
+    solve_step = functools.partial(steps_model.solve, gap=common["gap"], scale=common["scale"],
+                                   progress=common["progress"])
     for k in range(LINEAR_SILO_STEPS):
         try:
-            lp = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem, hint=None,
-                            around=point, to_days=False, lever=lever,
-                            **{**common, "work": replace(work, nodes=0)})
+            lp = solve_step(point, solver=common["solver"], hint=None, time_limit=net(), node_limit=0)
         except RuntimeError:
             break
         clock = clock or lp.clock_cut
@@ -310,9 +315,8 @@ def _plan_the_silo(scenario, balance, lanes, firm, guard, chem, lever, base, com
         while steps < MAX_SILO_STEPS:
             steps += 1
             try:
-                step = solve_plan(scenario, balance, lanes, firm, guard, time_limit=net(), chem=chem,
-                                  hint=base if previous is None else previous.plan, around=point,
-                                  to_days=False, lever=lever, **{**common, "solver": step_solver})
+                step = solve_step(point, solver=step_solver, hint=base if previous is None else previous.plan,
+                                  time_limit=net(), node_limit=work.nodes)
             except RuntimeError:
                 break
             clock = clock or step.clock_cut
